@@ -1,0 +1,1 @@
+"""The apsidal compiler: lowering, orbit mechanics, evaluator, checks, diff, reports, CLI."""

@@ -1,0 +1,631 @@
+"""The evaluator: steps applied to a batch of states, giving the orbit-state chain.
+
+One code path serves every caller.  A batch holds B craft states (a leading axis on
+every array); ``apply`` moves the whole batch through one step and returns the rows it
+produced (one per burn, coast, drop or expectation; a transfer gives one row per burn)
+and which elements failed and why.  ``run`` prices one plan as a batch of one and turns
+the first failure into a located error.  The reorder search feeds thousands of states at
+once through the same ``apply``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+
+from apsidal.lang.errors import PlanError
+
+from . import kepler
+from .solvers import Failures, Shape, new_velocity, normal_for, rotate_about
+from .state import (
+    CIRCULAR_ECC,
+    EQUATORIAL_RAD,
+    TWO_PI,
+    dot,
+    elements_from_state,
+    frame,
+    local_frame,
+    norm,
+    signed_angle,
+    unit,
+)
+from .steps import Burn, Coast, Drop, EngineSpec, Expect, Place, Program, Step, Transfer
+
+HERE_TOL = 1e-9  # rad: a place this close ahead is "here"
+
+
+@dataclass(frozen=True)
+class Batch:
+    r: np.ndarray  # (B, 3) km
+    v: np.ndarray  # (B, 3) km/s
+    mass: np.ndarray  # (B,) kg
+    propellant: np.ndarray  # (B,) kg
+    t: np.ndarray  # (B,) s
+    dv: np.ndarray  # (B,) km/s, running total without margin
+    dv_margin: np.ndarray  # (B,) km/s, running total with margin
+    expect_ok: np.ndarray  # (B,) every expectation so far met
+
+    @property
+    def size(self) -> int:
+        return self.r.shape[0]
+
+    def take(self, idx) -> "Batch":
+        return Batch(*(getattr(self, f)[idx] for f in _FIELDS))
+
+    def where(self, mask: np.ndarray, other: "Batch") -> "Batch":
+        """Elementwise: self where mask, else other."""
+        def pick(a, b):
+            m = mask.reshape(mask.shape + (1,) * (a.ndim - 1))
+            return np.where(m, a, b)
+        return Batch(*(pick(getattr(self, f), getattr(other, f)) for f in _FIELDS))
+
+
+_FIELDS = ("r", "v", "mass", "propellant", "t", "dv", "dv_margin", "expect_ok")
+
+
+def start_batch(program: Program, size: int = 1) -> Batch:
+    ones = np.ones(size)
+    craft = program.craft
+    return Batch(
+        r=np.tile(program.start_r, (size, 1)),
+        v=np.tile(program.start_v, (size, 1)),
+        mass=ones * (craft.dry + craft.propellant),
+        propellant=ones * craft.propellant,
+        t=np.zeros(size),
+        dv=np.zeros(size),
+        dv_margin=np.zeros(size),
+        expect_ok=np.ones(size, dtype=bool),
+    )
+
+
+@dataclass
+class CheckResult:
+    kind: str
+    comparator: str
+    target: float
+    tolerance: float
+    actual: np.ndarray
+    passed: np.ndarray
+
+
+@dataclass
+class Row:
+    """One reported line of the chain; arrays over the batch."""
+
+    step: int  # index of the plan step (0-based)
+    name: str
+    kind: str  # burn | coast | drop | expect
+    at: str
+    after: Batch
+    dv_vec: np.ndarray | None = None  # (B, 3) along, cross, radial in km/s
+    dv: np.ndarray | None = None
+    dv_margin: np.ndarray | None = None
+    propellant: np.ndarray | None = None
+    burn_time: np.ndarray | None = None
+    coast_time: np.ndarray | None = None
+    duration: np.ndarray | None = None
+    engine: EngineSpec | None = None
+    margin: float = 0.0
+    checks: list[CheckResult] = field(default_factory=list)
+
+
+@dataclass(frozen=True)
+class Context:
+    mu: float
+    radius: float  # body equatorial radius, km
+    default_engine: EngineSpec
+    margin: float
+
+
+def context_for(program: Program) -> Context:
+    return Context(program.body.gm, program.body.radius, program.craft.default_engine,
+                   program.margin)
+
+
+# --- getting somewhere -------------------------------------------------------------
+
+
+def _target_angle(place: Place, r, v, mu, fails: Failures):
+    """Sweep angle ahead to ``place``; zero where the place is here."""
+    f = frame(r, v, mu)
+    ecc = norm(f.e_vec)
+    hz = f.h[:, 2]
+    equatorial = np.abs(hz) > np.cos(EQUATORIAL_RAD)
+    circular = ecc < CIRCULAR_ECC
+    open_ = ecc >= 1.0
+    kind = place.kind
+    if kind in ("periapsis", "apoapsis", "anomaly"):
+        now = signed_angle(f.periapsis, r, f.h)
+        target = {"periapsis": 0.0, "apoapsis": np.pi}.get(kind, place.angle)
+        d = np.mod(target - now, TWO_PI)
+        if kind != "anomaly":
+            d = np.where(circular, 0.0, d)
+        if kind == "apoapsis":
+            fails.add(open_, lambda i: (
+                f"there is no apoapsis on an open orbit (eccentricity {ecc[i]:.6f})",
+                "burn `at periapsis` or here, or close the orbit first"))
+        if kind == "periapsis":
+            passed = open_ & (d > np.pi)
+            fails.add(open_ & ~passed & (now > 0) & (now < np.pi) & (d > 0), lambda i: (
+                "periapsis already passed on this open orbit", "burn here instead"))
+    else:
+        now = signed_angle(f.node, r, f.h)
+        if kind == "ascending node":
+            d = np.mod(-now, TWO_PI)
+        elif kind == "descending node":
+            d = np.mod(np.pi - now, TWO_PI)
+        else:
+            raise ValueError(f"unknown place {kind!r}")
+        d = np.where(equatorial, 0.0, d)
+    d = np.where((d < HERE_TOL) | (d > TWO_PI - HERE_TOL), 0.0, d)
+    return d
+
+
+def goto(place: Place, r, v, mu, fails: Failures):
+    """Coast to ``place``; returns (r, v, seconds)."""
+    if place.kind == "here":
+        return r, v, np.zeros(r.shape[0])
+    d = _target_angle(place, r, v, mu, fails)
+    dt, ok_t = kepler.time_of_flight(r, v, mu, d)
+    r1, v1, ok_p = kepler.place(r, v, mu, d)
+    fails.add(~(ok_t & ok_p), lambda i: (
+        f"the craft never reaches {place.label()} on this open orbit",
+        "burn here or at a point ahead of the craft"))
+    good = ok_t & ok_p
+    return (np.where(good[:, None], r1, r), np.where(good[:, None], v1, v),
+            np.where(good, dt, 0.0))
+
+
+# --- burns ---------------------------------------------------------------------------
+
+
+@dataclass
+class BurnOutcome:
+    r: np.ndarray
+    v_before: np.ndarray
+    v_after: np.ndarray
+    coast: np.ndarray
+    fails: Failures
+
+
+def _solve_burn(step: Burn, r, v, ctx: Context, fails: Failures, normal=None):
+    """Velocity after the burn at the current position."""
+    mu = ctx.mu
+    if step.vector is not None:
+        along, cross, radial = local_frame(r, v)
+        a, c, rd = step.vector
+        return v + a * along + c * cross + rd * radial
+    rmag = norm(r)
+    if step.circular:
+        if step.circular_radius is not None:
+            R = step.circular_radius
+            off = np.abs(rmag - R) > 1e-9 * rmag
+            fails.add(off, lambda i: (
+                f"`circular {R - ctx.radius:.3f} km` needs the craft at that altitude, "
+                f"but it is at {rmag[i] - ctx.radius:.3f} km; one burn can only "
+                "circularise at the current radius",
+                f"use `transfer NAME: circular {R - ctx.radius:g} km`, or drop the altitude "
+                "to circularise here"))
+        shape = Shape(periapsis=rmag, apoapsis=rmag)
+    else:
+        shape = Shape(periapsis=None if step.periapsis is None else np.full_like(rmag, step.periapsis),
+                      apoapsis=None if step.apoapsis is None else np.full_like(rmag, step.apoapsis))
+    if normal is None and step.normal is not None:
+        normal = np.broadcast_to(np.asarray(step.normal), r.shape)
+    if normal is None and (step.inclination is not None or step.raan is not None):
+        normal = normal_for(r, v, step.inclination, step.raan, fails)
+    v_new = new_velocity(r, v, mu, shape, normal, fails, ctx.radius)
+    return np.where(fails.ok[:, None], v_new, v)
+
+
+def _burn_at(step: Burn, place: Place, r, v, ctx: Context, normal=None) -> BurnOutcome:
+    fails = Failures(r.shape[0])
+    r1, v1, coast = goto(place, r, v, ctx.mu, fails)
+    v2 = _solve_burn(step, r1, v1, ctx, fails, normal)
+    return BurnOutcome(r1, v1, v2, coast, fails)
+
+
+def _cheaper(a: BurnOutcome, b: BurnOutcome) -> BurnOutcome:
+    da = norm(a.v_after - a.v_before)
+    db = norm(b.v_after - b.v_before)
+    take_a = a.fails.ok & (~b.fails.ok | (da <= db * (1 + 1e-12)))
+    take_a |= ~a.fails.ok & ~b.fails.ok
+    fails = Failures(take_a.shape[0])
+    fails.add(take_a & ~a.fails.ok, a.fails.reason)
+    fails.add(~take_a & ~b.fails.ok, b.fails.reason)
+    m = take_a[:, None]
+    return BurnOutcome(np.where(m, a.r, b.r), np.where(m, a.v_before, b.v_before),
+                       np.where(m, a.v_after, b.v_after), np.where(take_a, a.coast, b.coast),
+                       fails)
+
+
+def burn_outcome(step: Burn, r, v, ctx: Context, normal=None) -> BurnOutcome:
+    """Where and how the burn happens; ``node`` picks the cheaper node per element."""
+    if step.place.kind == "node":
+        asc = _burn_at(step, Place("ascending node"), r, v, ctx, normal)
+        desc = _burn_at(step, Place("descending node"), r, v, ctx, normal)
+        return _cheaper(asc, desc)
+    return _burn_at(step, step.place, r, v, ctx, normal)
+
+
+def _price(batch: Batch, out: BurnOutcome, engine: EngineSpec, margin: float, ctx: Context,
+           fails: Failures, name: str):
+    """Rocket equation, propellant check and burn time; returns (batch, row parts)."""
+    dv_inertial = out.v_after - out.v_before
+    along, cross, radial = local_frame(out.r, out.v_before)
+    vec = np.stack([dot(dv_inertial, along), dot(dv_inertial, cross),
+                    dot(dv_inertial, radial)], axis=-1)
+    dv = norm(dv_inertial)
+    dvm = dv * (1.0 + margin)
+    ve = engine.exhaust_speed
+    need = batch.mass * -np.expm1(-dvm / ve)
+    left = batch.propellant
+    short = need > left * (1 + 1e-12) + 1e-12
+    capacity = ve * np.log(batch.mass / np.maximum(batch.mass - left, 1e-300))
+    fails.add(short, lambda i: (
+        f"propellant exhausted at {name}: the burn needs {need[i]:.3f} kg "
+        f"({dvm[i] * 1000:.3f} m/s with margin) but {left[i]:.3f} kg remain, "
+        f"a shortfall of {need[i] - left[i]:.3f} kg",
+        f"{left[i]:.3f} kg give at most {capacity[i] * 1000:.3f} m/s with engine "
+        f"`{engine.name}`; add propellant, lower the margin or drop mass earlier"))
+    used = np.minimum(need, left)
+    burn_time = used * ve * 1000.0 / engine.thrust
+    mass = batch.mass - used
+    ok = fails.ok
+    _check_surface(out.r, out.v_after, ctx, fails, name)
+    new = Batch(
+        r=out.r,
+        v=np.where(ok[:, None], out.v_after, out.v_before),
+        mass=mass,
+        propellant=left - used,
+        t=batch.t + out.coast,
+        dv=batch.dv + dv,
+        dv_margin=batch.dv_margin + dvm,
+        expect_ok=batch.expect_ok,
+    )
+    return new, vec, dv, dvm, used, burn_time
+
+
+def _check_surface(r, v, ctx: Context, fails: Failures, name: str):
+    """A conic whose periapsis is under the surface hits the body (if it gets there)."""
+    el = elements_from_state(r, v, ctx.mu)
+    inbound = dot(r, v) < 0
+    reaches = el.closed | inbound
+    low = reaches & (el.periapsis < ctx.radius)
+    fails.add(low, lambda i: (
+        f"after {name} the periapsis is {el.periapsis[i] - ctx.radius:.3f} km, under the "
+        f"surface (the body's radius is {ctx.radius:.3f} km)",
+        "raise the periapsis, or check the goal's altitude (altitudes are above the "
+        "equatorial radius; `radius X` gives a radius)"))
+
+
+def _engine(step, ctx: Context) -> EngineSpec:
+    return step.engine or ctx.default_engine
+
+
+def _burn_rows(step: Burn, index: int, name: str, batch: Batch, ctx: Context, fails: Failures,
+               normal=None, place=None):
+    if place is not None:
+        step = replace(step, place=place)
+    out = burn_outcome(step, batch.r, batch.v, ctx, normal)
+    fails.add(~out.fails.ok, out.fails.reason)
+    margin = step.margin
+    new, vec, dv, dvm, prop, burn_time = _price(batch, out, _engine(step, ctx), margin, ctx,
+                                                fails, name)
+    row = Row(index, name, "burn", step.place.label(), new, vec, dv, dvm, prop, burn_time,
+              out.coast, out.coast, _engine(step, ctx), margin)
+    return new, row
+
+
+# --- transfers -----------------------------------------------------------------------
+
+
+def _phase_burns(step: Transfer, r, v, ctx: Context):
+    """The burns of a transfer as plain Burn steps (plane goals filled in later)."""
+    rmag = norm(r)
+    eng, margin, span = step.engine, step.margin, step.span
+    mk = lambda i, place, **goals: Burn(f"{step.name}/{i}", place, engine=eng,  # noqa: E731
+                                        margin=margin, span=span, **goals)
+    if step.form == "hohmann":
+        up = step.radius >= rmag
+        first_up = mk(1, step.place, apoapsis=step.radius)
+        first_down = mk(1, step.place, periapsis=step.radius)
+        second_up = mk(2, Place("apoapsis"), circular=True)
+        second_down = mk(2, Place("periapsis"), circular=True)
+        return up, [(first_up, first_down), (second_up, second_down)]
+    if step.form == "bielliptic":
+        return None, [(mk(1, step.place, apoapsis=step.via),) * 2,
+                      (mk(2, Place("apoapsis"), periapsis=step.radius),) * 2,
+                      (mk(3, Place("periapsis"), circular=True),) * 2]
+    raise ValueError(step.form)
+
+
+def _transfer(step: Transfer, index: int, batch: Batch, ctx: Context, fails: Failures):
+    if step.place.kind == "node":
+        # price the whole transfer from each node and keep the cheaper per element
+        results = []
+        for kind in ("ascending node", "descending node"):
+            sub = Failures(batch.size)
+            res = _transfer_from(replace(step, place=Place(kind)), index, batch, ctx, sub)
+            results.append((res, sub))
+        (a, fa), (b, fb) = results
+        ca, cb = a[0].dv_margin, b[0].dv_margin
+        take_a = fa.ok & (~fb.ok | (ca <= cb * (1 + 1e-12))) | (~fa.ok & ~fb.ok)
+        fails.add(take_a & ~fa.ok, fa.reason)
+        fails.add(~take_a & ~fb.ok, fb.reason)
+        new = a[0].where(take_a, b[0])
+        rows = [_merge_rows(ra, rb, take_a) for ra, rb in zip(a[1], b[1])]
+        for row in rows:
+            row.at = "node"
+        return new, rows
+    return _transfer_from(step, index, batch, ctx, fails)
+
+
+def _merge_rows(a: Row, b: Row, take_a: np.ndarray) -> Row:
+    def pick(x, y):
+        if x is None:
+            return None
+        m = take_a.reshape(take_a.shape + (1,) * (np.ndim(x) - 1))
+        return np.where(m, x, y)
+    return Row(a.step, a.name, a.kind, a.at, a.after.where(take_a, b.after),
+               *(pick(getattr(a, f), getattr(b, f)) for f in
+                 ("dv_vec", "dv", "dv_margin", "propellant", "burn_time", "coast_time",
+                  "duration")), a.engine, a.margin)
+
+
+def _either(b_up: Burn, b_down: Burn, up, index, batch: Batch, ctx: Context, fails, normal):
+    """Burn ``b_up`` where ``up`` else ``b_down`` (a transfer raising or lowering)."""
+    f_up, f_dn = Failures(batch.size), Failures(batch.size)
+    new_up, row_up = _burn_rows(b_up, index, b_up.name, batch, ctx, f_up, normal)
+    new_dn, row_dn = _burn_rows(b_down, index, b_down.name, batch, ctx, f_dn, normal)
+    fails.add(up & ~f_up.ok, f_up.reason)
+    fails.add(~up & ~f_dn.ok, f_dn.reason)
+    return new_up.where(up, new_dn), _merge_rows(row_up, row_dn, up)
+
+
+def _transfer_from(step: Transfer, index: int, batch: Batch, ctx: Context, fails: Failures):
+    if step.form == "plane-change":
+        return _three_burn_plane_change(step, index, batch, ctx, fails)
+    r0, v0, _ = goto(step.place, batch.r, batch.v, ctx.mu, Failures(batch.size))
+    up, phases = _phase_burns(step, r0, v0, ctx)
+    normals = [None] * len(phases)
+    if step.changes_plane:
+        # the target plane as seen from the first burn's position
+        tmp = Failures(batch.size)
+        target = normal_for(r0, v0, step.inclination, step.raan, tmp)
+        fails.add(~tmp.ok, tmp.reason)
+        if step.form == "hohmann":
+            share = (np.full(batch.size, step.split) if step.split is not None
+                     else _best_split(phases, up, batch, ctx, r0, v0, target))
+            normals = _split_normals(r0, v0, target, share)
+        else:
+            normals = [None, target, None]  # all of it at the bi-elliptic's far apoapsis
+    rows = []
+    for (b_up, b_down), normal in zip(phases, normals):
+        if up is None:
+            batch, row = _burn_rows(b_up, index, b_up.name, batch, ctx, fails, normal)
+        else:
+            batch, row = _either(b_up, b_down, up, index, batch, ctx, fails, normal)
+        rows.append(row)
+    return batch, rows
+
+
+def _split_normals(r, v, target, share):
+    """Plane normals after each burn of a two-burn transfer that turns ``share`` first."""
+    h0 = unit(np.cross(r, v))
+    axis = unit(np.cross(h0, target))
+    small = norm(np.cross(h0, target)) < 1e-15
+    axis = np.where(small[:, None], unit(r), axis)
+    total = np.arctan2(norm(np.cross(h0, target)), dot(h0, target))
+    first = rotate_about(h0, axis, share * total)
+    return [first, target]
+
+
+def _best_split(phases, up, batch: Batch, ctx: Context, r0, v0, target) -> np.ndarray:
+    """Share of the plane change at the first burn that minimises the total delta-v.
+
+    Golden-section search on [0, 1] over the whole batch at once; the total is convex
+    in the share for a two-burn transfer, so the bracket holds.
+    """
+    def total(share):
+        b = batch
+        cost = np.zeros(batch.size)
+        for (b_up, b_down), normal in zip(phases, _split_normals(r0, v0, target, share)):
+            b, row = _either(b_up, b_down, up, 0, b, ctx, Failures(b.size), normal)
+            cost += row.dv
+        return cost
+    lo, hi = np.zeros(batch.size), np.ones(batch.size)
+    g = (np.sqrt(5.0) - 1.0) / 2.0
+    x1, x2 = hi - g * (hi - lo), lo + g * (hi - lo)
+    f1, f2 = total(x1), total(x2)
+    for _ in range(48):
+        left = f1 < f2  # the minimum lies in [lo, x2]
+        hi = np.where(left, x2, hi)
+        lo = np.where(left, lo, x1)
+        x_new = np.where(left, hi - g * (hi - lo), lo + g * (hi - lo))
+        f_new = total(x_new)
+        x1, x2, f1, f2 = (np.where(left, x_new, x2), np.where(left, x1, x_new),
+                          np.where(left, f_new, f2), np.where(left, f1, f_new))
+    return 0.5 * (lo + hi)
+
+
+def _three_burn_plane_change(step: Transfer, index, batch: Batch, ctx: Context, fails):
+    """Raise the apoapsis, turn the plane there, lower it back."""
+    tmp = Failures(batch.size)
+    r0, v0, _ = goto(step.place, batch.r, batch.v, ctx.mu, tmp)
+    el = elements_from_state(r0, v0, ctx.mu)
+    restore = np.where(el.ecc < CIRCULAR_ECC, norm(r0), el.apoapsis)
+    eng, margin, span = step.engine, step.margin, step.span
+    raise_ = Burn(f"{step.name}/1", step.place, apoapsis=step.via, engine=eng, margin=margin,
+                  span=span)
+    turn = Burn(f"{step.name}/2", Place("apoapsis"), inclination=step.inclination,
+                raan=step.raan, engine=eng, margin=margin, span=span)
+    rows = []
+    for burn in (raise_, turn):
+        batch, row = _burn_rows(burn, index, burn.name, batch, ctx, fails)
+        rows.append(row)
+    # lower back: restore the original apoapsis (circular orbits come back circular)
+    lower = Burn(f"{step.name}/3", Place("periapsis"), engine=eng, margin=margin, span=span)
+    out = burn_outcome(lower, batch.r, batch.v, ctx)
+    sub = Failures(batch.size)
+    r3, v3 = out.r, out.v_before
+    circ = np.abs(restore - norm(r3)) <= 1e-7 * restore
+    shape = Shape(periapsis=np.where(circ, norm(r3), np.minimum(norm(r3), restore)),
+                  apoapsis=np.where(circ, norm(r3), np.maximum(norm(r3), restore)))
+    v_new = new_velocity(r3, v3, ctx.mu, shape, None, sub, ctx.radius)
+    fails.add(~sub.ok, sub.reason)
+    out = BurnOutcome(r3, v3, np.where(sub.ok[:, None], v_new, v3), out.coast, out.fails)
+    fails.add(~out.fails.ok, out.fails.reason)
+    new, vec, dv, dvm, prop, bt = _price(batch, out, _engine(lower, ctx), margin, ctx, fails,
+                                         lower.name)
+    rows.append(Row(index, lower.name, "burn", "periapsis", new, vec, dv, dvm, prop, bt,
+                    out.coast, out.coast, _engine(lower, ctx), margin))
+    return new, rows
+
+
+# --- the other steps -----------------------------------------------------------------
+
+
+def _coast(step: Coast, index: int, batch: Batch, ctx: Context, fails: Failures):
+    mu = ctx.mu
+    if step.mode == "for":
+        r, v, ok = kepler.propagate(batch.r, batch.v, mu, np.full(batch.size, step.duration))
+        fails.add(~ok, lambda i: ("the coast could not be propagated", None))
+        dt = np.full(batch.size, step.duration)
+        at = "for"
+    elif step.mode == "to":
+        r, v, dt = goto(step.place, batch.r, batch.v, mu, fails)
+        at = step.place.label()
+    else:
+        el = elements_from_state(batch.r, batch.v, mu)
+        fails.add(~el.closed, lambda i: (
+            f"an open orbit (eccentricity {el.ecc[i]:.6f}) has no revolutions to coast",
+            "coast `for` a time instead"))
+        r, v = batch.r, batch.v
+        dt = np.where(el.closed, el.period * step.revs, 0.0)
+        at = f"{step.revs} rev"
+    ok = fails.ok
+    new = replace(batch, r=np.where(ok[:, None], r, batch.r),
+                  v=np.where(ok[:, None], v, batch.v), t=batch.t + dt)
+    _check_surface(new.r, new.v, ctx, fails, step.name)
+    return new, [Row(index, step.name, "coast", at, new, coast_time=dt, duration=dt)]
+
+
+def _drop(step: Drop, index: int, batch: Batch, ctx: Context, fails: Failures):
+    dry = batch.mass - batch.propellant
+    fails.add(step.mass >= dry, lambda i: (
+        f"{step.name} drops {step.mass:.3f} kg but the craft holds only {dry[i]:.3f} kg "
+        "besides its propellant",
+        "drop less, or check the craft's dry mass"))
+    new = replace(batch, mass=np.where(fails.ok, batch.mass - step.mass, batch.mass))
+    return new, [Row(index, step.name, "drop", "here", new)]
+
+
+def measure(kind: str, batch: Batch, ctx: Context) -> np.ndarray:
+    """The value an expectation of ``kind`` reads from the state (internal units)."""
+    if kind in ("mass", "propellant"):
+        return batch.mass if kind == "mass" else batch.propellant
+    el = elements_from_state(batch.r, batch.v, ctx.mu)
+    return {
+        "periapsis": el.periapsis,
+        "apoapsis": el.apoapsis,
+        "sma": el.sma,
+        "ecc": el.ecc,
+        "inclination": el.inclination,
+        "raan": el.raan,
+        "argp": el.argp,
+        "period": el.period,
+    }[kind]
+
+
+ANGLES = {"inclination", "raan", "argp"}
+
+
+def _expect(step: Expect, index: int, batch: Batch, ctx: Context, fails: Failures):
+    results = []
+    ok = np.ones(batch.size, dtype=bool)
+    for check in step.checks:
+        if check.kind == "circular":
+            pe, ap = measure("periapsis", batch, ctx), measure("apoapsis", batch, ctx)
+            err = np.maximum(np.abs(pe - check.target), np.abs(ap - check.target))
+            actual = np.where(np.abs(pe - check.target) >= np.abs(ap - check.target), pe, ap)
+            passed = err <= check.tolerance
+        else:
+            actual = measure(check.kind, batch, ctx)
+            if check.comparator == "at least":
+                passed = actual >= check.target
+            elif check.comparator == "at most":
+                passed = actual <= check.target
+            else:
+                diff = actual - check.target
+                if check.kind in ANGLES:
+                    diff = np.mod(diff + np.pi, TWO_PI) - np.pi
+                passed = np.abs(diff) <= check.tolerance
+        results.append(CheckResult(check.kind, check.comparator, check.target, check.tolerance,
+                                   actual, passed))
+        ok &= passed
+    new = replace(batch, expect_ok=batch.expect_ok & ok)
+    return new, [Row(index, step.name, "expect", "here", new, checks=results)]
+
+
+def apply(step: Step, index: int, batch: Batch, ctx: Context) -> tuple[Batch, list[Row], Failures]:
+    """Move the whole batch through one step."""
+    fails = Failures(batch.size)
+    if isinstance(step, Burn):
+        new, row = _burn_rows(step, index, step.name, batch, ctx, fails)
+        rows = [row]
+    elif isinstance(step, Transfer):
+        new, rows = _transfer(step, index, batch, ctx, fails)
+    elif isinstance(step, Coast):
+        new, rows = _coast(step, index, batch, ctx, fails)
+    elif isinstance(step, Drop):
+        new, rows = _drop(step, index, batch, ctx, fails)
+    elif isinstance(step, Expect):
+        new, rows = _expect(step, index, batch, ctx, fails)
+    else:  # pragma: no cover - lowering makes only the kinds above
+        raise TypeError(type(step))
+    return new, rows, fails
+
+
+@dataclass
+class Result:
+    program: Program
+    rows: list[Row]
+    final: Batch
+    error: PlanError | None = None
+
+    @property
+    def ok(self) -> bool:
+        return self.error is None
+
+
+def run(program: Program, strict: bool = False) -> Result:
+    """Price one plan (a batch of one).  The first failure stops the chain.
+
+    With ``strict`` the failure is raised as a PlanError; otherwise it is kept in the
+    result next to the rows computed so far.
+    """
+    ctx = context_for(program)
+    batch = start_batch(program)
+    start_fails = Failures(1)
+    _check_surface(batch.r, batch.v, ctx, start_fails, "the start")
+    rows: list[Row] = []
+    error = None
+    if not start_fails.ok[0]:
+        message, hint = start_fails.reason(0)
+        error = PlanError(message, None, program.source, hint)
+    else:
+        for index, step in enumerate(program.steps):
+            new, step_rows, fails = apply(step, index, batch, ctx)
+            if not fails.ok[0]:
+                message, hint = fails.reason(0)
+                if step.name not in message:
+                    message = f"{step.name}: {message}"
+                error = PlanError(message, step.span, program.source, hint)
+                break
+            rows.extend(step_rows)
+            batch = new
+    if error is not None and strict:
+        raise error
+    return Result(program, rows, batch, error)

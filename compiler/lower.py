@@ -1,0 +1,443 @@
+"""Lowering: the syntax tree of a plan becomes a Program of typed steps.
+
+Names are resolved here (the body, the engines), required settings are checked, altitudes
+become radii and every number becomes an internal unit.  Anything wrong is a PlanError
+at the offending node, with what would work.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from apsidal.lang import syntax as ast
+from apsidal.lang.errors import PlanError, Span, did_you_mean
+
+from . import bodies
+from .state import state_from_elements
+from .steps import (
+    HERE,
+    Burn,
+    CheckSpec,
+    Coast,
+    Craft,
+    Drop,
+    EngineSpec,
+    Expect,
+    Place,
+    Program,
+    Step,
+    Transfer,
+)
+
+# Tolerance of `expect ... ` without `within`, by what is checked (internal units).
+DEFAULT_TOLERANCE = {
+    "periapsis": 1.0, "apoapsis": 1.0, "circular": 1.0, "sma": 1.0,  # km
+    "ecc": 1e-4,
+    "inclination": np.radians(0.01), "raan": np.radians(0.01), "argp": np.radians(0.01),
+    "period": 1.0,  # s
+    "mass": 0.1, "propellant": 0.1,  # kg
+}
+
+
+def _err(message: str, node, hint: str | None = None) -> PlanError:
+    span = node if isinstance(node, Span) or node is None else node.span
+    return PlanError(message, span, None, hint)
+
+
+def _fields(fields, allowed: dict[str, str], what: str) -> dict[str, ast.Field]:
+    """Fields by key; duplicates and unknown keys are errors."""
+    seen: dict[str, ast.Field] = {}
+    for f in fields:
+        if f.key not in allowed:
+            guess = did_you_mean(f.key, allowed)
+            raise _err(f"{what} has no field `{f.key}`", f,
+                       f"did you mean `{guess}`?" if guess else
+                       "expected one of: " + ", ".join(f"`{k}`" for k in allowed))
+        if f.key in seen:
+            raise _err(f"`{f.key}` is given twice in {what}", f,
+                       f"the first is on line {seen[f.key].span.line}; keep one")
+        seen[f.key] = f
+    return seen
+
+
+class Lowerer:
+    def __init__(self, plan: ast.Plan):
+        self.plan = plan
+        self.defined: dict[str, bodies.Body] = {}
+        self.body: bodies.Body | None = None
+        self.craft: Craft | None = None
+        self.title = ""
+        self.margin = 0.0
+        self.reserve = 0.0
+        self.start: ast.Start | None = None
+        self.names: dict[str, Span] = {}
+        self.counts: dict[str, int] = {}
+
+    # --- plan-level statements ---------------------------------------------------------
+
+    def lower(self) -> Program:
+        steps_ast = []
+        singles: dict[str, Span] = {}
+        for st in self.plan.statements:
+            if isinstance(st, ast.STEP_TYPES):
+                steps_ast.append(st)
+                continue
+            key = {ast.PlanTitle: "plan", ast.Around: "around", ast.CraftDef: "craft",
+                   ast.Start: "start"}.get(type(st))
+            if isinstance(st, ast.Setting):
+                key = st.key
+            if key is not None:
+                if key in singles:
+                    raise _err(f"`{key}` is given twice", st,
+                               f"the first is on line {singles[key].line}; keep one")
+                singles[key] = st.span
+                if key == "start" and steps_ast:
+                    raise _err("`start` must come before the first step", st,
+                               "move the start orbit above the burns")
+            self._statement(st)
+        if not self.plan.statements:
+            raise PlanError("the plan is empty", None, None,
+                            "a plan needs at least `around BODY`, a `craft { ... }` block "
+                            "and a `start` orbit")
+        if self.body is None:
+            raise _err("the plan does not say which body it flies around", None,
+                       "add a line such as `around earth`")
+        if self.craft is None:
+            raise _err("the plan has no craft", None,
+                       "add a `craft NAME { dry 500 kg  propellant 200 kg  "
+                       "engine main isp 300 s thrust 400 N }` block")
+        if self.start is None:
+            raise _err("the plan has no start orbit", None,
+                       "add a line such as `start circular 400 km inclination 51.6 deg`")
+        r, v = self._start_state(self.start)
+        steps = tuple(self._step(s) for s in steps_ast)
+        return Program(self.title, self.body, self.craft, self.margin, self.reserve, r, v,
+                       steps, self.plan.source, self.plan)
+
+    def _statement(self, st) -> None:
+        if isinstance(st, ast.PlanTitle):
+            self.title = st.title
+        elif isinstance(st, ast.BodyDef):
+            self._body_def(st)
+        elif isinstance(st, ast.Around):
+            self._around(st)
+        elif isinstance(st, ast.CraftDef):
+            self._craft(st)
+        elif isinstance(st, ast.Setting):
+            if st.key == "margin":
+                self.margin = st.value.internal()
+            else:
+                self.reserve = st.value.internal()
+        elif isinstance(st, ast.Start):
+            self.start = st
+
+    def _body_def(self, st: ast.BodyDef) -> None:
+        f = _fields(st.fields, {"gm": "", "radius": "", "soi": "", "j2": ""},
+                    f"body `{st.name.text}`")
+        for need in ("gm", "radius"):
+            if need not in f:
+                raise _err(f"body `{st.name.text}` needs `{need}`", st,
+                           "e.g. `body rock { gm 17.3 km3/s2 radius 262 km }`")
+        gm, radius = f["gm"].value.internal(), f["radius"].value.internal()
+        for key, val in (("gm", gm), ("radius", radius)):
+            if not val > 0:
+                raise _err(f"body `{key}` must be positive", f[key])
+        soi = f["soi"].value.internal() if "soi" in f else None
+        if soi is not None and soi <= radius:
+            raise _err(f"the sphere of influence ({soi:g} km) must be larger than the "
+                       f"radius ({radius:g} km)", f["soi"])
+        j2 = f["j2"].value.value if "j2" in f else None
+        self.defined[st.name.text] = bodies.Body(st.name.text, gm, radius, j2, soi, None,
+                                                 f"defined in the plan, line {st.span.line}")
+
+    def _around(self, st: ast.Around) -> None:
+        name = st.body.text
+        body = self.defined.get(name) or bodies.lookup(name)
+        if body is None:
+            pool = list(self.defined) + bodies.names()
+            guess = did_you_mean(name, pool)
+            raise _err(f"unknown body `{name}`", st.body,
+                       f"did you mean `{guess}`?" if guess else
+                       "define it first with `body NAME { gm ... radius ... }`; the catalogue "
+                       "has " + ", ".join(bodies.names()))
+        self.body = body
+
+    def _craft(self, st: ast.CraftDef) -> None:
+        f = _fields(st.fields, {"dry": "", "propellant": ""}, f"craft `{st.name.text}`")
+        for need in ("dry", "propellant"):
+            if need not in f:
+                raise _err(f"craft `{st.name.text}` needs `{need}`", st,
+                           f"add `{need} 100 kg` inside the braces")
+        dry, prop = f["dry"].value.internal(), f["propellant"].value.internal()
+        if not dry > 0:
+            raise _err("the dry mass must be positive", f["dry"])
+        if prop < 0:
+            raise _err("the propellant mass cannot be negative", f["propellant"])
+        if not st.engines:
+            raise _err(f"craft `{st.name.text}` has no engine", st,
+                       "add `engine main isp 300 s thrust 400 N` inside the braces")
+        engines = []
+        for e in st.engines:
+            ef = _fields(e.fields, {"isp": "", "thrust": ""}, f"engine `{e.name.text}`")
+            for need in ("isp", "thrust"):
+                if need not in ef:
+                    raise _err(f"engine `{e.name.text}` needs `{need}`", e,
+                               "e.g. `engine main isp 320 s thrust 440 N`")
+            isp, thrust = ef["isp"].value.internal(), ef["thrust"].value.internal()
+            if not isp > 0 or not thrust > 0:
+                raise _err("an engine's isp and thrust must be positive", e)
+            if any(x.name == e.name.text for x in engines):
+                raise _err(f"engine `{e.name.text}` is defined twice", e.name)
+            engines.append(EngineSpec(e.name.text, isp, thrust))
+        self.craft = Craft(st.name.text, dry, prop, tuple(engines))
+
+    # --- the start orbit ---------------------------------------------------------------
+
+    def _radius(self, d: ast.Distance) -> float:
+        value = d.quantity.internal()
+        return value if d.is_radius else value + self.body.radius
+
+    def _start_state(self, st: ast.Start):
+        angles = {"inclination": "", "raan": "", "argp": "", "anomaly": ""}
+        if st.form == "circular":
+            f = _fields(st.fields, {"circular": "", **angles}, "`start circular`")
+            rp = ra = self._radius(f["circular"].value)
+            shape_node = f["circular"]
+        else:
+            f = _fields(st.fields, {"periapsis": "", "apoapsis": "", "sma": "", "ecc": "",
+                                    "vinf": "", **angles}, "`start orbit`")
+            rp, ra = self._start_shape(st, f)
+            shape_node = f.get("periapsis") or f.get("sma") or st
+        if not rp > self.body.radius:
+            raise _err(f"the start orbit's periapsis ({rp - self.body.radius:.3f} km altitude) "
+                       "is under the surface", shape_node,
+                       "altitudes are above the equatorial radius; `radius X` gives a radius")
+        get = lambda k: f[k].value.internal() if k in f else 0.0  # noqa: E731
+        inc, raan, argp, nu = get("inclination"), get("raan"), get("argp"), get("anomaly")
+        if not 0.0 <= inc <= np.pi + 1e-12:
+            raise _err("inclination must be between 0 and 180 deg", f["inclination"])
+        if ra is not None and np.isfinite(ra):
+            sma, ecc = 0.5 * (rp + ra), (ra - rp) / (ra + rp)
+        else:
+            sma, ecc = self._open_shape
+        if ecc >= 1.0:
+            limit = np.arccos(-1.0 / ecc)
+            wrapped = (nu + np.pi) % (2 * np.pi) - np.pi
+            if abs(wrapped) >= limit:
+                raise _err(f"true anomaly {np.degrees(nu):g} deg is beyond this open orbit's "
+                           f"asymptote (|anomaly| < {np.degrees(limit):.3f} deg)",
+                           f.get("anomaly", st))
+            nu = wrapped
+        equatorial = inc < 1e-12 or inc > np.pi - 1e-12
+        if equatorial:
+            argp = (argp + raan) if inc < np.pi / 2 else (argp - raan)
+            raan = 0.0
+        if ecc == 0.0:
+            nu, argp = nu + argp, 0.0
+        r, v = state_from_elements(self.body.gm, sma, ecc, inc, raan, argp, nu)
+        return r[0], v[0]
+
+    def _start_shape(self, st, f):
+        keys = set(f) - {"inclination", "raan", "argp", "anomaly"}
+        R = self.body.radius
+        self._open_shape = None
+        if keys == {"periapsis", "apoapsis"}:
+            rp, ra = self._radius(f["periapsis"].value), self._radius(f["apoapsis"].value)
+            if rp > ra:
+                raise _err("the periapsis is above the apoapsis", f["periapsis"],
+                           "swap the two values")
+            return rp, ra
+        if keys == {"sma", "ecc"}:
+            a, e = f["sma"].value.internal(), f["ecc"].value.value
+            if e < 0:
+                raise _err("eccentricity cannot be negative", f["ecc"])
+            if e >= 1.0:
+                if a >= 0:
+                    raise _err("an open orbit (ecc >= 1) needs a negative sma", f["sma"],
+                               "or give `periapsis` and `ecc` (or `vinf`) instead")
+                if e == 1.0:
+                    raise _err("a parabolic start (ecc exactly 1) is not supported", f["ecc"],
+                               "give an eccentricity just above or below 1")
+                self._open_shape = (a, e)
+                return a * (1 - e), None
+            if a <= 0:
+                raise _err("a closed orbit needs a positive sma", f["sma"])
+            return a * (1 - e), a * (1 + e)
+        if keys == {"periapsis", "ecc"} or keys == {"periapsis", "vinf"}:
+            rp = self._radius(f["periapsis"].value)
+            if "ecc" in f:
+                e = f["ecc"].value.value
+                if e < 0:
+                    raise _err("eccentricity cannot be negative", f["ecc"])
+                if e == 1.0:
+                    raise _err("a parabolic start (ecc exactly 1) is not supported", f["ecc"],
+                               "give an eccentricity just above or below 1")
+            else:
+                vinf = f["vinf"].value.internal()
+                if not vinf > 0:
+                    raise _err("vinf must be positive", f["vinf"])
+                e = 1.0 + rp * vinf**2 / self.body.gm
+            a = rp / (1.0 - e)
+            if e < 1.0:
+                return rp, a * (1 + e)
+            self._open_shape = (a, e)
+            return rp, None
+        given = ", ".join(f"`{k}`" for k in sorted(keys)) or "nothing"
+        raise _err(f"`start orbit` needs its size and shape; got {given}", st,
+                   "give `periapsis` and `apoapsis`, `sma` and `ecc`, or `periapsis` with "
+                   "`ecc` or `vinf` (altitudes above the equatorial radius "
+                   f"{R:g} km)")
+
+    # --- steps -------------------------------------------------------------------------
+
+    def _name(self, node, kind: str) -> str:
+        self.counts[kind] = self.counts.get(kind, 0) + 1
+        if node.name is None:
+            name = f"{kind}-{self.counts[kind]}"
+        else:
+            name = node.name.text
+        if name in self.names:
+            raise _err(f"step name `{name}` is used twice", node.name or node,
+                       f"the first is on line {self.names[name].line}; names must be unique "
+                       "because `diff` matches steps by name")
+        self.names[name] = node.span
+        return name
+
+    def _place(self, where: ast.Where | None) -> Place:
+        if where is None:
+            return HERE
+        angle = where.angle.internal() if where.angle is not None else None
+        return Place(where.kind, angle)
+
+    def _options(self, node):
+        engine, margin = None, self.margin
+        for opt in node.options:
+            if opt.key == "using":
+                engine = self.craft.engine(opt.value.text)
+                if engine is None:
+                    names = [e.name for e in self.craft.engines]
+                    guess = did_you_mean(opt.value.text, names)
+                    raise _err(f"craft `{self.craft.name}` has no engine `{opt.value.text}`",
+                               opt.value, f"did you mean `{guess}`?" if guess else
+                               "its engines are " + ", ".join(f"`{n}`" for n in names))
+            else:
+                margin = opt.value.internal()
+        return engine, margin
+
+    def _goals(self, node) -> dict:
+        goals: dict = {}
+        for g in node.goals:
+            if g.kind in goals:
+                raise _err(f"`{g.kind}` is given twice in one step", g)
+            goals[g.kind] = g
+        return goals
+
+    def _step(self, node) -> Step:
+        if isinstance(node, ast.Burn):
+            return self._burn(node)
+        if isinstance(node, ast.Transfer):
+            return self._transfer(node)
+        if isinstance(node, ast.Coast):
+            name = self._name(node, "coast")
+            if node.mode == "for":
+                return Coast(name, "for", duration=node.duration.internal(), span=node.span)
+            if node.mode == "to":
+                return Coast(name, "to", place=self._place(node.where), span=node.span)
+            return Coast(name, "rev", revs=int(node.duration.value), span=node.span)
+        if isinstance(node, ast.Drop):
+            return Drop(self._name(node, "drop"), node.mass.internal(), node.span)
+        if isinstance(node, ast.Expect):
+            return self._expect(node)
+        raise TypeError(type(node))  # pragma: no cover
+
+    def _burn(self, node: ast.Burn) -> Burn:
+        name = self._name(node, "burn")
+        goals = self._goals(node)
+        engine, margin = self._options(node)
+        place = self._place(node.where)
+        explicit = [k for k in ("along", "cross", "radial") if k in goals]
+        if explicit:
+            other = [k for k in goals if k not in ("along", "cross", "radial")]
+            if other:
+                raise _err("a burn gives either goals or explicit components, not both",
+                           goals[other[0]], "split it into two burns")
+            vec = tuple(goals[k].value.internal() if k in goals else 0.0
+                        for k in ("along", "cross", "radial"))
+            return Burn(name, place, vector=vec, engine=engine, margin=margin, span=node.span)
+        if "circular" in goals and ("periapsis" in goals or "apoapsis" in goals):
+            raise _err("`circular` already sets both apsides", goals["circular"],
+                       "drop `circular`, or drop the apsis goal")
+        kw: dict = {}
+        for k in ("periapsis", "apoapsis"):
+            if k in goals:
+                kw[k] = self._radius(goals[k].value)
+                if kw[k] <= self.body.radius:
+                    raise _err(f"the {k} target is under the surface", goals[k])
+        if "circular" in goals:
+            kw["circular"] = True
+            if goals["circular"].value is not None:
+                kw["circular_radius"] = self._radius(goals["circular"].value)
+        for k in ("inclination", "raan"):
+            if k in goals:
+                kw[k] = goals[k].value.internal()
+        if "inclination" in kw and not 0 <= kw["inclination"] <= np.pi:
+            raise _err("inclination must be between 0 and 180 deg", goals["inclination"])
+        return Burn(name, place, engine=engine, margin=margin, span=node.span, **kw)
+
+    def _transfer(self, node: ast.Transfer) -> Transfer:
+        name = self._name(node, "transfer")
+        goals = self._goals(node)
+        engine, margin = self._options(node)
+        place = self._place(node.where)
+        bad = [k for k in goals if k not in ("circular", "inclination", "raan")]
+        if bad:
+            raise _err(f"a transfer takes `circular`, `inclination to` and `raan to`, "
+                       f"not `{bad[0]}`", goals[bad[0]],
+                       "use a `burn` for single apsis changes or explicit components")
+        inc = goals["inclination"].value.internal() if "inclination" in goals else None
+        raan = goals["raan"].value.internal() if "raan" in goals else None
+        via = self._radius(node.via) if node.via is not None else None
+        if "circular" in goals:
+            if goals["circular"].value is None:
+                raise _err("a transfer needs the target altitude", goals["circular"],
+                           "e.g. `transfer geo: circular 35786 km`")
+            radius = self._radius(goals["circular"].value)
+            if radius <= self.body.radius:
+                raise _err("the transfer's target is under the surface", goals["circular"])
+            if via is not None and via < radius:
+                raise _err("a bi-elliptic transfer's `via apoapsis` must lie beyond the "
+                           "target orbit", node.via,
+                           f"give an apoapsis above {radius - self.body.radius:g} km")
+            form = "bielliptic" if via is not None else "hohmann"
+            return Transfer(name, place, form, radius, via, inc, raan, None, engine, margin,
+                            node.span)
+        if inc is None and raan is None:
+            raise _err("a transfer needs a target: `circular ALT` and/or a plane", node,
+                       "e.g. `transfer geo: circular 35786 km` or "
+                       "`transfer turn: inclination to 90 deg via apoapsis 40000 km`")
+        if via is None:
+            raise _err("a plane-change transfer needs `via apoapsis ALT`", node,
+                       "add the raised apoapsis, or use `burn NAME at node: inclination to ...`")
+        return Transfer(name, place, "plane-change", None, via, inc, raan, None, engine, margin,
+                        node.span)
+
+    def _expect(self, node: ast.Expect) -> Expect:
+        name = self._name(node, "expect")
+        checks = []
+        for c in node.checks:
+            if c.kind in ("periapsis", "apoapsis", "circular"):
+                target = self._radius(c.value)
+            else:
+                target = c.value.internal() if c.value.unit else c.value.value
+            tol = (c.tolerance.internal() if c.tolerance is not None
+                   else DEFAULT_TOLERANCE[c.kind])
+            checks.append(CheckSpec(c.kind, target, c.comparator, tol, c.span))
+        return Expect(name, tuple(checks), node.span)
+
+
+def lower(plan: ast.Plan) -> Program:
+    """Lower a parsed plan; PlanErrors come back located in the plan's source."""
+    try:
+        return Lowerer(plan).lower()
+    except PlanError as err:
+        raise err.located(plan.source) from None

@@ -1,0 +1,1 @@
+"""Lint rules for `apsidal check`, one module each, collected in ``RULES``."""

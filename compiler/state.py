@@ -1,0 +1,177 @@
+"""Orbit state and classical elements, batched over a leading axis.
+
+The state of record is position and velocity (km, km/s) in the body's inertial frame,
+z along the spin axis.  Elements are derived from it, robustly:
+
+* circular orbits (e < ``CIRCULAR_ECC``) have argp = 0 and the anomaly is the argument
+  of latitude, measured from the ascending node;
+* equatorial orbits (i within ``EQUATORIAL_RAD`` of 0 or 180 deg) have raan = 0 and
+  angles measured from the x axis, so a circular equatorial orbit's anomaly is its true
+  longitude;
+* every in-plane angle is measured in the direction of motion, so retrograde orbits need
+  no special case;
+* hyperbolic orbits have a negative sma and an infinite apoapsis and period.
+
+>>> import numpy as np
+>>> r, v = state_from_elements(398600.4418, np.array([7000.0]), np.array([0.1]),
+...                            np.radians([30.0]), np.radians([40.0]), np.radians([50.0]),
+...                            np.radians([60.0]))
+>>> el = elements_from_state(r, v, 398600.4418)
+>>> [round(float(x), 9) for x in (el.sma[0], el.ecc[0], np.degrees(el.argp[0]))]
+[7000.0, 0.1, 50.0]
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+TWO_PI = 2.0 * np.pi
+CIRCULAR_ECC = 1e-9
+EQUATORIAL_RAD = 1e-9
+Z = np.array([0.0, 0.0, 1.0])
+X = np.array([1.0, 0.0, 0.0])
+
+
+def norm(a: np.ndarray) -> np.ndarray:
+    return np.sqrt(np.einsum("...i,...i->...", a, a))
+
+
+def dot(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    return np.einsum("...i,...i->...", a, b)
+
+
+def unit(a: np.ndarray) -> np.ndarray:
+    n = norm(a)
+    return a / np.where(n > 0, n, 1.0)[..., None]
+
+
+def signed_angle(a: np.ndarray, b: np.ndarray, axis: np.ndarray) -> np.ndarray:
+    """Angle from ``a`` to ``b`` about ``axis`` (right hand), in [0, 2 pi)."""
+    ang = np.arctan2(dot(axis, np.cross(a, b)), dot(a, b))
+    return np.mod(ang, TWO_PI)
+
+
+@dataclass(frozen=True)
+class Elements:
+    """Classical elements, each an array over the batch (km, rad, s)."""
+
+    sma: np.ndarray
+    ecc: np.ndarray
+    inclination: np.ndarray
+    raan: np.ndarray
+    argp: np.ndarray
+    anomaly: np.ndarray  # true anomaly; argument of latitude / true longitude if circular
+    periapsis: np.ndarray  # radius
+    apoapsis: np.ndarray  # radius; inf for open orbits
+    p: np.ndarray  # semi-latus rectum
+    period: np.ndarray  # inf for open orbits
+    energy: np.ndarray  # specific orbital energy, km2/s2
+
+    @property
+    def circular(self) -> np.ndarray:
+        return self.ecc < CIRCULAR_ECC
+
+    @property
+    def equatorial(self) -> np.ndarray:
+        return (self.inclination < EQUATORIAL_RAD) | (self.inclination > np.pi - EQUATORIAL_RAD)
+
+    @property
+    def closed(self) -> np.ndarray:
+        return self.ecc < 1.0
+
+
+@dataclass(frozen=True)
+class Frame:
+    """The orbit's own directions: normal, node line, periapsis line (reference if none)."""
+
+    h: np.ndarray  # unit angular momentum
+    node: np.ndarray  # unit ascending-node direction (x axis for equatorial orbits)
+    periapsis: np.ndarray  # unit eccentricity direction (node for circular orbits)
+    e_vec: np.ndarray  # eccentricity vector itself
+
+
+def frame(r: np.ndarray, v: np.ndarray, mu: float | np.ndarray) -> Frame:
+    mu = np.asarray(mu, dtype=float)[..., None] if np.ndim(mu) else mu
+    hvec = np.cross(r, v)
+    h = unit(hvec)
+    nvec = np.cross(np.broadcast_to(Z, hvec.shape), hvec)
+    equatorial = norm(nvec) <= np.sin(EQUATORIAL_RAD) * norm(hvec)
+    node = np.where(equatorial[..., None], X, unit(nvec))
+    rn = norm(r)[..., None]
+    e_vec = ((dot(v, v)[..., None] - mu / rn) * r - dot(r, v)[..., None] * v) / mu
+    circular = norm(e_vec) < CIRCULAR_ECC
+    periapsis = np.where(circular[..., None], node, unit(e_vec))
+    return Frame(h=h, node=node, periapsis=periapsis, e_vec=e_vec)
+
+
+def elements_from_state(r: np.ndarray, v: np.ndarray, mu: float) -> Elements:
+    r = np.atleast_2d(np.asarray(r, dtype=float))
+    v = np.atleast_2d(np.asarray(v, dtype=float))
+    f = frame(r, v, mu)
+    hvec = np.cross(r, v)
+    hmag = norm(hvec)
+    rmag = norm(r)
+    energy = 0.5 * dot(v, v) - mu / rmag
+    ecc = norm(f.e_vec)
+    p = hmag**2 / mu
+    with np.errstate(divide="ignore", invalid="ignore"):
+        sma = np.where(np.abs(energy) > 0, -mu / (2.0 * energy), np.inf)
+    inc = np.arccos(np.clip(f.h[..., 2], -1.0, 1.0))
+    raan = np.mod(np.arctan2(f.node[..., 1], f.node[..., 0]), TWO_PI)
+    argp = signed_angle(f.node, f.periapsis, f.h)
+    anomaly = signed_angle(f.periapsis, r, f.h)
+    periapsis = p / (1.0 + ecc)
+    closed = ecc < 1.0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        apoapsis = np.where(closed, p / np.where(closed, 1.0 - ecc, 1.0), np.inf)
+        period = np.where(closed, TWO_PI * np.sqrt(np.abs(sma) ** 3 / mu), np.inf)
+    return Elements(sma, ecc, inc, raan, argp, anomaly, periapsis, apoapsis, p, period, energy)
+
+
+def plane_normal(inclination: np.ndarray, raan: np.ndarray) -> np.ndarray:
+    """Unit angular-momentum direction of the plane with these angles."""
+    si = np.sin(inclination)
+    return np.stack([np.sin(raan) * si, -np.cos(raan) * si, np.cos(inclination)], axis=-1)
+
+
+def state_from_elements(
+    mu: float,
+    sma: np.ndarray,
+    ecc: np.ndarray,
+    inclination: np.ndarray,
+    raan: np.ndarray,
+    argp: np.ndarray,
+    anomaly: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Position and velocity from elements in the conventions of this module.
+
+    ``sma`` is negative for a hyperbola.  For a circular orbit pass argp = 0 and the
+    argument of latitude as ``anomaly``; for an equatorial one raan = 0.
+    """
+    sma, ecc, inclination, raan, argp, anomaly = np.broadcast_arrays(
+        *(np.atleast_1d(np.asarray(x, dtype=float)) for x in
+          (sma, ecc, inclination, raan, argp, anomaly)))
+    p = sma * (1.0 - ecc**2)
+    h = np.sqrt(mu * p)
+    node = np.stack([np.cos(raan), np.sin(raan), np.zeros_like(raan)], axis=-1)
+    normal = plane_normal(inclination, raan)
+    in_plane = np.cross(normal, node)
+    u = argp + anomaly
+    rhat = np.cos(u)[..., None] * node + np.sin(u)[..., None] * in_plane
+    that = np.cross(normal, rhat)
+    rmag = p / (1.0 + ecc * np.cos(anomaly))
+    vr = mu / h * ecc * np.sin(anomaly)
+    vt = h / rmag
+    r = rmag[..., None] * rhat
+    v = vr[..., None] * rhat + vt[..., None] * that
+    return r, v
+
+
+def local_frame(r: np.ndarray, v: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The burn frame: along (velocity), cross (orbit normal r x v), radial (v x (r x v))."""
+    along = unit(v)
+    cross = unit(np.cross(r, v))
+    radial = np.cross(along, cross)
+    return along, cross, radial

@@ -1,0 +1,166 @@
+"""The lowered plan: a craft, a start state and an ordered list of typed steps.
+
+All numbers are in internal units (km, km/s, s, kg, N, rad).  Radii, not altitudes:
+lowering adds the body's equatorial radius.  Each step keeps the span of the statement
+it came from, so a failure deep in the evaluator points at the line that caused it.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+
+from apsidal.lang.errors import Source, Span
+from apsidal.lang.syntax import Plan
+
+from .bodies import Body
+
+G0 = 9.80665  # standard gravity, m/s^2 (CGPM 1901, exact)
+
+
+@dataclass(frozen=True)
+class EngineSpec:
+    name: str
+    isp: float  # s
+    thrust: float  # N
+
+    @property
+    def exhaust_speed(self) -> float:
+        """Effective exhaust speed in km/s."""
+        return self.isp * G0 / 1000.0
+
+
+@dataclass(frozen=True)
+class Craft:
+    name: str
+    dry: float  # kg
+    propellant: float  # kg
+    engines: tuple[EngineSpec, ...]
+
+    @property
+    def default_engine(self) -> EngineSpec:
+        return self.engines[0]
+
+    def engine(self, name: str) -> EngineSpec | None:
+        return next((e for e in self.engines if e.name == name), None)
+
+
+@dataclass(frozen=True)
+class Place:
+    """Where a burn happens or a coast ends."""
+
+    kind: str  # here | periapsis | apoapsis | ascending node | descending node | node | anomaly
+    angle: float | None = None  # rad, for anomaly
+
+    def label(self) -> str:
+        if self.kind == "anomaly":
+            return f"anomaly {np.degrees(self.angle):g} deg"
+        return self.kind
+
+
+HERE = Place("here")
+
+
+@dataclass(frozen=True)
+class Burn:
+    name: str
+    place: Place
+    periapsis: float | None = None  # target radius, km
+    apoapsis: float | None = None
+    circular: bool = False
+    circular_radius: float | None = None
+    inclination: float | None = None  # rad
+    raan: float | None = None
+    normal: tuple[float, float, float] | None = None  # explicit target plane normal
+    vector: tuple[float, float, float] | None = None  # along, cross, radial, km/s
+    engine: EngineSpec | None = None
+    margin: float = 0.0
+    span: Span | None = None
+    kind: str = field(default="burn", init=False)
+
+    @property
+    def changes_plane(self) -> bool:
+        return self.inclination is not None or self.raan is not None or self.normal is not None
+
+    @property
+    def changes_shape(self) -> bool:
+        return self.circular or self.periapsis is not None or self.apoapsis is not None
+
+
+@dataclass(frozen=True)
+class Transfer:
+    """A composite manoeuvre that expands into burns named NAME/1, NAME/2, ..."""
+
+    name: str
+    place: Place
+    form: str  # hohmann | bielliptic | plane-change
+    radius: float | None = None  # target circular radius, km
+    via: float | None = None  # intermediate apoapsis radius, km
+    inclination: float | None = None
+    raan: float | None = None
+    split: float | None = None  # fixed share of the plane change at the first burn
+    engine: EngineSpec | None = None
+    margin: float = 0.0
+    span: Span | None = None
+    kind: str = field(default="transfer", init=False)
+
+    @property
+    def changes_plane(self) -> bool:
+        return self.inclination is not None or self.raan is not None
+
+
+@dataclass(frozen=True)
+class Coast:
+    name: str
+    mode: str  # for | to | rev
+    duration: float | None = None  # s
+    place: Place | None = None
+    revs: int | None = None
+    span: Span | None = None
+    kind: str = field(default="coast", init=False)
+
+
+@dataclass(frozen=True)
+class Drop:
+    name: str
+    mass: float
+    span: Span | None = None
+    kind: str = field(default="drop", init=False)
+
+
+@dataclass(frozen=True)
+class CheckSpec:
+    kind: str  # periapsis apoapsis circular sma ecc inclination raan argp period mass propellant
+    target: float  # internal units; radii for periapsis/apoapsis/circular
+    comparator: str  # within | at least | at most
+    tolerance: float
+    span: Span | None = None
+
+
+@dataclass(frozen=True)
+class Expect:
+    name: str
+    checks: tuple[CheckSpec, ...]
+    span: Span | None = None
+    kind: str = field(default="expect", init=False)
+
+
+Step = Burn | Transfer | Coast | Drop | Expect
+
+
+@dataclass(frozen=True)
+class Program:
+    title: str
+    body: Body
+    craft: Craft
+    margin: float  # fraction
+    reserve: float  # km/s
+    start_r: np.ndarray  # (3,)
+    start_v: np.ndarray  # (3,)
+    steps: tuple[Step, ...]
+    source: Source
+    plan: Plan | None = None
+
+    def with_steps(self, steps) -> "Program":
+        return replace(self, steps=tuple(steps))

@@ -1,0 +1,1 @@
+"""The apsidal plan language: grammar, parser, syntax tree, units, errors, formatter."""

@@ -1,0 +1,228 @@
+"""The syntax tree of a plan: plain frozen dataclasses, each with its source span.
+
+Nothing is evaluated here.  The compiler lowers these nodes to steps; the formatter
+turns them back into canonical text; the checks and the diff read them for names and
+spans.  Keywords are kept as the lowercase words of the language (``"apoapsis"``,
+``"ascending node"``), so a node prints back as what the user wrote.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from .errors import Source, Span
+from .units import UNITS, to_internal
+
+
+@dataclass(frozen=True)
+class Quantity:
+    """A number with its unit as written: ``35786 km``, ``5 %``, ``0.1`` (no unit)."""
+
+    number: str  # the digits exactly as written, so the formatter keeps them
+    unit: str  # "" for a bare number
+    span: Span
+
+    @property
+    def value(self) -> float:
+        return float(self.number)
+
+    @property
+    def dimension(self) -> str:
+        return UNITS[self.unit][0]
+
+    def internal(self) -> float:
+        """The value in the compiler's internal unit (km, km/s, s, kg, N, rad, ...)."""
+        return to_internal(self.value, self.unit)
+
+    def text(self) -> str:
+        return f"{self.number} {self.unit}" if self.unit else self.number
+
+
+@dataclass(frozen=True)
+class Name:
+    text: str
+    span: Span
+
+
+@dataclass(frozen=True)
+class Distance:
+    """An altitude above the equatorial radius, or with ``radius`` a radius."""
+
+    quantity: Quantity
+    is_radius: bool
+    span: Span
+
+
+@dataclass(frozen=True)
+class Where:
+    """Where a burn or a coast ends: an apsis, a node, a true anomaly, or here."""
+
+    kind: str  # periapsis | apoapsis | ascending node | descending node | node | anomaly
+    angle: Quantity | None
+    span: Span
+
+
+@dataclass(frozen=True)
+class Field:
+    """``key value`` inside a block or a start orbit: ``gm 398600.4418 km3/s2``."""
+
+    key: str
+    value: Quantity | Distance
+    span: Span
+
+
+@dataclass(frozen=True)
+class Goal:
+    """A burn or transfer goal, or an explicit component.
+
+    kind: apoapsis | periapsis | circular | inclination | raan | along | cross | radial
+    """
+
+    kind: str
+    value: Quantity | Distance | None
+    span: Span
+
+
+@dataclass(frozen=True)
+class Option:
+    """A trailing step option: ``using trim`` or ``margin 20 %``."""
+
+    key: str  # using | margin
+    value: Name | Quantity
+    span: Span
+
+
+@dataclass(frozen=True)
+class Check:
+    """One condition of an ``expect``: ``circular 35786 km within 1 km``.
+
+    comparator: within | at least | at most (``within`` with tolerance None means the
+    default tolerance of the quantity's dimension).
+    """
+
+    kind: str
+    value: Quantity | Distance | None
+    comparator: str
+    tolerance: Quantity | None
+    span: Span
+
+
+# --- statements -------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class PlanTitle:
+    title: str
+    span: Span
+
+
+@dataclass(frozen=True)
+class Around:
+    body: Name
+    span: Span
+
+
+@dataclass(frozen=True)
+class BodyDef:
+    name: Name
+    fields: tuple[Field, ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class Engine:
+    name: Name
+    fields: tuple[Field, ...]  # isp, thrust
+    span: Span
+
+
+@dataclass(frozen=True)
+class CraftDef:
+    name: Name
+    fields: tuple[Field, ...]  # dry, propellant
+    engines: tuple[Engine, ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class Setting:
+    """A plan-wide setting: ``margin 5 %`` or ``reserve 25 m/s``."""
+
+    key: str
+    value: Quantity
+    span: Span
+
+
+@dataclass(frozen=True)
+class Start:
+    form: str  # circular | orbit
+    fields: tuple[Field, ...]  # for circular the first field has key "circular"
+    span: Span
+
+
+@dataclass(frozen=True)
+class Burn:
+    name: Name | None
+    where: Where | None
+    goals: tuple[Goal, ...]
+    options: tuple[Option, ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class Transfer:
+    name: Name | None
+    where: Where | None
+    goals: tuple[Goal, ...]
+    via: Distance | None
+    options: tuple[Option, ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class Coast:
+    """``coast NAME for 3 h`` | ``coast NAME to apoapsis`` | ``coast NAME 2 rev``."""
+
+    name: Name | None
+    mode: str  # for | to | rev
+    duration: Quantity | None
+    where: Where | None
+    span: Span
+
+
+@dataclass(frozen=True)
+class Drop:
+    name: Name | None
+    mass: Quantity
+    span: Span
+
+
+@dataclass(frozen=True)
+class Expect:
+    name: Name | None
+    checks: tuple[Check, ...]
+    span: Span
+
+
+Statement = (
+    PlanTitle | Around | BodyDef | CraftDef | Setting | Start | Burn | Transfer | Coast | Drop
+    | Expect
+)
+STEP_TYPES = (Burn, Transfer, Coast, Drop, Expect)
+
+
+@dataclass(frozen=True)
+class Comment:
+    text: str  # including the leading '#'
+    line: int
+    trailing: bool  # True when code precedes it on the same line
+
+
+@dataclass(frozen=True)
+class Plan:
+    statements: tuple[Statement, ...]
+    comments: tuple[Comment, ...]
+    source: Source
+
+    def steps(self) -> list[Statement]:
+        return [s for s in self.statements if isinstance(s, STEP_TYPES)]
