@@ -1,0 +1,134 @@
+"""The catalogue of central bodies a plan can fly around (``around earth``).
+
+The constants live in ``bodies.toml`` next to this module, each with its published
+source.  The file is read once; every :class:`Body` is in the compiler's units (km,
+km3/s2).  Names are matched without regard to case, and ``names()`` lists the words a
+plan may write, in catalogue order (the Sun, then each planet followed by its moons).
+
+>>> earth = lookup("Earth")
+>>> earth.name, earth.gm, earth.radius
+('Earth', 398600.4418, 6378.1366)
+>>> round(earth.soi)
+924649
+>>> lookup("vulcan") is None
+True
+>>> names()[:4]
+['sun', 'mercury', 'venus', 'earth']
+
+``j2`` is referred to ``radius``: where a J2 was published with another reference radius
+R, the loader stores J2 * (R / radius)^2, which describes the same degree-2 field.
+``soi`` is Laplace's sphere-of-influence radius around ``parent``; :func:`laplace_soi`
+computes it for a body a plan defines itself.
+"""
+
+from __future__ import annotations
+
+import functools
+import math
+import tomllib
+from collections.abc import Mapping
+from dataclasses import dataclass
+from importlib import resources
+from types import MappingProxyType
+from typing import Any
+
+# The package that ships bodies.toml as package data (see pyproject.toml).  Named
+# outright so the file is found however this module itself was imported.
+_PACKAGE = "apsidal.compiler"
+_DATA_FILE = "bodies.toml"
+_SOURCE_ORDER = ("gm", "radius", "j2", "orbit", "soi")
+
+
+@dataclass(frozen=True)
+class Body:
+    """A central body: gravitational parameter, equatorial radius and where they come from."""
+
+    name: str
+    gm: float  # km3/s2
+    radius: float  # km, equatorial; altitudes in a plan are measured above it
+    j2: float | None  # referred to ``radius``
+    soi: float | None  # km, Laplace sphere of influence around ``parent``
+    parent: str | None  # catalogue key of the body it orbits
+    source: str  # the published source of each value
+
+
+def laplace_soi(sma_km: float, gm_body: float, gm_parent: float) -> float:
+    """Laplace's sphere-of-influence radius a * (m / M)^(2/5), in km.
+
+    ``sma_km`` is the semi-major axis of the body's orbit around its parent; the two
+    gravitational parameters stand in for the masses (G cancels).
+
+    >>> round(laplace_soi(384400.0, 4902.800118, 398600.4418))
+    66183
+    >>> laplace_soi(7000.0, 5.0, 1.0)
+    Traceback (most recent call last):
+      ...
+    ValueError: a sphere of influence needs a body lighter than its parent (gm 5 vs 1 km3/s2)
+    """
+    given = {"sma": sma_km, "gm of the body": gm_body, "gm of the parent": gm_parent}
+    for label, value in given.items():
+        if not (math.isfinite(value) and value > 0.0):
+            raise ValueError(f"a sphere of influence needs a positive, finite {label}, not {value}")
+    if gm_body >= gm_parent:
+        raise ValueError(
+            "a sphere of influence needs a body lighter than its parent "
+            f"(gm {gm_body:g} vs {gm_parent:g} km3/s2)"
+        )
+    return sma_km * (gm_body / gm_parent) ** 0.4
+
+
+def catalogue() -> dict[str, Body]:
+    """Every catalogue body by its lowercase key, in catalogue order (a fresh copy)."""
+    return dict(_table())
+
+
+def lookup(name: str) -> Body | None:
+    """The catalogue body called ``name`` (any case, surrounding blanks ignored), or None."""
+    return _table().get(name.strip().lower())
+
+
+def names() -> list[str]:
+    """The keys a plan can write after ``around``, in catalogue order."""
+    return list(_table())
+
+
+@functools.cache
+def _table() -> Mapping[str, Body]:
+    text = resources.files(_PACKAGE).joinpath(_DATA_FILE).read_text(encoding="utf-8")
+    raw = tomllib.loads(text)
+    table = {key.lower(): _body(key, entry) for key, entry in raw.items()}
+    for key, body in table.items():
+        if body.parent is not None and body.parent not in table:
+            raise ValueError(f"{_DATA_FILE}: [{key}] orbits {body.parent!r}, which is not in it")
+    return MappingProxyType(table)
+
+
+def _body(key: str, entry: Mapping[str, Any]) -> Body:
+    def number(field: str) -> float:
+        value = entry.get(field)
+        is_number = isinstance(value, (int, float)) and not isinstance(value, bool)
+        if not (is_number and math.isfinite(value)):
+            raise ValueError(f"{_DATA_FILE}: [{key}] needs a finite number for {field}: {value!r}")
+        return float(value)
+
+    gm, radius = number("gm_km3_s2"), number("radius_km")
+    if gm <= 0.0 or radius <= 0.0:
+        raise ValueError(f"{_DATA_FILE}: [{key}] needs a positive gm_km3_s2 and radius_km")
+    j2 = None
+    if "j2" in entry:
+        j2 = number("j2") * (number("j2_radius_km") / radius) ** 2
+    parent = entry.get("parent")
+    soi = number("soi_km") if parent is not None else None
+    sources = entry.get("source", {})
+    source = "; ".join(f"{f}: {sources[f]}" for f in _SOURCE_ORDER if sources.get(f))
+    if not source:
+        raise ValueError(f"{_DATA_FILE}: [{key}] names no source for its values")
+    return Body(
+        name=str(entry.get("name", key)),
+        gm=gm,
+        radius=radius,
+        j2=j2,
+        soi=soi,
+        parent=None if parent is None else str(parent).lower(),
+        source=source,
+    )
