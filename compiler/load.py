@@ -1,0 +1,16 @@
+"""From plan text to a lowered Program: parse, then lower."""
+
+from __future__ import annotations
+
+from apsidal.lang.parse import parse, parse_file
+
+from .lower import lower
+from .steps import Program
+
+
+def load_text(text: str, path: str = "<plan>") -> Program:
+    return lower(parse(text, path))
+
+
+def load(path: str) -> Program:
+    return lower(parse_file(path))

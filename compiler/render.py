@@ -1,0 +1,160 @@
+"""Renderers of a budget dict: a rich table for the terminal, JSON, Markdown and CSV."""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+
+from rich import box
+from rich.console import Console
+from rich.table import Table
+from rich.text import Text
+
+
+def duration(seconds: float | None) -> str:
+    """Elapsed time as a reader counts it.
+
+    >>> duration(93784.5)
+    '1 d 02:03:04.5'
+    >>> duration(61)
+    '00:01:01.0'
+    """
+    if seconds is None:
+        return "-"
+    days, rest = divmod(float(seconds), 86400.0)
+    h, rest = divmod(rest, 3600.0)
+    m, s = divmod(rest, 60.0)
+    clock = f"{int(h):02d}:{int(m):02d}:{s:04.1f}"
+    return f"{int(days)} d {clock}" if days else clock
+
+
+def _num(x, fmt: str) -> str:
+    return "-" if x is None else format(x, fmt)
+
+
+def orbit_text(o: dict) -> str:
+    ap = "open" if o["apoapsis_alt_km"] is None else _num(o["apoapsis_alt_km"], ",.1f")
+    return (f"{_num(o['periapsis_alt_km'], ',.1f')} x {ap} km, "
+            f"i {_num(o['inclination_deg'], '.3f')} deg")
+
+
+def _where(step: dict) -> str:
+    return step["at"]
+
+
+def _check_text(c: dict) -> str:
+    unit = f" {c['unit']}" if c["unit"] else ""
+    if c["comparator"] == "within":
+        cond = f"{c['expected']:.6g}{unit} within {c['tolerance']:.6g}{unit}"
+    else:
+        cond = f"{c['comparator']} {c['expected']:.6g}{unit}"
+    return f"{c['kind']} {cond}: actual {c['actual']:.6g}{unit}"
+
+
+def table(report: dict, console: Console) -> None:
+    title = report["plan"] or report["source"]
+    t = Table(title=f"Delta-v budget: {title}", box=box.SIMPLE_HEAVY, title_justify="left")
+    for col, just in (("#", "right"), ("step", "left"), ("where", "left"),
+                      ("delta-v m/s", "right"), ("with margin", "right"),
+                      ("propellant kg", "right"), ("mass after kg", "right"),
+                      ("orbit after (periapsis x apoapsis, inclination)", "left"),
+                      ("elapsed", "right")):
+        t.add_column(col, justify=just)
+    for s in report["steps"]:
+        burn = s["kind"] == "burn"
+        t.add_row(str(s["index"]), f"{s['kind']} {s['name']}", _where(s),
+                  f"{s['dv_m_s']:,.1f}" if burn else "",
+                  f"{s['dv_with_margin_m_s']:,.1f}" if burn else "",
+                  f"{s['propellant_kg']:,.2f}" if burn else "",
+                  f"{s['mass_after_kg']:,.2f}", orbit_text(s["orbit_after"]),
+                  duration(s["elapsed_s"]))
+    console.print(t)
+    tot = report["totals"]
+    lines = [
+        f"total delta-v        {tot['dv_m_s']:,.1f} m/s  "
+        f"({tot['dv_with_margin_m_s']:,.1f} m/s with margin)",
+        f"propellant used      {tot['propellant_kg']:,.2f} kg   "
+        f"left {tot['propellant_left_kg']:,.2f} kg",
+        f"final mass           {tot['final_mass_kg']:,.2f} kg",
+        f"delta-v capacity     {tot['dv_capacity_left_m_s']:,.1f} m/s left "
+        f"(reserve {tot['reserve_m_s']:,.1f} m/s: "
+        f"{'covered' if tot['reserve_met'] else 'NOT covered'})",
+        f"elapsed              {duration(tot['elapsed_s'])}",
+    ]
+    for line in lines:
+        console.print(line, highlight=False)
+    checks = [(s, c) for s in report["steps"] for c in s.get("checks", [])]
+    if checks:
+        console.print()
+        console.print("Expectations", style="bold")
+        for s, c in checks:
+            mark = Text("pass", style="green") if c["passed"] else Text("FAIL", style="bold red")
+            console.print(Text.assemble("  ", mark, f"  {s['name']}: {_check_text(c)}"))
+    for f in report.get("findings", []):
+        console.print(f"{f['severity']}: {f['rule']}: {f['message']}", highlight=False)
+    console.print()
+    console.print(f"Caution: {report['caution']}", style="italic", highlight=False)
+
+
+def to_json(report: dict) -> str:
+    return json.dumps(report, indent=2, allow_nan=False)
+
+
+def _md_row(cells) -> str:
+    return "| " + " | ".join(str(c).replace("|", "\\|") for c in cells) + " |"
+
+
+def markdown(report: dict) -> str:
+    out = [f"## Delta-v budget: {report['plan'] or report['source']}", ""]
+    out.append(_md_row(["#", "step", "where", "delta-v (m/s)", "with margin (m/s)",
+                        "propellant (kg)", "mass after (kg)", "orbit after", "elapsed"]))
+    out.append("|" + "---|" * 9)
+    for s in report["steps"]:
+        burn = s["kind"] == "burn"
+        out.append(_md_row([s["index"], f"{s['kind']} `{s['name']}`", s["at"],
+                            f"{s['dv_m_s']:.1f}" if burn else "",
+                            f"{s['dv_with_margin_m_s']:.1f}" if burn else "",
+                            f"{s['propellant_kg']:.2f}" if burn else "",
+                            f"{s['mass_after_kg']:.2f}", orbit_text(s["orbit_after"]),
+                            duration(s["elapsed_s"])]))
+    tot = report["totals"]
+    out += ["", _md_row(["total", "value"]), "|---|---|",
+            _md_row(["delta-v", f"{tot['dv_m_s']:.1f} m/s"]),
+            _md_row(["delta-v with margin", f"{tot['dv_with_margin_m_s']:.1f} m/s"]),
+            _md_row(["propellant used", f"{tot['propellant_kg']:.2f} kg"]),
+            _md_row(["propellant left", f"{tot['propellant_left_kg']:.2f} kg"]),
+            _md_row(["final mass", f"{tot['final_mass_kg']:.2f} kg"]),
+            _md_row(["delta-v capacity left", f"{tot['dv_capacity_left_m_s']:.1f} m/s"]),
+            _md_row(["reserve", f"{tot['reserve_m_s']:.1f} m/s "
+                     f"({'covered' if tot['reserve_met'] else 'not covered'})"]),
+            _md_row(["elapsed", duration(tot["elapsed_s"])])]
+    checks = [(s, c) for s in report["steps"] for c in s.get("checks", [])]
+    if checks:
+        out += ["", "**Expectations**", ""]
+        out += [f"- {'pass' if c['passed'] else '**FAIL**'} `{s['name']}`: {_check_text(c)}"
+                for s, c in checks]
+    out += ["", f"_Caution: {report['caution']}_", ""]
+    return "\n".join(out)
+
+
+CSV_COLUMNS = ["index", "name", "kind", "at", "dv_m_s", "dv_with_margin_m_s", "along_m_s",
+               "cross_m_s", "radial_m_s", "propellant_kg", "mass_after_kg", "duration_s",
+               "elapsed_s", "periapsis_alt_km", "apoapsis_alt_km", "sma_km", "ecc",
+               "inclination_deg", "raan_deg", "argp_deg", "anomaly_deg", "period_s"]
+
+
+def to_csv(report: dict) -> str:
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(CSV_COLUMNS)
+    for s in report["steps"]:
+        o, vec = s["orbit_after"], s["vector_m_s"]
+        flat = {**s, **o, "along_m_s": vec["along"], "cross_m_s": vec["cross"],
+                "radial_m_s": vec["radial"]}
+        w.writerow(["" if flat[c] is None else flat[c] for c in CSV_COLUMNS])
+    tot = report["totals"]
+    w.writerow(["", "total", "", "", tot["dv_m_s"], tot["dv_with_margin_m_s"], "", "", "",
+                tot["propellant_kg"], tot["final_mass_kg"], "", tot["elapsed_s"]]
+               + [""] * (len(CSV_COLUMNS) - 13))
+    return buf.getvalue()
