@@ -108,6 +108,7 @@ class Row:
     engine: EngineSpec | None = None
     margin: float = 0.0
     checks: list[CheckResult] = field(default_factory=list)
+    v_before: np.ndarray | None = None  # (B, 3) velocity just before a burn
 
 
 @dataclass(frozen=True)
@@ -314,7 +315,7 @@ def _burn_rows(step: Burn, index: int, name: str, batch: Batch, ctx: Context, fa
     new, vec, dv, dvm, prop, burn_time = _price(batch, out, _engine(step, ctx), margin, ctx,
                                                 fails, name)
     row = Row(index, name, "burn", step.place.label(), new, vec, dv, dvm, prop, burn_time,
-              out.coast, out.coast, _engine(step, ctx), margin)
+              out.coast, out.coast, _engine(step, ctx), margin, v_before=out.v_before)
     return new, row
 
 
@@ -371,7 +372,7 @@ def _merge_rows(a: Row, b: Row, take_a: np.ndarray) -> Row:
     return Row(a.step, a.name, a.kind, a.at, a.after.where(take_a, b.after),
                *(pick(getattr(a, f), getattr(b, f)) for f in
                  ("dv_vec", "dv", "dv_margin", "propellant", "burn_time", "coast_time",
-                  "duration")), a.engine, a.margin)
+                  "duration")), a.engine, a.margin, v_before=pick(a.v_before, b.v_before))
 
 
 def _either(b_up: Burn, b_down: Burn, up, index, batch: Batch, ctx: Context, fails, normal):
@@ -480,7 +481,7 @@ def _three_burn_plane_change(step: Transfer, index, batch: Batch, ctx: Context, 
     new, vec, dv, dvm, prop, bt = _price(batch, out, _engine(lower, ctx), margin, ctx, fails,
                                          lower.name)
     rows.append(Row(index, lower.name, "burn", "periapsis", new, vec, dv, dvm, prop, bt,
-                    out.coast, out.coast, _engine(lower, ctx), margin))
+                    out.coast, out.coast, _engine(lower, ctx), margin, v_before=out.v_before))
     return new, rows
 
 
@@ -594,6 +595,7 @@ class Result:
     rows: list[Row]
     final: Batch
     error: PlanError | None = None
+    failed_step: int | None = None  # index of the step that could not be flown
 
     @property
     def ok(self) -> bool:
@@ -612,6 +614,7 @@ def run(program: Program, strict: bool = False) -> Result:
     _check_surface(batch.r, batch.v, ctx, start_fails, "the start")
     rows: list[Row] = []
     error = None
+    failed = None
     if not start_fails.ok[0]:
         message, hint = start_fails.reason(0)
         error = PlanError(message, None, program.source, hint)
@@ -623,9 +626,10 @@ def run(program: Program, strict: bool = False) -> Result:
                 if step.name not in message:
                     message = f"{step.name}: {message}"
                 error = PlanError(message, step.span, program.source, hint)
+                failed = index
                 break
             rows.extend(step_rows)
             batch = new
     if error is not None and strict:
         raise error
-    return Result(program, rows, batch, error)
+    return Result(program, rows, batch, error, failed)
