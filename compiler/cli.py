@@ -89,7 +89,24 @@ def build_parser() -> argparse.ArgumentParser:
     run.set_defaults(func=cmd_run)
     bod = sub.add_parser("bodies", help="list the body catalogue and its sources")
     bod.set_defaults(func=cmd_bodies)
+    for module in _command_modules():
+        module.register(sub)
     return p
+
+
+def _command_modules():
+    """Modules that add their own subcommands through ``register(subparsers)``."""
+    import importlib
+
+    names = ("apsidal.compiler.check_cli", "apsidal.compiler.review_cli")
+    out = []
+    for name in names:
+        try:
+            out.append(importlib.import_module(name))
+        except ModuleNotFoundError as exc:  # a command module not written yet
+            if exc.name != name:
+                raise
+    return out
 
 
 def main(argv: list[str] | None = None) -> int:

@@ -1,0 +1,231 @@
+"""`apsidal check`: expectations, lint rules and the proof behind every claimed saving.
+
+A rule proposes rewritten plans; it never states a saving of its own.  ``Checker.prove``
+parses the rewritten text, lowers it, prices it with the same evaluator as the original,
+and keeps the proposal only if it flies, meets every expectation, reaches the same final
+orbit (size, shape, plane; orientation too when an expectation names raan or argp) and
+costs less.  The saving in the finding is the difference of the two priced plans.
+"""
+
+from __future__ import annotations
+
+import difflib
+from dataclasses import dataclass, field, replace
+from typing import Callable, Iterable
+
+from apsidal.lang import syntax as ast
+from apsidal.lang.errors import PlanError
+
+from .budget import budget
+from .evaluate import Result, run
+from .load import load_text
+from .reorder import orientation_matters, same_orbit
+from .steps import Program
+
+SEVERITIES = ("info", "warning", "error")
+
+
+@dataclass(frozen=True)
+class Finding:
+    rule: str
+    severity: str
+    steps: tuple[str, ...]
+    message: str
+    saves_m_s: float | None = None
+    saves_kg: float | None = None
+    suggestion: str | None = None  # the whole rewritten plan
+    diff: str | None = None  # unified diff of the rewrite against the original lines
+    notes: tuple[str, ...] = ()
+
+    def as_dict(self) -> dict:
+        return {
+            "rule": self.rule,
+            "severity": self.severity,
+            "steps": list(self.steps),
+            "message": self.message,
+            "saves_m_s": None if self.saves_m_s is None else round(self.saves_m_s, 6),
+            "saves_kg": None if self.saves_kg is None else round(self.saves_kg, 6),
+            "suggestion": self.suggestion,
+            "diff": self.diff,
+            "notes": list(self.notes),
+        }
+
+
+@dataclass
+class Proof:
+    text: str
+    program: Program
+    result: Result
+    saves_m_s: float
+    saves_kg: float
+
+
+@dataclass
+class Checker:
+    """What every rule reads: the plan, its syntax tree, its priced chain."""
+
+    program: Program
+    result: Result
+    report: dict = field(init=False)
+    statements: list = field(init=False)  # the step statements, in plan order
+
+    def __post_init__(self):
+        self.report = budget(self.result)
+        self.statements = self.program.plan.steps()
+
+    @property
+    def text(self) -> str:
+        return self.program.source.text
+
+    @property
+    def dv_with_margin(self) -> float:
+        return float(self.result.final.dv_margin[0]) * 1000.0
+
+    @property
+    def propellant_used(self) -> float:
+        return self.program.craft.propellant - float(self.result.final.propellant[0])
+
+    def rows_of(self, step_index: int):
+        return [r for r in self.result.rows if r.step == step_index]
+
+    # --- rewriting ---------------------------------------------------------------------
+
+    def _line_range(self, node) -> tuple[int, int]:
+        """Character range of the whole source lines a statement stands on."""
+        text = self.text
+        start = text.rfind("\n", 0, node.span.start) + 1
+        end = text.find("\n", node.span.end)
+        return start, (len(text) if end < 0 else end)
+
+    def rewrite(self, edits: dict[int, list[str]]) -> str:
+        """Plan text with step statements replaced by zero or more statement lines.
+
+        ``edits`` maps a step index to the lines that stand in its place (an empty list
+        deletes the statement with its line).
+        """
+        text = self.text
+        pieces = []
+        cut = 0
+        for index in sorted(edits):
+            start, end = self._line_range(self.statements[index])
+            pieces.append(text[cut:start])
+            lines = edits[index]
+            if not lines:
+                end = end + 1 if end < len(text) else end  # take the newline with it
+            else:
+                pieces.append("\n".join(lines))
+            cut = end
+        pieces.append(text[cut:])
+        return "".join(pieces)
+
+    def statement_text(self, index: int) -> str:
+        start, end = self._line_range(self.statements[index])
+        return self.text[start:end]
+
+    def reorder(self, block: list[int], order: Iterable[int]) -> str:
+        """Plan text with the statements of ``block`` flown in ``order``."""
+        return self.rewrite({slot: [self.statement_text(src)]
+                             for slot, src in zip(block, order)})
+
+    @staticmethod
+    def unparse(node) -> str:
+        from apsidal.lang.format import format_statement
+
+        return format_statement(node)
+
+    # --- proof -------------------------------------------------------------------------
+
+    def prove(self, text: str) -> Proof | None:
+        """Price a rewritten plan; a Proof only if it is a valid, cheaper equivalent."""
+        try:
+            program = load_text(text, self.program.source.path)
+        except PlanError:
+            return None
+        result = run(program)
+        if not result.ok or not bool(result.final.expect_ok[0]):
+            return None
+        if not self.result.ok:
+            return None
+        same = same_orbit(result.final, self.result.final, program.body.gm,
+                          orientation_matters(self.program))
+        if not bool(same[0]):
+            return None
+        saves_dv = self.dv_with_margin - float(result.final.dv_margin[0]) * 1000.0
+        saves_kg = self.propellant_used - (program.craft.propellant
+                                           - float(result.final.propellant[0]))
+        if saves_kg <= 1e-6 or saves_dv < -1e-6:
+            return None
+        return Proof(text, program, result, saves_dv, saves_kg)
+
+    def best(self, texts: Iterable[str]) -> Proof | None:
+        proofs = [p for p in (self.prove(t) for t in dict.fromkeys(texts)) if p]
+        return max(proofs, key=lambda p: p.saves_kg, default=None)
+
+    def finding(self, rule: str, severity: str, steps, message: str, proof: Proof | None,
+                notes: Iterable[str] = ()) -> Finding:
+        if proof is None:
+            return Finding(rule, severity, tuple(steps), message, notes=tuple(notes))
+        diff = "".join(difflib.unified_diff(
+            self.text.splitlines(keepends=True), proof.text.splitlines(keepends=True),
+            fromfile=self.program.source.path, tofile=self.program.source.path + " (rewritten)",
+            n=1))
+        return Finding(rule, severity, tuple(steps), message, proof.saves_m_s, proof.saves_kg,
+                       proof.text, diff, tuple(notes))
+
+
+def with_goals(node, goals) -> object:
+    return replace(node, goals=tuple(goals))
+
+
+def with_where(node, kind: str | None, angle=None):
+    if kind is None:
+        return replace(node, where=None)
+    return replace(node, where=ast.Where(kind, angle, node.span))
+
+
+def saving_text(proof: Proof) -> str:
+    return f"{proof.saves_m_s:.1f} m/s ({proof.saves_kg:.2f} kg of propellant)"
+
+
+Rule = Callable[[Checker], list[Finding]]
+
+
+def findings_for(program: Program, rules: Iterable[Rule] | None = None) -> list[dict]:
+    """Every finding for one plan, as JSON-ready dicts (the diff command uses this)."""
+    return [f.as_dict() for f in check_program(program, rules)]
+
+
+def check_program(program: Program, rules: Iterable[Rule] | None = None) -> list[Finding]:
+    from .rules import RULES
+
+    result = run(program)
+    if result.error is not None and "propellant exhausted" not in result.error.message:
+        raise result.error
+    checker = Checker(program, result)
+    out: list[Finding] = []
+    seen: set[str] = set()
+    for rule in (RULES if rules is None else rules):
+        if not result.ok and getattr(rule, "needs_flyable", True):
+            continue
+        for f in rule(checker):
+            if f.suggestion is not None:
+                key = " ".join(f.suggestion.split())
+                if key in seen:
+                    continue  # another rule already proved the same rewrite
+                seen.add(key)
+            out.append(f)
+    order = {s: i for i, s in enumerate(SEVERITIES)}
+    out.sort(key=lambda f: (-order[f.severity], -(f.saves_kg or 0.0)))
+    return out
+
+
+def rule(name: str, needs_flyable: bool = True):
+    """Name a rule; ``needs_flyable=False`` runs it on a plan that fails part-way too.
+
+    The rule's docstring is its explanation (``apsidal explain NAME``).
+    """
+    def mark(fn):
+        fn.rule_name = name
+        fn.needs_flyable = needs_flyable
+        return fn
+    return mark

@@ -1,0 +1,176 @@
+"""Rules about where a plane change is flown."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from apsidal.lang import syntax as ast
+
+from ..check import Checker, Finding, rule, saving_text, with_goals, with_where
+from ..reorder import blocks
+from ..steps import Burn, Transfer
+
+PLANE_GOALS = ("inclination", "raan")
+PLACES = ("apoapsis", "node", "ascending node", "descending node", "periapsis")
+
+
+def _plane_burns(c: Checker):
+    """(step index, syntax node) of goal burns that turn the plane."""
+    for i, step in enumerate(c.program.steps):
+        if isinstance(step, Burn) and step.vector is None and step.changes_plane:
+            yield i, c.statements[i]
+
+
+def _block_of(c: Checker, index: int) -> list[int]:
+    for b in blocks(c.program):
+        if index in b:
+            return b
+    return [index]
+
+
+def _speed_before(c: Checker, index: int) -> float:
+    row = c.rows_of(index)[0]
+    return float(np.linalg.norm(row.v_before[0])) * 1000.0
+
+
+@rule("plane-change-at-speed")
+def plane_change_at_speed(c: Checker) -> list[Finding]:
+    """A plane change flown where the craft is fast, when the plan passes a slower point.
+
+    Turning the velocity through an angle costs 2 v sin(di/2): in proportion to the
+    speed.  The same turn at apoapsis, or at a higher orbit the plan reaches anyway, is
+    cheaper.  The rule tries the plane change at every other place of its block (each
+    apsis and node, before or after each other step, or folded into another burn there)
+    and reports the cheapest rewrite that reaches the same orbit.
+    """
+    out = []
+    for i, node in _plane_burns(c):
+        block = _block_of(c, i)
+        plane = [g for g in node.goals if g.kind in PLANE_GOALS]
+        rest = [g for g in node.goals if g.kind not in PLANE_GOALS]
+        remaining = [c.unparse(with_goals(node, rest))] if rest else []
+        texts = []
+        for slot in block:
+            for kind in PLACES:
+                moved = with_where(with_goals(node, plane), kind)
+                line = c.unparse(moved)
+                for after in (False, True):
+                    edits = {j: [c.statement_text(j)] for j in block}
+                    edits[i] = remaining if slot != i else []
+                    base = edits[slot] if slot != i else remaining
+                    edits[slot] = (base + [line]) if after else ([line] + base)
+                    texts.append(c.rewrite(edits))
+            other = c.statements[slot]
+            step = c.program.steps[slot]
+            if slot != i and isinstance(step, Burn) and step.vector is None \
+                    and not step.changes_plane:
+                merged = with_goals(other, list(other.goals) + plane)
+                edits = {i: remaining, slot: [c.unparse(merged)]}
+                texts.append(c.rewrite(edits))
+        proof = c.best(texts)
+        if proof is None:
+            continue
+        speed = _speed_before(c, i)
+        out.append(c.finding(
+            "plane-change-at-speed", "warning", (c.program.steps[i].name,),
+            f"{c.program.steps[i].name} turns the plane at {speed:.0f} m/s; flown where the "
+            f"craft is slower it saves {saving_text(proof)}", proof))
+    return out
+
+
+@rule("costlier-node")
+def costlier_node(c: Checker) -> list[Finding]:
+    """A burn or transfer at one node when the other node is cheaper.
+
+    An orbit crosses the equator twice; on an eccentric orbit the craft is slower at one
+    node than at the other, and a plane change there costs less.  `at node` lets the
+    compiler pick the cheaper one; this rule flags an explicit choice of the dearer.
+    """
+    out = []
+    other = {"ascending node": "descending node", "descending node": "ascending node"}
+    for i, step in enumerate(c.program.steps):
+        if not isinstance(step, (Burn, Transfer)) or step.place.kind not in other:
+            continue
+        node = c.statements[i]
+        text = c.rewrite({i: [c.unparse(with_where(node, other[step.place.kind]))]})
+        proof = c.prove(text)
+        if proof is None:
+            continue
+        out.append(c.finding(
+            "costlier-node", "warning", (step.name,),
+            f"{step.name} flies at the {step.place.kind}; the {other[step.place.kind]} "
+            f"saves {saving_text(proof)}", proof))
+    return out
+
+
+@rule("shared-plane-change")
+def shared_plane_change(c: Checker) -> list[Finding]:
+    """A transfer's plane change flown apart from it, or all in one of its burns.
+
+    A plane change shared between the two burns of a Hohmann transfer costs less than
+    the same change in either burn alone: a few degrees at the fast first burn, the rest
+    at the slow second (`transfer NAME: circular R, inclination to I` finds the best
+    split).  The rule folds a plane-change burn next to a transfer into it, and turns a
+    raise-then-circularise pair of burns that carries a plane change into one transfer.
+    """
+    out = []
+    steps = c.program.steps
+    for i, step in enumerate(steps):
+        if not (isinstance(step, Transfer) and step.form == "hohmann"):
+            continue
+        for j in (i - 1, i + 1):
+            if not 0 <= j < len(steps):
+                continue
+            other = steps[j]
+            if not (isinstance(other, Burn) and other.vector is None and other.changes_plane
+                    and not other.changes_shape):
+                continue
+            tnode, pnode = c.statements[i], c.statements[j]
+            goals = [g for g in tnode.goals if g.kind not in PLANE_GOALS]
+            goals += [g for g in pnode.goals if g.kind in PLANE_GOALS]
+            texts = []
+            for where in ((tnode.where.kind if tnode.where else None),
+                          (pnode.where.kind if pnode.where else None), "node"):
+                merged = with_where(with_goals(tnode, goals), where,
+                                    pnode.where.angle if pnode.where else None)
+                texts.append(c.rewrite({i: [c.unparse(merged)], j: []}))
+            proof = c.best(texts)
+            if proof is not None:
+                out.append(c.finding(
+                    "shared-plane-change", "warning", (step.name, other.name),
+                    f"sharing {other.name}'s plane change between the burns of {step.name} "
+                    f"saves {saving_text(proof)}", proof))
+    out += _burn_pairs(c)
+    return out
+
+
+def _burn_pairs(c: Checker) -> list[Finding]:
+    """A raise (or lower) burn followed by a circularisation, one of them turning the plane."""
+    out = []
+    steps = c.program.steps
+    for i in range(len(steps) - 1):
+        a, b = steps[i], steps[i + 1]
+        if not (isinstance(a, Burn) and isinstance(b, Burn)
+                and a.vector is None and b.vector is None):
+            continue
+        target = a.apoapsis if a.apoapsis is not None else a.periapsis
+        if target is None or a.circular or (a.apoapsis is not None and a.periapsis is not None):
+            continue
+        far = "apoapsis" if a.apoapsis is not None else "periapsis"
+        closes = b.circular or (b.periapsis if far == "apoapsis" else b.apoapsis) is not None
+        if b.place.kind != far or not closes or not (a.changes_plane or b.changes_plane):
+            continue
+        na, nb = c.statements[i], c.statements[i + 1]
+        plane = [g for g in list(na.goals) + list(nb.goals) if g.kind in PLANE_GOALS]
+        shape_goal = next(g for g in na.goals if g.kind == far)
+        circ = ast.Goal("circular", shape_goal.value, shape_goal.span)
+        transfer = ast.Transfer(na.name, na.where, (circ, *plane), None, na.options, na.span)
+        proof = c.prove(c.rewrite({i: [c.unparse(transfer)], i + 1: []}))
+        if proof is not None:
+            out.append(c.finding(
+                "shared-plane-change", "warning", (a.name, b.name),
+                f"{a.name} and {b.name} make a Hohmann transfer with the whole plane change "
+                f"in one burn; one transfer sharing it between both burns saves "
+                f"{saving_text(proof)}", proof,
+                notes=(f"the transfer's burns are reported as {a.name}/1 and {a.name}/2",)))
+    return out

@@ -1,0 +1,170 @@
+"""Rules that weigh one transfer geometry against another."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from apsidal.lang import syntax as ast
+from apsidal.lang.errors import Span
+
+from ..check import Checker, Finding, Proof, rule, saving_text
+from ..steps import Burn, Transfer
+
+GRID = 10  # apoapsis candidates tried across the allowed range, before refining
+REFINE = 14  # golden-section steps on the logarithm of the apoapsis
+
+
+def _distance(alt_km: float, span: Span) -> ast.Distance:
+    q = ast.Quantity(f"{alt_km:.0f}", "km", span)
+    return ast.Distance(q, False, span)
+
+
+def apoapsis_bound(c: Checker) -> tuple[float, str]:
+    """Highest apoapsis radius (km) a detour may use, and why."""
+    body = c.program.body
+    if body.soi is not None:
+        return 0.95 * body.soi, f"95 % of {body.name}'s sphere of influence"
+    return 100.0 * body.radius, f"100 body radii ({body.name} has no sphere of influence set)"
+
+
+def best_apoapsis(c: Checker, build, low: float, high: float) -> Proof | None:
+    """The cheapest proven plan over apoapsis radii in [low, high] (km).
+
+    ``build(alt_km)`` gives the plan text for an apoapsis altitude.  A geometric grid
+    brackets the optimum, golden-section search on log radius refines it; every
+    candidate is priced as a whole plan.
+    """
+    if not high > low:
+        return None
+    radius = c.program.body.radius
+    cache: dict[float, Proof | None] = {}
+
+    def price(log_r: float):
+        alt = round(math.exp(log_r) - radius)
+        if alt not in cache:
+            cache[alt] = c.prove(build(alt))
+        p = cache[alt]
+        return (-p.saves_kg if p else math.inf), p
+
+    grid = np.linspace(math.log(low), math.log(high), GRID)
+    scores = [price(g)[0] for g in grid]
+    k = int(np.argmin(scores))
+    if not math.isfinite(scores[k]):
+        return None
+    lo, hi = grid[max(k - 1, 0)], grid[min(k + 1, GRID - 1)]
+    g = (math.sqrt(5) - 1) / 2
+    x1, x2 = hi - g * (hi - lo), lo + g * (hi - lo)
+    f1, f2 = price(x1)[0], price(x2)[0]
+    for _ in range(REFINE):
+        if f1 < f2:
+            hi, x2, f2 = x2, x1, f1
+            x1 = hi - g * (hi - lo)
+            f1 = price(x1)[0]
+        else:
+            lo, x1, f1 = x1, x2, f2
+            x2 = lo + g * (hi - lo)
+            f2 = price(x2)[0]
+    proofs = [p for p in cache.values() if p is not None]
+    return max(proofs, key=lambda p: p.saves_kg, default=None)
+
+
+@rule("bi-elliptic-cheaper")
+def bi_elliptic_cheaper(c: Checker) -> list[Finding]:
+    """A Hohmann transfer that a bi-elliptic one beats.
+
+    Going out past the target to a far apoapsis, raising the periapsis there where the
+    craft is slow, and coming back in costs less than the two Hohmann burns once the
+    target radius is more than about 11.9 times the start (always beyond 15.6 times).
+    The rule searches the intermediate apoapsis up to the body's sphere of influence and
+    reports the best; it costs far more time in flight, which the finding shows.
+    """
+    out = []
+    bound, why = apoapsis_bound(c)
+    for i, step in enumerate(c.program.steps):
+        if not (isinstance(step, Transfer) and step.form == "hohmann"):
+            continue
+        node = c.statements[i]
+        low = 1.05 * step.radius
+        proof = best_apoapsis(
+            c, lambda alt: c.rewrite({i: [c.unparse(_with_via(node, alt))]}), low, bound)
+        if proof is None:
+            continue
+        extra = float(proof.result.final.t[0] - c.result.final.t[0])
+        out.append(c.finding(
+            "bi-elliptic-cheaper", "warning", (step.name,),
+            f"{step.name} as a bi-elliptic transfer saves {saving_text(proof)}, "
+            f"for {extra / 86400:.1f} more days in flight", proof,
+            notes=(f"intermediate apoapsis searched up to {why}",)))
+    return out
+
+
+@rule("hohmann-cheaper")
+def hohmann_cheaper(c: Checker) -> list[Finding]:
+    """A bi-elliptic transfer that the plain Hohmann transfer beats.
+
+    Below a target-to-start radius ratio of about 11.9 the bi-elliptic detour never pays;
+    between 11.9 and 15.6 it pays only with a far enough intermediate apoapsis.  The rule
+    prices the same transfer without `via` and reports the saving.
+    """
+    out = []
+    for i, step in enumerate(c.program.steps):
+        if not (isinstance(step, Transfer) and step.form == "bielliptic"):
+            continue
+        node = c.statements[i]
+        proof = c.prove(c.rewrite({i: [c.unparse(_replace_via(node, None))]}))
+        if proof is not None:
+            out.append(c.finding(
+                "hohmann-cheaper", "warning", (step.name,),
+                f"{step.name} as a Hohmann transfer (without `via`) saves "
+                f"{saving_text(proof)}", proof))
+    return out
+
+
+def _replace_via(node: ast.Transfer, via):
+    from dataclasses import replace
+
+    return replace(node, via=via)
+
+
+def _with_via(node: ast.Transfer, alt_km: float):
+    return _replace_via(node, _distance(alt_km, node.span))
+
+
+@rule("three-burn-plane-change")
+def three_burn_plane_change(c: Checker) -> list[Finding]:
+    """A large plane change that a three-burn detour through a raised apoapsis beats.
+
+    Raising the apoapsis, turning the plane there at low speed and lowering it again
+    costs less than a pure rotation 2 v sin(di/2) once the angle is large: above about
+    48.9 deg even with an unbounded apoapsis, and from about 38.9 deg with the best
+    apoapsis.  The rule searches the apoapsis up to the body's sphere of influence and
+    reports the cheapest detour as `transfer NAME: inclination to I via apoapsis A`.
+    """
+    out = []
+    bound, why = apoapsis_bound(c)
+    for i, step in enumerate(c.program.steps):
+        if not (isinstance(step, Burn) and step.vector is None and step.changes_plane
+                and not step.changes_shape):
+            continue
+        node = c.statements[i]
+        row = c.rows_of(i)[0]
+        r = float(np.linalg.norm(row.after.r[0]))
+        plane = tuple(g for g in node.goals if g.kind in ("inclination", "raan"))
+
+        def build(alt, node=node, plane=plane):
+            t = ast.Transfer(node.name, node.where, plane, _distance(alt, node.span),
+                             node.options, node.span)
+            return c.rewrite({i: [c.unparse(t)]})
+
+        proof = best_apoapsis(c, build, 1.1 * r, bound)
+        if proof is None:
+            continue
+        out.append(c.finding(
+            "three-burn-plane-change", "warning", (step.name,),
+            f"{step.name} as a three-burn plane change through a raised apoapsis saves "
+            f"{saving_text(proof)}", proof,
+            notes=(f"apoapsis searched up to {why}",
+                   f"the detour's burns are reported as {step.name}/1 to {step.name}/3")))
+    return out
