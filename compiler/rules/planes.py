@@ -46,35 +46,44 @@ def plane_change_at_speed(c: Checker) -> list[Finding]:
     out = []
     for i, node in _plane_burns(c):
         block = _block_of(c, i)
+        name = c.program.steps[i].name
         plane = [g for g in node.goals if g.kind in PLANE_GOALS]
         rest = [g for g in node.goals if g.kind not in PLANE_GOALS]
         remaining = [c.unparse(with_goals(node, rest))] if rest else []
-        texts = []
+        candidates = []  # (text, name of the burn that carries the plane change)
         for slot in block:
             for kind in PLACES:
-                moved = with_where(with_goals(node, plane), kind)
-                line = c.unparse(moved)
+                line = c.unparse(with_where(with_goals(node, plane), kind))
                 for after in (False, True):
                     edits = {j: [c.statement_text(j)] for j in block}
                     edits[i] = remaining if slot != i else []
                     base = edits[slot] if slot != i else remaining
                     edits[slot] = (base + [line]) if after else ([line] + base)
-                    texts.append(c.rewrite(edits))
+                    candidates.append((c.rewrite(edits), name))
             other = c.statements[slot]
             step = c.program.steps[slot]
             if slot != i and isinstance(step, Burn) and step.vector is None \
                     and not step.changes_plane:
                 merged = with_goals(other, list(other.goals) + plane)
-                edits = {i: remaining, slot: [c.unparse(merged)]}
-                texts.append(c.rewrite(edits))
-        proof = c.best(texts)
-        if proof is None:
-            continue
+                candidates.append((c.rewrite({i: remaining, slot: [c.unparse(merged)]}),
+                                   step.name))
         speed = _speed_before(c, i)
+        slower = []
+        for text, carrier in dict.fromkeys(candidates):
+            proof = c.prove(text)
+            if proof is None:
+                continue
+            row = next(r for r in proof.result.rows if r.name == carrier)
+            new_speed = float(np.linalg.norm(row.v_before[0])) * 1000.0
+            if new_speed < speed * (1 - 1e-3):  # really slower, not the same point merged
+                slower.append((proof, new_speed))
+        if not slower:
+            continue
+        proof, new_speed = max(slower, key=lambda p: p[0].saves_kg)
         out.append(c.finding(
-            "plane-change-at-speed", "warning", (c.program.steps[i].name,),
-            f"{c.program.steps[i].name} turns the plane at {speed:.0f} m/s; flown where the "
-            f"craft is slower it saves {saving_text(proof)}", proof))
+            "plane-change-at-speed", "warning", (name,),
+            f"{name} turns the plane at {speed:.0f} m/s; flown where the craft moves at "
+            f"{new_speed:.0f} m/s it saves {saving_text(proof)}", proof))
     return out
 
 
