@@ -19,7 +19,7 @@ a node is the pure rotation with delta-v = 2 v sin(di / 2).
 >>> ok = Failures(1)
 >>> v2 = new_velocity(r, v, mu, Shape(apoapsis=np.array([42164.0])), None, ok)
 >>> round(float(np.linalg.norm(v2 - v) * 1000), 1)    # first burn of a Hohmann transfer
-2356.9
+2336.8
 """
 
 from __future__ import annotations
