@@ -199,7 +199,7 @@ def check_program(program: Program, rules: Iterable[Rule] | None = None) -> list
     from .rules import RULES
 
     result = run(program)
-    if result.error is not None and "propellant exhausted" not in result.error.message:
+    if result.error is not None and result.failure != "propellant":
         raise result.error
     checker = Checker(program, result)
     out: list[Finding] = []

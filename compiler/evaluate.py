@@ -233,8 +233,8 @@ def _cheaper(a: BurnOutcome, b: BurnOutcome) -> BurnOutcome:
     take_a = a.fails.ok & (~b.fails.ok | (da <= db * (1 + 1e-12)))
     take_a |= ~a.fails.ok & ~b.fails.ok
     fails = Failures(take_a.shape[0])
-    fails.add(take_a & ~a.fails.ok, a.fails.reason)
-    fails.add(~take_a & ~b.fails.ok, b.fails.reason)
+    fails.merge(take_a, a.fails)
+    fails.merge(~take_a, b.fails)
     m = take_a[:, None]
     return BurnOutcome(np.where(m, a.r, b.r), np.where(m, a.v_before, b.v_before),
                        np.where(m, a.v_after, b.v_after), np.where(take_a, a.coast, b.coast),
@@ -265,11 +265,12 @@ def _price(batch: Batch, out: BurnOutcome, engine: EngineSpec, margin: float, ct
     short = need > left * (1 + 1e-12) + 1e-12
     capacity = ve * np.log(batch.mass / np.maximum(batch.mass - left, 1e-300))
     fails.add(short, lambda i: (
-        f"propellant exhausted at {name}: the burn needs {need[i]:.3f} kg "
+        f"{name}: propellant exhausted: the burn needs {need[i]:.3f} kg "
         f"({dvm[i] * 1000:.3f} m/s with margin) but {left[i]:.3f} kg remain, "
         f"a shortfall of {need[i] - left[i]:.3f} kg",
         f"{left[i]:.3f} kg give at most {capacity[i] * 1000:.3f} m/s with engine "
-        f"`{engine.name}`; add propellant, lower the margin or drop mass earlier"))
+        f"`{engine.name}`; add propellant, lower the margin or drop mass earlier"),
+        code="propellant")
     used = np.minimum(need, left)
     burn_time = used * ve * 1000.0 / engine.thrust
     mass = batch.mass - used
@@ -295,7 +296,7 @@ def _check_surface(r, v, ctx: Context, fails: Failures, name: str):
     reaches = el.closed | inbound
     low = reaches & (el.periapsis < ctx.radius)
     fails.add(low, lambda i: (
-        f"after {name} the periapsis is {el.periapsis[i] - ctx.radius:.3f} km, under the "
+        f"the periapsis falls to {el.periapsis[i] - ctx.radius:.3f} km altitude, under the "
         f"surface (the body's radius is {ctx.radius:.3f} km)",
         "raise the periapsis, or check the goal's altitude (altitudes are above the "
         "equatorial radius; `radius X` gives a radius)"))
@@ -310,7 +311,7 @@ def _burn_rows(step: Burn, index: int, name: str, batch: Batch, ctx: Context, fa
     if place is not None:
         step = replace(step, place=place)
     out = burn_outcome(step, batch.r, batch.v, ctx, normal)
-    fails.add(~out.fails.ok, out.fails.reason)
+    fails.merge(~out.fails.ok, out.fails)
     margin = step.margin
     new, vec, dv, dvm, prop, burn_time = _price(batch, out, _engine(step, ctx), margin, ctx,
                                                 fails, name)
@@ -353,8 +354,8 @@ def _transfer(step: Transfer, index: int, batch: Batch, ctx: Context, fails: Fai
         (a, fa), (b, fb) = results
         ca, cb = a[0].dv_margin, b[0].dv_margin
         take_a = fa.ok & (~fb.ok | (ca <= cb * (1 + 1e-12))) | (~fa.ok & ~fb.ok)
-        fails.add(take_a & ~fa.ok, fa.reason)
-        fails.add(~take_a & ~fb.ok, fb.reason)
+        fails.merge(take_a, fa)
+        fails.merge(~take_a, fb)
         new = a[0].where(take_a, b[0])
         rows = [_merge_rows(ra, rb, take_a) for ra, rb in zip(a[1], b[1])]
         for row in rows:
@@ -380,8 +381,8 @@ def _either(b_up: Burn, b_down: Burn, up, index, batch: Batch, ctx: Context, fai
     f_up, f_dn = Failures(batch.size), Failures(batch.size)
     new_up, row_up = _burn_rows(b_up, index, b_up.name, batch, ctx, f_up, normal)
     new_dn, row_dn = _burn_rows(b_down, index, b_down.name, batch, ctx, f_dn, normal)
-    fails.add(up & ~f_up.ok, f_up.reason)
-    fails.add(~up & ~f_dn.ok, f_dn.reason)
+    fails.merge(up, f_up)
+    fails.merge(~up, f_dn)
     return new_up.where(up, new_dn), _merge_rows(row_up, row_dn, up)
 
 
@@ -395,7 +396,7 @@ def _transfer_from(step: Transfer, index: int, batch: Batch, ctx: Context, fails
         # the target plane as seen from the first burn's position
         tmp = Failures(batch.size)
         target = normal_for(r0, v0, step.inclination, step.raan, tmp)
-        fails.add(~tmp.ok, tmp.reason)
+        fails.merge(~tmp.ok, tmp)
         if step.form == "hohmann":
             share = (np.full(batch.size, step.split) if step.split is not None
                      else _best_split(phases, up, batch, ctx, r0, v0, target))
@@ -475,9 +476,9 @@ def _three_burn_plane_change(step: Transfer, index, batch: Batch, ctx: Context, 
     shape = Shape(periapsis=np.where(circ, norm(r3), np.minimum(norm(r3), restore)),
                   apoapsis=np.where(circ, norm(r3), np.maximum(norm(r3), restore)))
     v_new = new_velocity(r3, v3, ctx.mu, shape, None, sub, ctx.radius)
-    fails.add(~sub.ok, sub.reason)
+    fails.merge(~sub.ok, sub)
     out = BurnOutcome(r3, v3, np.where(sub.ok[:, None], v_new, v3), out.coast, out.fails)
-    fails.add(~out.fails.ok, out.fails.reason)
+    fails.merge(~out.fails.ok, out.fails)
     new, vec, dv, dvm, prop, bt = _price(batch, out, _engine(lower, ctx), margin, ctx, fails,
                                          lower.name)
     rows.append(Row(index, lower.name, "burn", "periapsis", new, vec, dv, dvm, prop, bt,
@@ -596,6 +597,7 @@ class Result:
     final: Batch
     error: PlanError | None = None
     failed_step: int | None = None  # index of the step that could not be flown
+    failure: str | None = None  # its kind: "propellant", "infeasible", or None
 
     @property
     def ok(self) -> bool:
@@ -614,22 +616,24 @@ def run(program: Program, strict: bool = False) -> Result:
     _check_surface(batch.r, batch.v, ctx, start_fails, "the start")
     rows: list[Row] = []
     error = None
-    failed = None
+    failed = kind = None
     if not start_fails.ok[0]:
         message, hint = start_fails.reason(0)
-        error = PlanError(message, None, program.source, hint)
+        error = PlanError(message, program.start_span, program.source, hint)
+        kind = start_fails.code(0)
     else:
         for index, step in enumerate(program.steps):
             new, step_rows, fails = apply(step, index, batch, ctx)
             if not fails.ok[0]:
                 message, hint = fails.reason(0)
-                if step.name not in message:
+                if not message.startswith((f"{step.name}:", f"{step.name}/")):
                     message = f"{step.name}: {message}"
                 error = PlanError(message, step.span, program.source, hint)
                 failed = index
+                kind = fails.code(0)
                 break
             rows.extend(step_rows)
             batch = new
     if error is not None and strict:
         raise error
-    return Result(program, rows, batch, error, failed)
+    return Result(program, rows, batch, error, failed, kind)

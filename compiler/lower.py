@@ -44,6 +44,12 @@ def _err(message: str, node, hint: str | None = None) -> PlanError:
     return PlanError(message, span, None, hint)
 
 
+def _top_of(plan: ast.Plan) -> Span:
+    """Where a missing plan-level statement is reported: the top of the file."""
+    first = plan.source.line_text(1)
+    return Span(1, 1, 1, max(2, len(first) + 1), 0, len(first))
+
+
 def _fields(fields, allowed: dict[str, str], what: str) -> dict[str, ast.Field]:
     """Fields by key; duplicates and unknown keys are errors."""
     seen: dict[str, ast.Field] = {}
@@ -95,24 +101,25 @@ class Lowerer:
                     raise _err("`start` must come before the first step", st,
                                "move the start orbit above the burns")
             self._statement(st)
+        top = _top_of(self.plan)
         if not self.plan.statements:
-            raise PlanError("the plan is empty", None, None,
+            raise PlanError("the plan is empty", top, None,
                             "a plan needs at least `around BODY`, a `craft { ... }` block "
                             "and a `start` orbit")
         if self.body is None:
-            raise _err("the plan does not say which body it flies around", None,
+            raise _err("the plan does not say which body it flies around", top,
                        "add a line such as `around earth`")
         if self.craft is None:
-            raise _err("the plan has no craft", None,
+            raise _err("the plan has no craft", top,
                        "add a `craft NAME { dry 500 kg  propellant 200 kg  "
                        "engine main isp 300 s thrust 400 N }` block")
         if self.start is None:
-            raise _err("the plan has no start orbit", None,
+            raise _err("the plan has no start orbit", top,
                        "add a line such as `start circular 400 km inclination 51.6 deg`")
         r, v = self._start_state(self.start)
         steps = tuple(self._step(s) for s in steps_ast)
         return Program(self.title, self.body, self.craft, self.margin, self.reserve, r, v,
-                       steps, self.plan.source, self.plan)
+                       steps, self.plan.source, self.plan, self.start.span)
 
     def _statement(self, st) -> None:
         if isinstance(st, ast.PlanTitle):
@@ -187,7 +194,8 @@ class Lowerer:
             if not isp > 0 or not thrust > 0:
                 raise _err("an engine's isp and thrust must be positive", e)
             if any(x.name == e.name.text for x in engines):
-                raise _err(f"engine `{e.name.text}` is defined twice", e.name)
+                raise _err(f"engine `{e.name.text}` is defined twice", e.name,
+                           "give each engine its own name, or remove one of the two lines")
             engines.append(EngineSpec(e.name.text, isp, thrust))
         self.craft = Craft(st.name.text, dry, prop, tuple(engines))
 
@@ -215,7 +223,9 @@ class Lowerer:
         get = lambda k: f[k].value.internal() if k in f else 0.0  # noqa: E731
         inc, raan, argp, nu = get("inclination"), get("raan"), get("argp"), get("anomaly")
         if not 0.0 <= inc <= np.pi + 1e-12:
-            raise _err("inclination must be between 0 and 180 deg", f["inclination"])
+            raise _err(f"inclination {np.degrees(inc):g} deg is outside 0 to 180 deg",
+                       f["inclination"], "a retrograde orbit has an inclination above 90 deg; "
+                       "to move the node instead, give `raan`")
         if ra is not None and np.isfinite(ra):
             sma, ecc = 0.5 * (rp + ra), (ra - rp) / (ra + rp)
         else:
@@ -226,7 +236,9 @@ class Lowerer:
             if abs(wrapped) >= limit:
                 raise _err(f"true anomaly {np.degrees(nu):g} deg is beyond this open orbit's "
                            f"asymptote (|anomaly| < {np.degrees(limit):.3f} deg)",
-                           f.get("anomaly", st))
+                           f.get("anomaly", st),
+                           f"give an anomaly between {-np.degrees(limit):.3f} and "
+                           f"{np.degrees(limit):.3f} deg (negative: before periapsis)")
             nu = wrapped
         equatorial = inc < 1e-12 or inc > np.pi - 1e-12
         if equatorial:
@@ -328,7 +340,9 @@ class Lowerer:
         goals: dict = {}
         for g in node.goals:
             if g.kind in goals:
-                raise _err(f"`{g.kind}` is given twice in one step", g)
+                raise _err(f"`{g.kind}` is given twice in one step", g,
+                           f"keep one `{g.kind}` (the first is at column "
+                           f"{goals[g.kind].span.column}); for two burns write two steps")
             goals[g.kind] = g
         return goals
 
@@ -372,7 +386,11 @@ class Lowerer:
             if k in goals:
                 kw[k] = self._radius(goals[k].value)
                 if kw[k] <= self.body.radius:
-                    raise _err(f"the {k} target is under the surface", goals[k])
+                    raise _err(f"the {k} target ({kw[k] - self.body.radius:.3f} km altitude, "
+                               f"radius {kw[k]:.3f} km) is under the surface of "
+                               f"{self.body.name} (radius {self.body.radius:.3f} km)", goals[k],
+                               "altitudes are above the equatorial radius; `radius X` gives "
+                               "a radius from the centre")
         if "circular" in goals:
             kw["circular"] = True
             if goals["circular"].value is not None:
@@ -381,7 +399,10 @@ class Lowerer:
             if k in goals:
                 kw[k] = goals[k].value.internal()
         if "inclination" in kw and not 0 <= kw["inclination"] <= np.pi:
-            raise _err("inclination must be between 0 and 180 deg", goals["inclination"])
+            raise _err(f"inclination {np.degrees(kw['inclination']):g} deg is outside 0 to "
+                       "180 deg", goals["inclination"],
+                       "a retrograde orbit has an inclination above 90 deg; to move the node "
+                       "instead, use `raan to`")
         return Burn(name, place, engine=engine, margin=margin, span=node.span, **kw)
 
     def _transfer(self, node: ast.Transfer) -> Transfer:

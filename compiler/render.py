@@ -157,4 +157,5 @@ def to_csv(report: dict) -> str:
     w.writerow(["", "total", "", "", tot["dv_m_s"], tot["dv_with_margin_m_s"], "", "", "",
                 tot["propellant_kg"], tot["final_mass_kg"], "", tot["elapsed_s"]]
                + [""] * (len(CSV_COLUMNS) - 13))
+    buf.write(f"# Caution: {report['caution']}\n")
     return buf.getvalue()

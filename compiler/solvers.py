@@ -35,24 +35,40 @@ RADIUS_TOL = 1e-9  # relative: a target this close to the current radius is "her
 
 
 class Failures:
-    """Which batch elements can no longer be flown, and why (worded on demand)."""
+    """Which batch elements can no longer be flown, and why (worded on demand).
+
+    ``code`` sorts failures for callers that act on the kind (``check`` reports
+    ``propellant`` as a finding); everything else is ``infeasible``.
+    """
 
     def __init__(self, n: int):
         self.ok = np.ones(n, dtype=bool)
-        self._why: list[tuple[np.ndarray, Callable[[int], tuple[str, str | None]]]] = []
+        self._why: list[tuple[np.ndarray, Callable[[int], tuple[str, str | None]], str]] = []
 
-    def add(self, mask: np.ndarray, why: Callable[[int], tuple[str, str | None]]) -> None:
+    def add(self, mask: np.ndarray, why: Callable[[int], tuple[str, str | None]],
+            code: str = "infeasible") -> None:
         """Mark ``mask`` failed; ``why(i)`` gives (message, hint) for element ``i``."""
         new = np.asarray(mask, dtype=bool) & self.ok
         if new.any():
-            self._why.append((new, why))
+            self._why.append((new, why, code))
             self.ok &= ~new
 
+    def merge(self, mask: np.ndarray, other: "Failures") -> None:
+        """Take over ``other``'s failures where ``mask``, with their reasons and codes."""
+        for m, why, code in other._why:
+            self.add(mask & m, why, code)
+
     def reason(self, i: int) -> tuple[str, str | None]:
-        for mask, why in self._why:
+        for mask, why, _ in self._why:
             if mask[i]:
                 return why(i)
         return ("cannot be flown", None)
+
+    def code(self, i: int) -> str | None:
+        for mask, _, code in self._why:
+            if mask[i]:
+                return code
+        return None
 
 
 @dataclass(frozen=True)

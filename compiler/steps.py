@@ -161,6 +161,7 @@ class Program:
     steps: tuple[Step, ...]
     source: Source
     plan: Plan | None = None
+    start_span: Span | None = None
 
     def with_steps(self, steps) -> "Program":
         return replace(self, steps=tuple(steps))

@@ -50,7 +50,7 @@ def propellant_exhausted(c: Checker) -> list[Finding]:
     it needs, what remains and the shortfall; nothing after it can be priced.
     """
     err = c.result.error
-    if err is None or "propellant exhausted" not in err.message:
+    if err is None or c.result.failure != "propellant":
         return []
     steps = (c.program.steps[c.result.failed_step].name,)
     return [Finding("propellant-exhausted", "error", steps,

@@ -1,0 +1,416 @@
+"""Bad input through the real command line: every kind gives exit 2 and a located message.
+
+Each row of CASES is a plan (text or raw bytes) and what `apsidal run` must say about it:
+the `file:line:col` (exact), the text the caret points at, key phrases of the message,
+and a piece of the hint saying what would work.  Every row also checks that no traceback
+and no internal error reaches stderr, and that whatever partial report reaches stdout is
+JSON without NaN or infinity.  A few rows run in a subprocess as well, to prove the same
+from outside the interpreter.
+
+The numbers a message must state (altitudes, latitudes, propellant) are worked out in
+this file from two-body formulas, not copied from the compiler's output.
+
+A plan that misses a whole statement (no craft, no start, nothing at all) is reported at
+the top of the file, line 1, column 1.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import re
+import subprocess
+import sys
+from dataclasses import dataclass
+
+import pytest
+from apsidal.compiler import bodies
+from apsidal.compiler.cli import main
+
+# --- the plan the rows vary -------------------------------------------------------------
+#
+# Line 1-8 the scene, line 9 the start orbit, line 10 on the steps.
+
+HEAD = """\
+plan "Probe"
+around earth
+craft probe {
+    dry 500 kg
+    propellant 300 kg
+    engine main isp 300 s thrust 400 N
+    engine trim isp 220 s thrust 20 N
+}
+"""
+START = "start circular 400 km inclination 30 deg"
+
+
+def plan(*steps: str, start: str = START, head: str = HEAD) -> str:
+    return head + start + "\n" + "".join(s + "\n" for s in steps)
+
+
+def scene(old: str, new: str) -> str:
+    """The plan with one piece of its scene (lines 1-8) rewritten."""
+    assert old in HEAD
+    return plan(head=HEAD.replace(old, new))
+
+
+# --- numbers the messages must state, worked out here ----------------------------------
+
+EARTH = bodies.lookup("earth")
+MU, RE = EARTH.gm, EARTH.radius
+G0 = 9.80665  # standard gravity, m/s^2 (CGPM 1901, exact)
+R400 = RE + 400.0
+
+
+def _latitude_after(seconds: float, inclination_deg: float) -> float:
+    """Latitude on a circular orbit `seconds` after the ascending node:
+    sin(lat) = sin(i) sin(u), u = n t (spherical trigonometry, from memory)."""
+    u = 2 * math.pi * seconds / (2 * math.pi * math.sqrt(R400**3 / MU))
+    return math.degrees(math.asin(math.sin(math.radians(inclination_deg)) * math.sin(u)))
+
+
+LAT_20_MIN = _latitude_after(1200.0, 30.0)
+
+# Hohmann departure from 400 km to 35786 km: dv = v_c (sqrt(2 r2 / (r1 + r2)) - 1)
+# (from memory); propellant by the rocket equation for the 800 kg craft, isp 300 s.
+_R_GEO = RE + 35786.0
+GTO_DV = math.sqrt(MU / R400) * (math.sqrt(2 * _R_GEO / (R400 + _R_GEO)) - 1) * 1000.0
+GTO_NEED = 800.0 * (1 - math.exp(-GTO_DV / (300.0 * G0)))
+
+# An open orbit with ecc 1.5 has its asymptote at arccos(-1 / e) (from memory).
+ASYMPTOTE_1_5 = math.degrees(math.acos(-1 / 1.5))
+
+HYPERBOLA = "start orbit periapsis 400 km ecc 1.5"
+
+EXHAUSTED = (r"needs ([\d.]+) kg \(([\d.]+) m/s with margin\) but ([\d.]+) kg remain, "
+             r"a shortfall of ([\d.]+) kg")
+
+
+# --- the table ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Bad:
+    """One kind of bad input and what the error must say about it.
+
+    line/col None: some `file:line:col` must be given, but no one place is the answer
+    (a missing statement).  numbers: (regex with groups, expected values) pairs read from
+    the message.  absent: words that must not appear in the error (a misleading hint).
+    """
+
+    id: str
+    text: str | bytes
+    line: int | None
+    col: int | None
+    under: str  # the text the caret starts under ("" when not checked)
+    phrases: tuple[str, ...]
+    hint: str
+    numbers: tuple[tuple[str, tuple[float, ...]], ...] = ()
+    absent: tuple[str, ...] = ()
+    fmt: str = "json"
+
+
+CASES = [
+    # --- text that is not a plan -------------------------------------------------------
+    Bad("empty-file", "", 1, 1, "", ("the plan is empty",), "around"),
+    Bad("only-comments", "# a plan to come\n   # later\n\n", 1, 1, "",
+        ("the plan is empty",), "around"),
+    Bad("nul-byte", 'plan "Probe"\naround ea\x00rth\n', 2, 10, "",
+        ("NUL byte", "binary file"), "plain UTF-8 text"),
+    Bad("binary-garbage", b'\xff\xfe\x00\x01\x89PNG\r\n\x1a\n\x00\x00', 1, 1, "",
+        ("not UTF-8", "0xFF"), "UTF-8"),
+    Bad("invalid-utf8", b'plan "caf\xe9 relay"\naround earth\n', 1, 10, "",
+        ("not UTF-8", "0xE9"), "saved as UTF-8"),
+    Bad("control-character", plan("burn a: along\x0b 1 m/s"), 10, 14, "",
+        ("control character U+000B",), "plain UTF-8 text"),
+    # --- syntax, spelling, units ---------------------------------------------------------
+    Bad("syntax-missing-colon", plan("burn raise at periapsis apoapsis to 1000 km"), 10, 25,
+        "apoapsis", ("`burn` needs `:` before its goals",), "burn raise at periapsis: apoapsis"),
+    Bad("misspelt-goal-keyword", plan("burn raise at periapsis: apoapsys to 1000 km"), 10, 26,
+        "apoapsys", ("unexpected `apoapsys`",), "did you mean `apoapsis`?"),
+    Bad("misspelt-statement", plan("brun raise at periapsis: apoapsis to 1000 km"), 10, 1,
+        "brun", ("unexpected `brun`",), "did you mean `burn`?"),
+    Bad("unterminated-title", 'plan "Probe\naround earth\n', 1, 6, '"Probe',
+        ("unterminated string",), 'plan "..."'),
+    Bad("unclosed-craft-block", plan(head=HEAD.replace("}\n", "")), 8, 1, "start",
+        ("the `craft` block is not closed",), "add `}`"),
+    Bad("unknown-unit", plan("burn raise at periapsis: apoapsis to 1000 kms"), 10, 43, "kms",
+        ("unknown unit `kms`",), "did you mean `km`?"),
+    Bad("unknown-unit-crlf", plan("burn raise at periapsis: apoapsis to 1000 kms").replace(
+        "\n", "\r\n"), 10, 43, "kms", ("unknown unit `kms`",), "did you mean `km`?"),
+    Bad("wrong-dimension-goal", plan("burn raise at periapsis: apoapsis to 1000 m/s"), 10, 38,
+        "1000 m/s", ("needs a length", "got a speed"), "`1000 km`"),
+    Bad("wrong-dimension-margin", scene('}\n', '}\nmargin 5 kg\n'), 9, 8, "5 kg",
+        ("margin needs a ratio", "got a mass"), "`5 %`"),
+    Bad("wrong-dimension-coast", plan("coast wait for 3 km"), 10, 16, "3 km",
+        ("needs a time", "got a length"), "`3 s`"),
+    Bad("number-out-of-range", plan("burn a: along 1e999 m/s"), 10, 15, "1e999",
+        ("out of range",), "ordinary number"),
+    Bad("keyword-as-step-name", plan("burn apoapsis: along 5 m/s"), 10, 6, "apoapsis",
+        ("is a keyword and cannot name a step",), "choose another name"),
+    Bad("fractional-revolutions", plan("coast wait 1.5 rev"), 10, 12, "1.5",
+        ("whole revolutions",), "`2 rev`"),
+    # --- the craft and the body -------------------------------------------------------------
+    Bad("negative-dry-mass", scene("dry 500 kg", "dry -500 kg"), 4, 9, "-500 kg",
+        ("dry mass must be positive", "-500 kg"), "greater than zero"),
+    Bad("negative-propellant", scene("propellant 300 kg", "propellant -3 kg"), 5, 16, "-3 kg",
+        ("propellant cannot be negative", "-3 kg"), "zero or more"),
+    Bad("zero-thrust", scene("thrust 400 N", "thrust 0 N"), 6, 34, "0 N",
+        ("thrust must be positive", "0 N"), "greater than zero"),
+    Bad("unknown-craft-field", scene("dry 500 kg", "dyr 500 kg"), 4, 5, "dyr",
+        ("unexpected `dyr`",), "did you mean `dry`?"),
+    Bad("unknown-body-field", 'body rock { gm 17 km3/s2 raduis 262 km }\n' + plan(
+        head=HEAD.replace("around earth", "around rock")), 1, 26, "raduis",
+        ("unexpected `raduis`",), "did you mean `radius`?"),
+    Bad("body-without-radius", 'body rock { gm 17 km3/s2 }\n' + plan(
+        head=HEAD.replace("around earth", "around rock")), 1, 1, "body",
+        ("body `rock` needs `radius`",), "radius 262 km"),
+    Bad("craft-without-engine", scene(
+        "    engine main isp 300 s thrust 400 N\n    engine trim isp 220 s thrust 20 N\n", ""),
+        3, 1, "craft", ("craft `probe` has no engine",), "engine main isp"),
+    Bad("engine-defined-twice", scene("engine trim", "engine main"), 7, 12, "main",
+        ("engine `main` is defined twice",), ""),
+    Bad("unknown-body", scene("around earth", "around eart"), 2, 8, "eart",
+        ("unknown body `eart`",), "did you mean `earth`?"),
+    Bad("unknown-engine", plan("burn raise at periapsis: apoapsis to 1000 km using mian"),
+        10, 52, "mian", ("craft `probe` has no engine `mian`",), "did you mean `main`?"),
+    # --- the plan's statements ----------------------------------------------------------------
+    Bad("duplicate-step-name", plan("burn raise at periapsis: apoapsis to 1000 km",
+                                    "burn raise at apoapsis: periapsis to 1000 km"),
+        11, 6, "raise", ("step name `raise` is used twice",), "the first is on line 10"),
+    Bad("start-twice", plan(START), 10, 1, "start", ("`start` is given twice",),
+        "the first is on line 9"),
+    Bad("start-after-a-step", HEAD + "burn a: along 1 m/s\n" + START + "\n", 10, 1, "start",
+        ("`start` must come before the first step",), "move the start orbit above"),
+    Bad("no-craft", 'plan "Probe"\naround earth\n' + START + "\n", 1, 1, "",
+        ("the plan has no craft",), "craft NAME {"),
+    Bad("no-start", HEAD, 1, 1, "", ("the plan has no start orbit",),
+        "start circular 400 km"),
+    Bad("no-around", scene("around earth\n", ""), 1, 1, "",
+        ("which body it flies around",), "around earth"),
+    # --- the start orbit -------------------------------------------------------------------
+    Bad("start-periapsis-above-apoapsis",
+        plan(start="start orbit periapsis 900 km apoapsis 400 km"), 9, 13, "periapsis 900 km",
+        ("periapsis is above the apoapsis",), "swap"),
+    Bad("start-under-the-surface",
+        plan(start="start orbit periapsis -100 km apoapsis 400 km"), 9, 13, "periapsis -100",
+        ("under the surface", "-100.000 km"), "above the equatorial radius"),
+    Bad("start-radius-under-the-surface", plan(start="start circular radius 6000 km"),
+        9, 7, "circular radius 6000 km", ("under the surface",), "`radius X` gives a radius",
+        numbers=((r"periapsis \((-?[\d.]+) km altitude\)", (6000.0 - RE,)),)),
+    Bad("start-shape-incomplete", plan(start="start orbit periapsis 400 km"), 9, 1, "start",
+        ("needs its size and shape", "`periapsis`"), "`sma` and `ecc`"),
+    Bad("start-inclination-out-of-range",
+        plan(start="start circular 400 km inclination -10 deg"), 9, 23, "inclination -10",
+        ("is outside 0 to 180 deg", "-10"), "retrograde"),
+    Bad("open-start-beyond-asymptote", plan(start=HYPERBOLA + " anomaly 140 deg"), 9, 38,
+        "anomaly 140 deg", ("beyond this open orbit's asymptote",), "",
+        numbers=((r"\|anomaly\| < ([\d.]+) deg", (ASYMPTOTE_1_5,)),)),
+    # --- goals that cannot be met where the burn stands ------------------------------------
+    Bad("goal-under-the-surface", plan("burn down at apoapsis: periapsis to -200 km"),
+        10, 24, "periapsis to -200 km", ("periapsis target", "is under the surface", "-200"),
+        "altitudes are above the equatorial radius"),
+    Bad("goal-radius-under-the-surface", plan("burn dive: periapsis to radius 5000 km"),
+        10, 12, "periapsis to radius", ("periapsis target", "is under the surface", "5000"),
+        "`radius X` gives a radius"),
+    Bad("periapsis-target-above-altitude", plan("burn up: periapsis to 900 km"), 10, 1,
+        "burn up", ("up:", "above the current altitude"), "at apoapsis",
+        numbers=((r"periapsis ([\d.]+) km is above the current altitude ([\d.]+) km",
+                  (900.0, 400.0)),)),
+    Bad("apoapsis-target-below-altitude", plan("burn down: apoapsis to 200 km"), 10, 1,
+        "burn down", ("down:", "below the current altitude"), "at periapsis",
+        numbers=((r"apoapsis ([\d.]+) km is below the current altitude ([\d.]+) km",
+                  (200.0, 400.0)),)),
+    Bad("inclination-below-latitude", plan("coast drift for 20 min",
+                                           "burn flat: inclination to 0 deg"),
+        11, 1, "burn flat", ("flat:", "cannot be reached at latitude"), "`at node`",
+        numbers=((r"latitude ([\d.]+) deg", (LAT_20_MIN,)),)),
+    Bad("inclination-goal-out-of-range", plan("burn tilt at node: inclination to 200 deg"),
+        10, 20, "inclination to 200 deg", ("is outside 0 to 180 deg", "200"),
+        "retrograde"),
+    Bad("plane-not-through-position", plan("burn tilt: inclination to 40 deg, raan to 200 deg"),
+        10, 1, "burn tilt", ("does not contain the craft's position",),
+        "burn where the two planes cross"),
+    Bad("apoapsis-on-hyperbola", plan("burn back at apoapsis: periapsis to 300 km",
+                                      start=HYPERBOLA), 10, 1, "burn back",
+        ("back:", "no apoapsis on an open orbit", "1.5"), "`at periapsis`"),
+    Bad("revolutions-on-hyperbola", plan("coast wait 2 rev", start=HYPERBOLA), 10, 1,
+        "coast wait", ("wait:", "has no revolutions"), "coast `for` a time"),
+    Bad("periapsis-already-passed", plan("burn brake at periapsis: apoapsis to 5000 km",
+                                         start=HYPERBOLA + " anomaly 30 deg"),
+        10, 1, "burn brake", ("brake:", "never reaches periapsis"), "burn here"),
+    Bad("step-name-inside-message", plan("coast c to anomaly 170 deg", start=HYPERBOLA),
+        10, 1, "coast c", ("c: ", "never reaches anomaly 170 deg"), "burn here"),
+    Bad("circular-away-from-radius", plan("burn ring: circular 500 km"), 10, 1, "burn ring",
+        ("ring:", "one burn can only circularise at the current radius"),
+        "transfer NAME: circular 500 km",
+        numbers=((r"needs the craft at that altitude, but it is at ([\d.]+) km", (400.0,)),)),
+    # --- propellant and mass ----------------------------------------------------------------
+    Bad("propellant-exhausted", plan("burn far at periapsis: apoapsis to 35786 km"), 10, 1,
+        "burn far", ("far: propellant exhausted",), "add propellant",
+        numbers=((EXHAUSTED, (GTO_NEED, GTO_DV, 300.0, GTO_NEED - 300.0)),)),
+    Bad("propellant-exhausted-table", plan("burn far at periapsis: apoapsis to 35786 km"),
+        10, 1, "burn far", ("far: propellant exhausted", "shortfall"), "add propellant",
+        fmt="table"),
+    Bad("drop-more-than-dry-mass", plan("drop junk 600 kg"), 10, 1, "drop junk",
+        ("junk drops 600.000 kg", "holds only 500.000 kg"), "drop less"),
+    Bad("zero-drop", plan("drop junk 0 kg"), 10, 11, "0 kg", ("drop mass must be positive",),
+        "greater than zero"),
+    Bad("negative-coast", plan("coast wait for -3 h"), 10, 16, "-3 h",
+        ("coast duration must be positive",), "greater than zero"),
+    # --- transfers and goals that do not fit together -----------------------------------------
+    Bad("transfer-without-altitude", plan("transfer go: circular"), 10, 14, "circular",
+        ("a transfer needs the target altitude",), "transfer geo: circular 35786 km"),
+    Bad("transfer-without-any-goal", plan("transfer go:"), 10, 13, "",
+        ("unexpected end of line",), "`circular`", absent=("`along`", "`apoapsis`")),
+    Bad("transfer-with-apsis-goal", plan("transfer go: apoapsis to 5000 km"), 10, 14,
+        "apoapsis to", ("a transfer takes `circular`", "not `apoapsis`"), "use a `burn`"),
+    Bad("plane-transfer-without-via", plan("transfer turn: inclination to 90 deg"), 10, 1,
+        "transfer turn", ("needs `via apoapsis ALT`",), "at node: inclination to"),
+    Bad("bielliptic-via-below-target",
+        plan("transfer go: circular 35786 km via apoapsis 20000 km"), 10, 45, "20000 km",
+        ("`via apoapsis` must lie beyond the target orbit",), "above 35786 km"),
+    Bad("goals-mixed-with-components", plan("burn mix: apoapsis to 1000 km, along 5 m/s"),
+        10, 11, "apoapsis to 1000 km", ("either goals or explicit components, not both",),
+        "split it into two burns"),
+    Bad("circular-with-apsis-goal", plan("burn a: circular, apoapsis to 900 km"), 10, 9,
+        "circular", ("`circular` already sets both apsides",), "drop `circular`"),
+    Bad("goal-given-twice", plan("burn a: along 1 m/s, along 2 m/s"), 10, 22, "along 2",
+        ("`along` is given twice in one step",), ""),
+]
+
+assert len(CASES) >= 30
+assert len({c.id for c in CASES}) == len(CASES)
+
+
+def _params() -> list:
+    return [pytest.param(c, id=c.id) for c in CASES]
+
+
+# --- checks on one error ------------------------------------------------------------------
+
+LOCATION = re.compile(r"^(?P<path>.+?):(?P<line>\d+):(?P<col>\d+): error: (?P<message>.*)$",
+                      re.MULTILINE)
+NON_FINITE = re.compile(r"(?<![A-Za-z])[+-]?(nan|inf|infinity)(?![A-Za-z])", re.IGNORECASE)
+
+
+def write(tmp_path, case: Bad):
+    path = tmp_path / f"{case.id}.aps"
+    if isinstance(case.text, bytes):
+        path.write_bytes(case.text)
+    else:
+        path.write_bytes(case.text.encode("utf-8"))
+    return path
+
+
+def strict_json(text: str):
+    def refuse(token):
+        raise AssertionError(f"non-finite number {token} in JSON output")
+    return json.loads(text, parse_constant=refuse)
+
+
+def check_error(case: Bad, path, code: int, out: str, err: str) -> None:
+    assert "Traceback" not in err and "Traceback" not in out
+    assert "internal error" not in err
+    assert code == 2, err
+    head = LOCATION.search(err)
+    assert head is not None, f"no file:line:col in:\n{err}"
+    assert head["path"] == str(path)
+    line, col = int(head["line"]), int(head["col"])
+    if case.line is not None:
+        assert (line, col) == (case.line, case.col), err
+    message = head["message"]
+    for phrase in case.phrases:
+        assert phrase in message, f"{phrase!r} not in {message!r}"
+    for pattern, values in case.numbers:
+        found = re.search(pattern, message)
+        assert found, f"{pattern!r} not in {message!r}"
+        got = [float(g) for g in found.groups()]
+        assert got == pytest.approx(values, rel=1e-5, abs=1e-3), message
+    # the source line, then the caret under the column
+    lines = err.splitlines()
+    at = next(i for i, ln in enumerate(lines) if ln.startswith(head.group(0)))
+    shown = re.fullmatch(rf"\s+{line} \| (.*)", lines[at + 1])
+    caret = re.fullmatch(r"\s+\| ( *)(\^+)", lines[at + 2])
+    assert shown and caret, f"no source line and caret under:\n{err}"
+    assert lines[at + 1].index("|") == lines[at + 2].index("|")
+    assert len(caret.group(1)) == col - 1
+    if case.under:
+        assert shown.group(1)[col - 1:].startswith(case.under), (shown.group(1), case.under)
+    if isinstance(case.text, str) and case.line is not None:
+        source = case.text.split("\n")[line - 1].removesuffix("\r").expandtabs(1)
+        if not re.search(r"[\x00-\x08\x0b\x0c\x0e-\x1f]", source):
+            assert shown.group(1) == source
+    hints = [ln for ln in lines if ln.startswith("  hint: ")]
+    assert hints, f"no hint of what would work:\n{err}"
+    assert case.hint in hints[-1], f"{case.hint!r} not in {hints[-1]!r}"
+    for word in case.absent:
+        assert word not in err, f"{word!r} should not be offered:\n{err}"
+    # whatever reached stdout is a report without NaN or infinity
+    assert not NON_FINITE.search(out), out
+    if out.strip() and case.fmt == "json":
+        rep = strict_json(out)
+        assert (rep["error"]["line"], rep["error"]["column"]) == (line, col)
+
+
+@pytest.fixture(autouse=True)
+def _no_debug(monkeypatch):
+    monkeypatch.delenv("APSIDAL_DEBUG", raising=False)
+
+
+@pytest.mark.parametrize("case", _params())
+def test_bad_input(case, tmp_path, capsys):
+    path = write(tmp_path, case)
+    code = main(["run", str(path), "--format", case.fmt])
+    out, err = capsys.readouterr()
+    check_error(case, path, code, out, err)
+
+
+def test_missing_file(tmp_path, capsys):
+    path = tmp_path / "nowhere" / "plan.aps"
+    code = main(["run", str(path)])
+    out, err = capsys.readouterr()
+    assert code == 2
+    assert out == ""
+    assert "Traceback" not in err
+    assert err.startswith(f"{path}: error: cannot read `{path}`")
+    assert "No such file" in err
+    assert "hint: check the path" in err
+
+
+def test_a_directory_is_not_a_plan(tmp_path, capsys):
+    code = main(["run", str(tmp_path)])
+    _, err = capsys.readouterr()
+    assert code == 2
+    assert f"cannot read `{tmp_path}`" in err
+    assert "Traceback" not in err
+
+
+# --- the same from outside: `python -m apsidal.compiler.cli` --------------------------------
+
+BY_ID = {c.id: c for c in CASES}
+SUBPROCESS = ["nul-byte", "invalid-utf8", "syntax-missing-colon", "wrong-dimension-goal",
+              "inclination-below-latitude", "propellant-exhausted"]
+
+
+def cli(*args) -> subprocess.CompletedProcess:
+    env = {k: v for k, v in os.environ.items() if k != "APSIDAL_DEBUG"}
+    return subprocess.run([sys.executable, "-m", "apsidal.compiler.cli", *map(str, args)],
+                          check=False, capture_output=True, text=True, env=env,
+                          timeout=120)
+
+
+@pytest.mark.parametrize("case_id", SUBPROCESS)
+def test_bad_input_in_a_subprocess(case_id, tmp_path):
+    case = BY_ID[case_id]
+    path = write(tmp_path, case)
+    done = cli("run", path, "--format", case.fmt)
+    check_error(case, path, done.returncode, done.stdout, done.stderr)
+
+
+def test_missing_file_in_a_subprocess(tmp_path):
+    done = cli("run", tmp_path / "absent.aps")
+    assert done.returncode == 2
+    assert "Traceback" not in done.stderr
+    assert "cannot read" in done.stderr and "hint:" in done.stderr

@@ -1,0 +1,302 @@
+"""`apsidal run` and `apsidal bodies` end to end: every format, the JSON contract of
+DESIGN.md, no NaN or infinity anywhere, the caution in every format, and totals that
+add up when recomputed here from the steps and the plan's own numbers.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+import re
+from pathlib import Path
+
+import pytest
+from apsidal.compiler.cli import main
+
+SAMPLES = Path(__file__).resolve().parent.parent / "samples"
+SAMPLE_FILES = sorted(SAMPLES.glob("*.aps"))
+FORMATS = ("table", "json", "markdown", "csv")
+G0 = 9.80665  # standard gravity, m/s^2 (CGPM 1901, exact)
+
+CONTRACT = {
+    "top": {"plan", "body", "steps", "totals", "findings"},
+    "body": {"name", "gm_km3_s2", "radius_km"},
+    "step": {"index", "name", "kind", "at", "dv_m_s", "dv_with_margin_m_s", "vector_m_s",
+             "propellant_kg", "mass_after_kg", "duration_s", "elapsed_s", "orbit_after"},
+    "vector": {"along", "cross", "radial"},
+    "orbit": {"periapsis_alt_km", "apoapsis_alt_km", "sma_km", "ecc", "inclination_deg",
+              "raan_deg", "argp_deg", "anomaly_deg", "period_s"},
+    "totals": {"dv_m_s", "dv_with_margin_m_s", "propellant_kg", "final_mass_kg",
+               "propellant_left_kg", "dv_capacity_left_m_s", "elapsed_s"},
+    "finding": {"rule", "severity", "steps", "message", "saves_m_s", "saves_kg",
+                "suggestion"},
+}
+# A number that is not one: nan, inf, infinity, with or without a sign, as a word.
+NON_FINITE = re.compile(r"(?<![A-Za-z])[+-]?(nan|inf|infinity)(?![A-Za-z])", re.IGNORECASE)
+
+
+def run(capsys, *argv) -> tuple[int, str, str]:
+    code = main([str(a) for a in argv])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def strict_json(text: str):
+    """json.loads that refuses NaN, Infinity and -Infinity."""
+    def refuse(token):
+        raise AssertionError(f"non-finite number {token} in JSON output")
+    return json.loads(text, parse_constant=refuse)
+
+
+def flat(text: str) -> str:
+    """Whitespace folded, so a wrapped line reads as one."""
+    return " ".join(text.split())
+
+
+def plan_numbers(path: Path) -> dict:
+    """The craft's masses, the default engine's isp and the drops, read from the text."""
+    text = path.read_text()
+    num = lambda pattern: float(re.search(pattern, text, re.MULTILINE).group(1))
+    return {
+        "dry": num(r"^\s*dry\s+([\d.]+)\s*kg"),
+        "propellant": num(r"^\s*propellant\s+([\d.]+)\s*kg"),
+        "isp": num(r"^\s*engine\s+\S+\s+isp\s+([\d.]+)\s*s"),  # the first engine
+        "drops": [float(m) for m in re.findall(r"^drop\s+\S+\s+([\d.]+)\s*kg", text, re.MULTILINE)],
+    }
+
+
+@pytest.fixture(params=SAMPLE_FILES, ids=lambda p: p.stem)
+def sample(request) -> Path:
+    return request.param
+
+
+# --- every format ---------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("fmt", FORMATS)
+def test_run_every_format_is_clean(capsys, sample, fmt):
+    code, out, err = run(capsys, "run", sample, "--format", fmt)
+    assert code == 0, err
+    assert err == ""
+    assert out.strip()
+    assert "Traceback" not in out + err
+    if fmt == "json":
+        strict_json(out)
+    else:
+        assert not NON_FINITE.search(out), NON_FINITE.search(out).group(0)
+
+
+def test_default_format_is_the_table(capsys, sample):
+    code, out, _ = run(capsys, "run", sample)
+    code_t, out_t, _ = run(capsys, "run", sample, "--format", "table")
+    assert code == code_t == 0
+    assert out == out_t
+    assert "Delta-v budget" in out
+
+
+CAUTION_WORDS = ("preliminary-design estimates", "impulsive two-body approximation")
+
+
+@pytest.mark.parametrize("fmt", ["table", "json", "markdown", "csv"])
+def test_caution_in_every_format(capsys, sample, fmt):
+    code, out, _ = run(capsys, "run", sample, "--format", fmt)
+    assert code == 0
+    text = strict_json(out)["caution"] if fmt == "json" else out
+    for words in CAUTION_WORDS:
+        assert words in flat(text).lower()
+
+
+# --- the JSON contract -------------------------------------------------------------------
+
+
+def test_json_has_the_contract_keys(capsys, sample):
+    code, out, _ = run(capsys, "run", sample, "--format", "json")
+    assert code == 0
+    rep = strict_json(out)
+    assert CONTRACT["top"] <= set(rep)
+    assert CONTRACT["body"] <= set(rep["body"])
+    assert CONTRACT["totals"] <= set(rep["totals"])
+    assert rep["steps"]
+    for i, s in enumerate(rep["steps"], start=1):
+        assert CONTRACT["step"] <= set(s), CONTRACT["step"] - set(s)
+        assert CONTRACT["vector"] <= set(s["vector_m_s"])
+        assert CONTRACT["orbit"] <= set(s["orbit_after"])
+        assert s["index"] == i
+        assert s["kind"] in {"burn", "coast", "drop", "expect"}
+    assert isinstance(rep["findings"], list)
+    for f in rep["findings"]:
+        assert CONTRACT["finding"] <= set(f)
+    assert isinstance(rep["caution"], str)
+    assert rep["plan"] == re.search(r'^plan "([^"]*)"', sample.read_text(), re.MULTILINE).group(1)
+
+
+def test_json_numbers_are_numbers(capsys, sample):
+    """Every contract number is an int or a float (null only where no value exists)."""
+    rep = strict_json(run(capsys, "run", sample, "--format", "json")[1])
+    numeric = lambda x: isinstance(x, (int, float)) and not isinstance(x, bool)
+    for s in rep["steps"]:
+        for key in CONTRACT["step"] - {"name", "kind", "at", "vector_m_s", "orbit_after"}:
+            assert numeric(s[key]), (s["name"], key, s[key])
+        assert all(numeric(x) for x in s["vector_m_s"].values())
+        o = s["orbit_after"]
+        closed = o["ecc"] < 1.0
+        for key, x in o.items():
+            if key in ("apoapsis_alt_km", "period_s") and not closed:
+                assert x is None  # an open orbit has neither
+            else:
+                assert numeric(x), (s["name"], key, x)
+    assert all(numeric(rep["totals"][k]) for k in CONTRACT["totals"])
+
+
+# --- totals add up ----------------------------------------------------------------------
+
+
+def test_totals_are_consistent(capsys, sample):
+    rep = strict_json(run(capsys, "run", sample, "--format", "json")[1])
+    steps, tot = rep["steps"], rep["totals"]
+    given = plan_numbers(sample)
+    initial = given["dry"] + given["propellant"]
+    approx = lambda x: pytest.approx(x, rel=1e-9, abs=1e-5)
+
+    assert tot["dv_m_s"] == approx(sum(s["dv_m_s"] for s in steps))
+    assert tot["dv_with_margin_m_s"] == approx(sum(s["dv_with_margin_m_s"] for s in steps))
+    assert tot["propellant_kg"] == approx(sum(s["propellant_kg"] for s in steps))
+    assert tot["propellant_kg"] == approx(given["propellant"] - tot["propellant_left_kg"])
+    assert tot["final_mass_kg"] == approx(initial - tot["propellant_kg"] - sum(given["drops"]))
+    assert tot["elapsed_s"] == approx(steps[-1]["elapsed_s"])
+    m, left = tot["final_mass_kg"], tot["propellant_left_kg"]
+    capacity = given["isp"] * G0 * math.log(m / (m - left))
+    assert tot["dv_capacity_left_m_s"] == approx(capacity)
+
+
+def test_step_chain_is_consistent(capsys, sample):
+    """Mass falls by each burn's propellant and each drop; time never runs backwards;
+    a burn's delta-v is the length of its vector and the margin never lowers it."""
+    rep = strict_json(run(capsys, "run", sample, "--format", "json")[1])
+    given = plan_numbers(sample)
+    mass, elapsed = given["dry"] + given["propellant"], 0.0
+    drops = iter(given["drops"])
+    for s in rep["steps"]:
+        if s["kind"] == "drop":
+            mass -= next(drops)
+        mass -= s["propellant_kg"]
+        assert s["mass_after_kg"] == pytest.approx(mass, abs=1e-5), s["name"]
+        assert s["elapsed_s"] >= elapsed - 1e-6, s["name"]
+        elapsed = s["elapsed_s"]
+        v = s["vector_m_s"]
+        assert math.sqrt(v["along"] ** 2 + v["cross"] ** 2 + v["radial"] ** 2) == (
+            pytest.approx(s["dv_m_s"], rel=1e-9, abs=1e-5))
+        assert s["dv_with_margin_m_s"] >= s["dv_m_s"]
+        if s["kind"] != "burn":
+            assert s["dv_m_s"] == s["propellant_kg"] == 0.0
+    assert next(drops, None) is None
+
+
+# --- csv, markdown and table hold the same figures ---------------------------------------
+
+
+def csv_rows(text: str) -> list[list[str]]:
+    lines = [ln for ln in text.splitlines() if ln.strip() and not ln.startswith("#")]
+    return list(csv.reader(io.StringIO("\n".join(lines))))
+
+
+def test_csv_has_header_steps_and_total(capsys, sample):
+    rep = strict_json(run(capsys, "run", sample, "--format", "json")[1])
+    code, out, _ = run(capsys, "run", sample, "--format", "csv")
+    assert code == 0
+    rows = csv_rows(out)
+    header, body, total = rows[0], rows[1:-1], rows[-1]
+    for key in ("index", "name", "kind", "dv_m_s", "propellant_kg", "mass_after_kg"):
+        assert key in header
+    assert len(body) == len(rep["steps"])
+    col = {k: header.index(k) for k in header}
+    for row, s in zip(body, rep["steps"]):
+        assert len(row) == len(header)
+        assert row[col["name"]] == s["name"]
+        assert float(row[col["dv_m_s"]]) == pytest.approx(s["dv_m_s"], abs=1e-6)
+        assert float(row[col["mass_after_kg"]]) == pytest.approx(s["mass_after_kg"], abs=1e-6)
+    assert "total" in total
+    assert float(total[col["dv_m_s"]]) == pytest.approx(rep["totals"]["dv_m_s"], abs=1e-6)
+    assert float(total[col["propellant_kg"]]) == pytest.approx(
+        rep["totals"]["propellant_kg"], abs=1e-6)
+
+
+@pytest.mark.parametrize("fmt", ["table", "markdown"])
+def test_text_formats_name_every_step_and_the_total(capsys, sample, fmt):
+    rep = strict_json(run(capsys, "run", sample, "--format", "json")[1])
+    code, out, _ = run(capsys, "run", sample, "--format", fmt)
+    assert code == 0
+    for s in rep["steps"]:
+        assert s["name"] in out
+    assert f"{rep['totals']['dv_m_s']:,.1f}".replace(",", "") in out.replace(",", "")
+    if fmt == "markdown":
+        assert out.lstrip().startswith("## ")
+        assert "|---|" in out
+
+
+# --- bodies -------------------------------------------------------------------------------
+
+
+def test_bodies_prints_the_catalogue(capsys):
+    code, out, err = run(capsys, "bodies")
+    assert code == 0
+    assert err == ""
+    for name in ("Sun", "Earth", "Moon", "Mars", "Jupiter", "Titan"):
+        assert re.search(rf"\b{name}\b", out), name
+    # published GM values, as the catalogue states them (IERS 2010 Conventions, Table 1.1)
+    assert "398600.4418" in out
+    assert not NON_FINITE.search(out)
+
+
+# --- a plan that cannot be flown ----------------------------------------------------------
+
+STARVED = """\
+plan "Short of propellant"
+around earth
+craft tug {
+    dry 500 kg
+    propellant 40 kg
+    engine main isp 300 s thrust 400 N
+}
+start circular 400 km
+burn lift at periapsis: apoapsis to 1000 km
+coast wait to apoapsis
+burn ring: periapsis to 1000 km
+burn far at periapsis: apoapsis to 35786 km
+"""
+
+
+@pytest.mark.parametrize("fmt", FORMATS)
+def test_unflyable_plan_prints_partial_report_and_located_error(capsys, tmp_path, fmt):
+    path = tmp_path / "starved.aps"
+    path.write_text(STARVED)
+    code, out, err = run(capsys, "run", path, "--format", fmt)
+    assert code == 2
+    assert "Traceback" not in err
+    assert f"{path}:11:1: error:" in err
+    assert "ring: propellant exhausted" in err
+    assert "hint:" in err
+    assert "   11 | burn ring: periapsis to 1000 km" in err
+    # the steps flown before the failure are on stdout, the failing one and later are not
+    if fmt == "json":
+        rep = strict_json(out)
+        assert [s["name"] for s in rep["steps"]] == ["lift", "wait"]
+        assert rep["error"]["line"] == 11
+        assert rep["error"]["column"] == 1
+    else:
+        assert not NON_FINITE.search(out)
+        assert re.search(r"\blift\b", out) and re.search(r"\bwait\b", out)
+        assert not re.search(r"\bring\b", out) and not re.search(r"\bfar\b", out)
+
+
+def test_usage_errors_exit_2_without_traceback(capsys, tmp_path):
+    with pytest.raises(SystemExit) as exc:
+        main(["run", str(tmp_path / "x.aps"), "--format", "yaml"])
+    assert exc.value.code == 2
+    err = capsys.readouterr().err
+    assert "invalid choice" in err and "Traceback" not in err
+    with pytest.raises(SystemExit) as exc:
+        main(["launch"])
+    assert exc.value.code == 2
