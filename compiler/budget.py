@@ -47,7 +47,7 @@ def orbit_dict(r, v, mu: float, radius: float) -> dict:
 
 def _step_dict(i: int, row: Row, mu: float, radius: float) -> dict:
     burn = row.kind == "burn"
-    ms = lambda x: finite(x[0] * 1000.0, 6) if x is not None else 0.0  # noqa: E731
+    ms = lambda x: finite(x[0] * 1000.0, 6) if x is not None else 0.0
     vec = row.dv_vec[0] * 1000.0 if burn else np.zeros(3)
     out = {
         "index": i,

@@ -10,8 +10,8 @@ costs less.  The saving in the finding is the difference of the two priced plans
 from __future__ import annotations
 
 import difflib
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field, replace
-from typing import Callable, Iterable
 
 from apsidal.lang import syntax as ast
 from apsidal.lang.errors import PlanError

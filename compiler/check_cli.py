@@ -5,12 +5,11 @@ from __future__ import annotations
 import json
 import sys
 
+from apsidal.lang.errors import PlanError
+from apsidal.lang.units import to_internal
 from rich.console import Console
 from rich.markup import escape
 from rich.syntax import Syntax
-
-from apsidal.lang.errors import PlanError
-from apsidal.lang.units import to_internal
 
 from .check import SEVERITIES, Finding, check_program
 from .load import load

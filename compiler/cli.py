@@ -12,9 +12,8 @@ import argparse
 import os
 import sys
 
-from rich.console import Console
-
 from apsidal.lang.errors import PlanError
+from rich.console import Console
 
 from . import bodies, render
 from .budget import budget

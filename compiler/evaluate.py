@@ -13,7 +13,6 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 
 import numpy as np
-
 from apsidal.lang.errors import PlanError
 
 from . import kepler
@@ -50,10 +49,10 @@ class Batch:
     def size(self) -> int:
         return self.r.shape[0]
 
-    def take(self, idx) -> "Batch":
+    def take(self, idx) -> Batch:
         return Batch(*(getattr(self, f)[idx] for f in _FIELDS))
 
-    def where(self, mask: np.ndarray, other: "Batch") -> "Batch":
+    def where(self, mask: np.ndarray, other: Batch) -> Batch:
         """Elementwise: self where mask, else other."""
         def pick(a, b):
             m = mask.reshape(mask.shape + (1,) * (a.ndim - 1))
@@ -203,11 +202,11 @@ def _solve_burn(step: Burn, r, v, ctx: Context, fails: Failures, normal=None):
             R = step.circular_radius
             off = np.abs(rmag - R) > 1e-9 * rmag
             fails.add(off, lambda i: (
-                f"`circular {R - ctx.radius:.3f} km` needs the craft at that altitude, "
+                (f"`circular {R - ctx.radius:.3f} km` needs the craft at that altitude, "
                 f"but it is at {rmag[i] - ctx.radius:.3f} km; one burn can only "
-                "circularise at the current radius",
-                f"use `transfer NAME: circular {R - ctx.radius:g} km`, or drop the altitude "
-                "to circularise here"))
+                "circularise at the current radius"),
+                (f"use `transfer NAME: circular {R - ctx.radius:g} km`, or drop the altitude "
+                "to circularise here")))
         shape = Shape(periapsis=rmag, apoapsis=rmag)
     else:
         shape = Shape(periapsis=None if step.periapsis is None else np.full_like(rmag, step.periapsis),
@@ -265,11 +264,11 @@ def _price(batch: Batch, out: BurnOutcome, engine: EngineSpec, margin: float, ct
     short = need > left * (1 + 1e-12) + 1e-12
     capacity = ve * np.log(batch.mass / np.maximum(batch.mass - left, 1e-300))
     fails.add(short, lambda i: (
-        f"{name}: propellant exhausted: the burn needs {need[i]:.3f} kg "
+        (f"{name}: propellant exhausted: the burn needs {need[i]:.3f} kg "
         f"({dvm[i] * 1000:.3f} m/s with margin) but {left[i]:.3f} kg remain, "
-        f"a shortfall of {need[i] - left[i]:.3f} kg",
-        f"{left[i]:.3f} kg give at most {capacity[i] * 1000:.3f} m/s with engine "
-        f"`{engine.name}`; add propellant, lower the margin or drop mass earlier"),
+        f"a shortfall of {need[i] - left[i]:.3f} kg"),
+        (f"{left[i]:.3f} kg give at most {capacity[i] * 1000:.3f} m/s with engine "
+        f"`{engine.name}`; add propellant, lower the margin or drop mass earlier")),
         code="propellant")
     used = np.minimum(need, left)
     burn_time = used * ve * 1000.0 / engine.thrust
@@ -296,10 +295,10 @@ def _check_surface(r, v, ctx: Context, fails: Failures, name: str):
     reaches = el.closed | inbound
     low = reaches & (el.periapsis < ctx.radius)
     fails.add(low, lambda i: (
-        f"the periapsis falls to {el.periapsis[i] - ctx.radius:.3f} km altitude, under the "
-        f"surface (the body's radius is {ctx.radius:.3f} km)",
-        "raise the periapsis, or check the goal's altitude (altitudes are above the "
-        "equatorial radius; `radius X` gives a radius)"))
+        (f"the periapsis falls to {el.periapsis[i] - ctx.radius:.3f} km altitude, under the "
+        f"surface (the body's radius is {ctx.radius:.3f} km)"),
+        ("raise the periapsis, or check the goal's altitude (altitudes are above the "
+        "equatorial radius; `radius X` gives a radius)")))
 
 
 def _engine(step, ctx: Context) -> EngineSpec:
@@ -327,7 +326,7 @@ def _phase_burns(step: Transfer, r, v, ctx: Context):
     """The burns of a transfer as plain Burn steps (plane goals filled in later)."""
     rmag = norm(r)
     eng, margin, span = step.engine, step.margin, step.span
-    mk = lambda i, place, **goals: Burn(f"{step.name}/{i}", place, engine=eng,  # noqa: E731
+    mk = lambda i, place, **goals: Burn(f"{step.name}/{i}", place, engine=eng,
                                         margin=margin, span=span, **goals)
     if step.form == "hohmann":
         up = step.radius >= rmag
@@ -517,8 +516,8 @@ def _coast(step: Coast, index: int, batch: Batch, ctx: Context, fails: Failures)
 def _drop(step: Drop, index: int, batch: Batch, ctx: Context, fails: Failures):
     dry = batch.mass - batch.propellant
     fails.add(step.mass >= dry, lambda i: (
-        f"{step.name} drops {step.mass:.3f} kg but the craft holds only {dry[i]:.3f} kg "
-        "besides its propellant",
+        (f"{step.name} drops {step.mass:.3f} kg but the craft holds only {dry[i]:.3f} kg "
+        "besides its propellant"),
         "drop less, or check the craft's dry mass"))
     new = replace(batch, mass=np.where(fails.ok, batch.mass - step.mass, batch.mass))
     return new, [Row(index, step.name, "drop", "here", new)]

@@ -8,7 +8,6 @@ at the offending node, with what would work.
 from __future__ import annotations
 
 import numpy as np
-
 from apsidal.lang import syntax as ast
 from apsidal.lang.errors import PlanError, Span, did_you_mean
 
@@ -220,7 +219,7 @@ class Lowerer:
             raise _err(f"the start orbit's periapsis ({rp - self.body.radius:.3f} km altitude) "
                        "is under the surface", shape_node,
                        "altitudes are above the equatorial radius; `radius X` gives a radius")
-        get = lambda k: f[k].value.internal() if k in f else 0.0  # noqa: E731
+        get = lambda k: f[k].value.internal() if k in f else 0.0
         inc, raan, argp, nu = get("inclination"), get("raan"), get("argp"), get("anomaly")
         if not 0.0 <= inc <= np.pi + 1e-12:
             raise _err(f"inclination {np.degrees(inc):g} deg is outside 0 to 180 deg",

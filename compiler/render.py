@@ -72,14 +72,14 @@ def table(report: dict, console: Console) -> None:
     console.print(t)
     tot = report["totals"]
     lines = [
-        f"total delta-v        {tot['dv_m_s']:,.1f} m/s  "
-        f"({tot['dv_with_margin_m_s']:,.1f} m/s with margin)",
-        f"propellant used      {tot['propellant_kg']:,.2f} kg   "
-        f"left {tot['propellant_left_kg']:,.2f} kg",
+        (f"total delta-v        {tot['dv_m_s']:,.1f} m/s  "
+        f"({tot['dv_with_margin_m_s']:,.1f} m/s with margin)"),
+        (f"propellant used      {tot['propellant_kg']:,.2f} kg   "
+        f"left {tot['propellant_left_kg']:,.2f} kg"),
         f"final mass           {tot['final_mass_kg']:,.2f} kg",
-        f"delta-v capacity     {tot['dv_capacity_left_m_s']:,.1f} m/s left "
+        (f"delta-v capacity     {tot['dv_capacity_left_m_s']:,.1f} m/s left "
         f"(reserve {tot['reserve_m_s']:,.1f} m/s: "
-        f"{'covered' if tot['reserve_met'] else 'NOT covered'})",
+        f"{'covered' if tot['reserve_met'] else 'NOT covered'})"),
         f"elapsed              {duration(tot['elapsed_s'])}",
     ]
     for line in lines:
@@ -126,8 +126,8 @@ def markdown(report: dict) -> str:
             _md_row(["propellant left", f"{tot['propellant_left_kg']:.2f} kg"]),
             _md_row(["final mass", f"{tot['final_mass_kg']:.2f} kg"]),
             _md_row(["delta-v capacity left", f"{tot['dv_capacity_left_m_s']:.1f} m/s"]),
-            _md_row(["reserve", f"{tot['reserve_m_s']:.1f} m/s "
-                     f"({'covered' if tot['reserve_met'] else 'not covered'})"]),
+            _md_row(["reserve", (f"{tot['reserve_m_s']:.1f} m/s "
+                     f"({'covered' if tot['reserve_met'] else 'not covered'})")]),
             _md_row(["elapsed", duration(tot["elapsed_s"])])]
     checks = [(s, c) for s in report["steps"] for c in s.get("checks", [])]
     if checks:

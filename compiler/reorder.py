@@ -23,7 +23,7 @@ import numpy as np
 
 from .evaluate import Batch, Context, apply, context_for, start_batch
 from .state import dot, elements_from_state, frame, norm
-from .steps import Burn, Coast, Drop, Expect, Program, Transfer
+from .steps import Burn, Coast, Drop, Expect, Program
 
 EXHAUSTIVE_NODES = 200_000  # tree nodes priced before the search turns to a beam
 BEAM = 4096
@@ -34,9 +34,7 @@ def is_barrier(step) -> bool:
         return True
     if isinstance(step, Burn) and step.vector is not None:
         return True
-    if isinstance(step, Coast) and step.mode in ("for", "rev"):
-        return True
-    return False
+    return bool(isinstance(step, Coast) and step.mode in ("for", "rev"))
 
 
 def blocks(program: Program) -> list[list[int]]:

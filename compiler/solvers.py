@@ -24,8 +24,8 @@ a node is the pure rotation with delta-v = 2 v sin(di / 2).
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Callable
 
 import numpy as np
 
@@ -53,7 +53,7 @@ class Failures:
             self._why.append((new, why, code))
             self.ok &= ~new
 
-    def merge(self, mask: np.ndarray, other: "Failures") -> None:
+    def merge(self, mask: np.ndarray, other: Failures) -> None:
         """Take over ``other``'s failures where ``mask``, with their reasons and codes."""
         for m, why, code in other._why:
             self.add(mask & m, why, code)
@@ -91,7 +91,7 @@ def in_plane_speeds(r, v, mu, shape: Shape, body_radius: float, failures: Failur
     vt0 = norm(np.cross(rhat, v))
     if shape.periapsis is None and shape.apoapsis is None:
         return vr0, vt0
-    alt = lambda x: x - body_radius  # noqa: E731 - short local wording helper
+    alt = lambda x: x - body_radius
     tol = RADIUS_TOL * rmag
     if shape.periapsis is not None and shape.apoapsis is not None:
         rp = np.asarray(shape.periapsis, dtype=float) * np.ones_like(rmag)
@@ -102,18 +102,18 @@ def in_plane_speeds(r, v, mu, shape: Shape, body_radius: float, failures: Failur
             "swap the two targets"))
         low = rp > rmag + tol
         failures.add(low, lambda i: (
-            f"periapsis {_fmt_km(alt(rp[i]))} is above the current altitude "
+            (f"periapsis {_fmt_km(alt(rp[i]))} is above the current altitude "
             f"{_fmt_km(alt(rmag[i]))}; a burn can only put the periapsis at or below "
-            "where the craft is",
-            "coast to a point at or above the target first (e.g. `at apoapsis`), "
-            "or use `transfer NAME: circular ...`"))
+            "where the craft is"),
+            ("coast to a point at or above the target first (e.g. `at apoapsis`), "
+            "or use `transfer NAME: circular ...`")))
         high = ra < rmag - tol
         failures.add(high, lambda i: (
-            f"apoapsis {_fmt_km(alt(ra[i]))} is below the current altitude "
+            (f"apoapsis {_fmt_km(alt(ra[i]))} is below the current altitude "
             f"{_fmt_km(alt(rmag[i]))}; a burn can only put the apoapsis at or above "
-            "where the craft is",
-            "coast to a point at or below the target first (e.g. `at periapsis`), "
-            "or use `transfer NAME: circular ...`"))
+            "where the craft is"),
+            ("coast to a point at or below the target first (e.g. `at periapsis`), "
+            "or use `transfer NAME: circular ...`")))
         lo = np.minimum(rp, rmag)
         hi = np.maximum(ra, rmag)
         p = 2.0 * lo * hi / (lo + hi)
@@ -131,29 +131,29 @@ def in_plane_speeds(r, v, mu, shape: Shape, body_radius: float, failures: Failur
     if shape.apoapsis is not None:
         wrong = R < rmag - tol
         failures.add(wrong, lambda i: (
-            f"apoapsis {_fmt_km(alt(R[i]))} is below the current altitude "
+            (f"apoapsis {_fmt_km(alt(R[i]))} is below the current altitude "
             f"{_fmt_km(alt(rmag[i]))}; a burn can only put the apoapsis at or above "
-            "where the craft is",
+            "where the craft is"),
             "burn at a lower point (e.g. `at periapsis`), or use `periapsis to` here"))
     else:
         wrong = R > rmag + tol
         failures.add(wrong, lambda i: (
-            f"periapsis {_fmt_km(alt(R[i]))} is above the current altitude "
+            (f"periapsis {_fmt_km(alt(R[i]))} is above the current altitude "
             f"{_fmt_km(alt(rmag[i]))}; a burn can only put the periapsis at or below "
-            "where the craft is",
+            "where the craft is"),
             "burn at a higher point (e.g. `at apoapsis`), or use `apoapsis to` here"))
     here = np.abs(R - rmag) <= tol
     tilted = here & (np.abs(sing) > 1e-9)
     failures.add(tilted, lambda i: (
-        f"an apsis at the current radius needs horizontal flight, but the flight-path "
-        f"angle here is {np.degrees(np.arcsin(sing[i])):.3f} deg",
+        (f"an apsis at the current radius needs horizontal flight, but the flight-path "
+        f"angle here is {np.degrees(np.arcsin(sing[i])):.3f} deg"),
         "burn at an apsis, or give both `periapsis to` and `apoapsis to`"))
     reach = rmag * cosg
     cant = ~here & (shape.periapsis is not None) & (R >= reach)
     failures.add(cant, lambda i: (
-        f"periapsis {_fmt_km(alt(R[i]))} cannot be reached keeping the flight-path angle "
+        (f"periapsis {_fmt_km(alt(R[i]))} cannot be reached keeping the flight-path angle "
         f"{np.degrees(np.arcsin(sing[i])):.3f} deg; the most is "
-        f"{_fmt_km(alt(reach[i]))}",
+        f"{_fmt_km(alt(reach[i]))}"),
         "give both apsides to turn the velocity, or burn at an apsis"))
     with np.errstate(divide="ignore", invalid="ignore"):
         speed2 = 2.0 * mu * R * (rmag - R) / (rmag * (rmag**2 * cosg**2 - R**2))
@@ -179,10 +179,10 @@ def normal_for(r, v, inclination, raan, failures: Failures):
         off = dot(target, rhat)
         miss = np.abs(off) > 1e-9
         failures.add(miss, lambda i: (
-            f"the plane with inclination {np.degrees(inclination * np.ones(n))[i]:.4f} deg "
+            (f"the plane with inclination {np.degrees(inclination * np.ones(n))[i]:.4f} deg "
             f"and raan {np.degrees(raan * np.ones(n))[i]:.4f} deg does not contain the "
             f"craft's position (it is {np.degrees(np.arcsin(np.clip(off[i], -1, 1))):.4f} "
-            "deg off it)",
+            "deg off it)"),
             _crossing_hint(h0[i], target[i], r[i], v[i])))
         # keep the position exactly in the plane
         fixed = unit(target - off[:, None] * rhat)
@@ -195,9 +195,9 @@ def normal_for(r, v, inclination, raan, failures: Failures):
         lat = np.degrees(np.arcsin(np.clip(rhat[:, 2], -1.0, 1.0)))
         bad = np.abs(ci) > Rr + 1e-12
         failures.add(bad, lambda i: (
-            f"inclination {np.degrees(np.arccos(ci[i])):.4f} deg cannot be reached at "
+            (f"inclination {np.degrees(np.arccos(ci[i])):.4f} deg cannot be reached at "
             f"latitude {lat[i]:.4f} deg: a plane through this point has an inclination "
-            f"between {abs(lat[i]):.4f} and {180 - abs(lat[i]):.4f} deg",
+            f"between {abs(lat[i]):.4f} and {180 - abs(lat[i]):.4f} deg"),
             "burn at a node (`at node`, `at ascending node`, `at descending node`)"))
         phi0 = np.arctan2(B, A)
         spread = np.arccos(np.clip(ci / np.where(Rr > 0, Rr, 1.0), -1.0, 1.0))

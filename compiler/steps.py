@@ -10,7 +10,6 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 
 import numpy as np
-
 from apsidal.lang.errors import Source, Span
 from apsidal.lang.syntax import Plan
 
@@ -163,5 +162,5 @@ class Program:
     plan: Plan | None = None
     start_span: Span | None = None
 
-    def with_steps(self, steps) -> "Program":
+    def with_steps(self, steps) -> Program:
         return replace(self, steps=tuple(steps))

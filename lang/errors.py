@@ -13,8 +13,8 @@ plan.aps:1:8: error: margin must be a ratio (%), not a mass
 from __future__ import annotations
 
 import difflib
+from collections.abc import Iterable
 from dataclasses import dataclass, field
-from typing import Iterable
 
 
 @dataclass(frozen=True)
@@ -59,7 +59,7 @@ class PlanError(Exception):
     def __str__(self) -> str:
         return self.render()
 
-    def located(self, source: Source) -> "PlanError":
+    def located(self, source: Source) -> PlanError:
         if self.source is None:
             self.source = source
         return self

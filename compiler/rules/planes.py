@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import numpy as np
-
 from apsidal.lang import syntax as ast
 
 from ..check import Checker, Finding, rule, saving_text, with_goals, with_where

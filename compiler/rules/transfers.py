@@ -5,7 +5,6 @@ from __future__ import annotations
 import math
 
 import numpy as np
-
 from apsidal.lang import syntax as ast
 from apsidal.lang.errors import Span
 
@@ -88,7 +87,8 @@ def bi_elliptic_cheaper(c: Checker) -> list[Finding]:
         node = c.statements[i]
         low = 1.05 * step.radius
         proof = best_apoapsis(
-            c, lambda alt: c.rewrite({i: [c.unparse(_with_via(node, alt))]}), low, bound)
+            c, lambda alt, i=i, node=node: c.rewrite({i: [c.unparse(_with_via(node, alt))]}),
+            low, bound)
         if proof is None:
             continue
         extra = float(proof.result.final.t[0] - c.result.final.t[0])
@@ -153,7 +153,7 @@ def three_burn_plane_change(c: Checker) -> list[Finding]:
         r = float(np.linalg.norm(row.after.r[0]))
         plane = tuple(g for g in node.goals if g.kind in ("inclination", "raan"))
 
-        def build(alt, node=node, plane=plane):
+        def build(alt, i=i, node=node, plane=plane):
             t = ast.Transfer(node.name, node.where, plane, _distance(alt, node.span),
                              node.options, node.span)
             return c.rewrite({i: [c.unparse(t)]})
