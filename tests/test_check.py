@@ -221,6 +221,23 @@ transfer geo: circular 35786 km via apoapsis 90000 km
     assert f.saves_m_s == pytest.approx(old - hohmann, abs=0.01)
 
 
+def test_large_block_search_is_bounded_and_says_so():
+    from apsidal.compiler.reorder import blocks, search_block
+
+    burns = "\n".join(
+        f"burn up{k} at periapsis: apoapsis to {3000 + 1000 * k} km" if k % 2 else
+        f"burn tilt{k} at node: inclination to {30 - k} deg" for k in range(10))
+    program = load_text(plan("start circular 400 km inclination 30 deg\n" + burns + "\n"),
+                        "big.aps")
+    [block] = blocks(program)
+    res = search_block(program, block)
+    assert len(block) == 10 and not res.exhaustive
+    assert res.best.propellant <= res.original.propellant + 1e-9
+    text = plan("start circular 400 km inclination 30 deg\n" + burns + "\n")
+    notes = [n for f in findings(text, "cheaper-order") for n in f.notes]
+    assert any("bounded search" in n for n in notes)
+
+
 # --- the other rules ----------------------------------------------------------------------
 
 
