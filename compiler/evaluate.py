@@ -488,13 +488,21 @@ def _three_burn_plane_change(step: Transfer, index, batch: Batch, ctx: Context, 
 # --- the other steps -----------------------------------------------------------------
 
 
+def _span_text(seconds: float) -> str:
+    """A coast's length as a reader would write it: 2 d, 90 min, 3.5 h, 40 s."""
+    for unit, size in (("d", 86400.0), ("h", 3600.0), ("min", 60.0)):
+        if seconds >= size and (seconds / size) * 100 == round((seconds / size) * 100):
+            return f"{seconds / size:g} {unit}"
+    return f"{seconds:g} s"
+
+
 def _coast(step: Coast, index: int, batch: Batch, ctx: Context, fails: Failures):
     mu = ctx.mu
     if step.mode == "for":
         r, v, ok = kepler.propagate(batch.r, batch.v, mu, np.full(batch.size, step.duration))
         fails.add(~ok, lambda i: ("the coast could not be propagated", None))
         dt = np.full(batch.size, step.duration)
-        at = "for"
+        at = f"for {_span_text(step.duration)}"
     elif step.mode == "to":
         r, v, dt = goto(step.place, batch.r, batch.v, mu, fails)
         at = step.place.label()

@@ -58,7 +58,7 @@ def table(report: dict, console: Console) -> None:
     for col, just in (("#", "right"), ("step", "left"), ("where", "left"),
                       ("delta-v m/s", "right"), ("with margin", "right"),
                       ("propellant kg", "right"), ("mass after kg", "right"),
-                      ("orbit after (periapsis x apoapsis, inclination)", "left"),
+                      ("orbit after: periapsis x apoapsis, incl.", "left"),
                       ("elapsed", "right")):
         t.add_column(col, justify=just)
     for s in report["steps"]:
