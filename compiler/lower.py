@@ -321,8 +321,14 @@ class Lowerer:
         return Place(where.kind, angle)
 
     def _options(self, node):
-        engine, margin = None, self.margin
+        engine, margin, seen = None, self.margin, {}
         for opt in node.options:
+            if opt.key in seen:
+                raise _err(f"`{opt.key}` is given twice in one step", opt,
+                           f"keep one (the first is at column {seen[opt.key].span.column})")
+            seen[opt.key] = opt
+            if opt.key == "fixed":
+                continue
             if opt.key == "using":
                 engine = self.craft.engine(opt.value.text)
                 if engine is None:
@@ -333,7 +339,7 @@ class Lowerer:
                                "its engines are " + ", ".join(f"`{n}`" for n in names))
             else:
                 margin = opt.value.internal()
-        return engine, margin
+        return engine, margin, "fixed" in seen
 
     def _goals(self, node) -> dict:
         goals: dict = {}
@@ -366,7 +372,7 @@ class Lowerer:
     def _burn(self, node: ast.Burn) -> Burn:
         name = self._name(node, "burn")
         goals = self._goals(node)
-        engine, margin = self._options(node)
+        engine, margin, fixed = self._options(node)
         place = self._place(node.where)
         explicit = [k for k in ("along", "cross", "radial") if k in goals]
         if explicit:
@@ -376,7 +382,8 @@ class Lowerer:
                            goals[other[0]], "split it into two burns")
             vec = tuple(goals[k].value.internal() if k in goals else 0.0
                         for k in ("along", "cross", "radial"))
-            return Burn(name, place, vector=vec, engine=engine, margin=margin, span=node.span)
+            return Burn(name, place, vector=vec, engine=engine, margin=margin, span=node.span,
+                        fixed=fixed)
         if "circular" in goals and ("periapsis" in goals or "apoapsis" in goals):
             raise _err("`circular` already sets both apsides", goals["circular"],
                        "drop `circular`, or drop the apsis goal")
@@ -402,12 +409,13 @@ class Lowerer:
                        "180 deg", goals["inclination"],
                        "a retrograde orbit has an inclination above 90 deg; to move the node "
                        "instead, use `raan to`")
-        return Burn(name, place, engine=engine, margin=margin, span=node.span, **kw)
+        return Burn(name, place, engine=engine, margin=margin, span=node.span, fixed=fixed,
+                    **kw)
 
     def _transfer(self, node: ast.Transfer) -> Transfer:
         name = self._name(node, "transfer")
         goals = self._goals(node)
-        engine, margin = self._options(node)
+        engine, margin, fixed = self._options(node)
         place = self._place(node.where)
         bad = [k for k in goals if k not in ("circular", "inclination", "raan")]
         if bad:
@@ -430,7 +438,7 @@ class Lowerer:
                            f"give an apoapsis above {radius - self.body.radius:g} km")
             form = "bielliptic" if via is not None else "hohmann"
             return Transfer(name, place, form, radius, via, inc, raan, None, engine, margin,
-                            node.span)
+                            node.span, fixed)
         if inc is None and raan is None:
             raise _err("a transfer needs a target: `circular ALT` and/or a plane", node,
                        "e.g. `transfer geo: circular 35786 km` or "
@@ -439,7 +447,7 @@ class Lowerer:
             raise _err("a plane-change transfer needs `via apoapsis ALT`", node,
                        "add the raised apoapsis, or use `burn NAME at node: inclination to ...`")
         return Transfer(name, place, "plane-change", None, via, inc, raan, None, engine, margin,
-                        node.span)
+                        node.span, fixed)
 
     def _expect(self, node: ast.Expect) -> Expect:
         name = self._name(node, "expect")

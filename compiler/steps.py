@@ -76,6 +76,7 @@ class Burn:
     engine: EngineSpec | None = None
     margin: float = 0.0
     span: Span | None = None
+    fixed: bool = False  # pinned in place: the reorder search does not move it
     kind: str = field(default="burn", init=False)
 
     @property
@@ -102,6 +103,7 @@ class Transfer:
     engine: EngineSpec | None = None
     margin: float = 0.0
     span: Span | None = None
+    fixed: bool = False
     kind: str = field(default="transfer", init=False)
 
     @property

@@ -489,7 +489,10 @@ class _ToSyntax(Transformer):
         return tuple(children)
 
     def option(self, meta, children):
-        key, value = str(children[0]), children[1]
+        key = str(children[0])
+        if key == "fixed":
+            return ast.Option(key, None, _span(meta))
+        value = children[1]
         if key == "using":
             return ast.Option(key, _named(value, "an engine"), _span(meta))
         return ast.Option(key, _checked(value, SLOTS["option.margin"]), _span(meta))

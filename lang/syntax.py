@@ -85,10 +85,10 @@ class Goal:
 
 @dataclass(frozen=True)
 class Option:
-    """A trailing step option: ``using trim`` or ``margin 20 %``."""
+    """A trailing step option: ``using trim``, ``margin 20 %`` or ``fixed``."""
 
-    key: str  # using | margin
-    value: Name | Quantity
+    key: str  # using | margin | fixed
+    value: Name | Quantity | None  # None for `fixed`
     span: Span
 
 

@@ -417,3 +417,10 @@ def test_reported_orderings_never_cost_more_and_reach_the_same_orbit(text):
         assert i1 == pytest.approx(i0, abs=1e-4)
         if i0 > 1e-3:
             assert np.cos(np.radians(raan1 - raan0)) > math.cos(1e-4)
+
+
+def test_a_fixed_step_is_not_moved():
+    pinned = LOW_PLANE_FIRST.replace("burn plane at node: inclination to 0 deg",
+                                     "burn plane at node: inclination to 0 deg fixed")
+    assert findings(pinned, "cheaper-order") == []
+    assert findings(LOW_PLANE_FIRST, "cheaper-order") != []
