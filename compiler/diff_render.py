@@ -1,0 +1,200 @@
+"""Renderers of a budget diff (compiler/diff.py): a rich table, Markdown for a review
+comment, JSON, and the plain budget text that ``git diff`` compares (textconv)."""
+
+from __future__ import annotations
+
+import json
+
+from rich import box
+from rich.console import Console
+from rich.table import Table
+
+from .budget import CAUTION
+from .render import duration
+
+# The totals, in the order and words a reviewer reads them: (key, label, unit, digits).
+TOTALS = (
+    ("dv_m_s", "delta-v", "m/s", 1),
+    ("dv_with_margin_m_s", "delta-v with margin", "m/s", 1),
+    ("propellant_kg", "propellant used", "kg", 2),
+    ("final_mass_kg", "final mass", "kg", 2),
+    ("propellant_left_kg", "propellant left", "kg", 2),
+    ("dv_capacity_left_m_s", "delta-v capacity left", "m/s", 1),
+    ("elapsed_s", "elapsed", "s", 1),
+)
+STATUS_STYLE = {"added": "green", "removed": "red", "changed": "yellow", "moved": "cyan",
+                "same": "dim"}
+
+
+def signed(x, digits: int) -> str:
+    """A change with its sign; zero (at the shown precision) as a bare 0.
+
+    >>> signed(38.24, 1), signed(-7.9, 2), signed(0.00001, 1)
+    ('+38.2', '-7.90', '0')
+    """
+    if x is None:
+        return "-"
+    if round(x, digits) == 0:
+        return "0"
+    return f"{x:+,.{digits}f}"
+
+
+def _plain(x, digits: int) -> str:
+    return "-" if x is None else f"{x:,.{digits}f}"
+
+
+def _total_cells(diff: dict, key: str, digits: int, unit: str) -> tuple[str, str, str]:
+    old, new, ch = diff["old"].get(key), diff["new"].get(key), diff["change"].get(key)
+    if key == "elapsed_s":
+        change = "0" if ch is not None and abs(ch) < 0.05 else (
+            ("-" if ch < 0 else "+") + duration(abs(ch)) if ch is not None else "-")
+        return duration(old), duration(new), change
+    return (f"{_plain(old, digits)} {unit}", f"{_plain(new, digits)} {unit}",
+            f"{signed(ch, digits)} {unit}")
+
+
+def headline(diff: dict) -> str:
+    """The budget change in one line: ``+38.2 m/s delta-v with margin, +7.9 kg
+    propellant``."""
+    ch = diff["change"]
+    dv, kg = ch.get("dv_with_margin_m_s"), ch.get("propellant_kg")
+    if signed(dv, 1) == "0" and signed(kg, 2) == "0":
+        return "no change to delta-v or propellant"
+    return f"{signed(dv, 1)} m/s delta-v with margin, {signed(kg, 2)} kg propellant"
+
+
+def _step_label(entry: dict) -> str:
+    renamed = entry.get("renamed_from")
+    return f"{entry['name']} (was {renamed})" if renamed else entry["name"]
+
+
+def _where(entry: dict) -> str:
+    old, new = entry["old"], entry["new"]
+    if old and new and old["at"] != new["at"]:
+        return f"{old['at']} -> {new['at']}"
+    return (new or old)["at"]
+
+
+def _step_cells(entry: dict) -> list[str]:
+    side = entry["new"] or entry["old"]
+    ch = entry["change"]
+    burn = side["kind"] == "burn"
+    if not burn and not (entry["old"] and entry["old"]["kind"] == "burn"):
+        return ["", "", "", "", "", ""]
+    now = entry["new"] or {}
+    return [_plain(now.get("dv_m_s"), 1) if entry["new"] else "-", signed(ch["dv_m_s"], 1),
+            signed(ch["dv_with_margin_m_s"], 1),
+            _margin(entry), _plain(now.get("propellant_kg"), 2) if entry["new"] else "-",
+            signed(ch["propellant_kg"], 2)]
+
+
+def _margin(entry: dict) -> str:
+    a, b = (None if s is None else s.get("margin_pct") for s in (entry["old"], entry["new"]))
+    if a is not None and b is not None and abs(a - b) > 1e-9:
+        return f"{a:g} -> {b:g} %"
+    value = b if b is not None else a
+    return "" if value is None else f"{value:g} %"
+
+
+STEP_COLUMNS = ("status", "step", "where", "delta-v m/s", "change", "change with margin",
+                "margin", "propellant kg", "change")
+
+
+def _findings_lines(diff: dict) -> list[tuple[str, dict]]:
+    found = diff.get("findings")
+    if not found:
+        return []
+    return ([("appeared", f) for f in found["appeared"]]
+            + [("disappeared", f) for f in found["disappeared"]])
+
+
+def _finding_text(f: dict) -> str:
+    saving = f" (saves {f['saves_m_s']:.1f} m/s, {f['saves_kg']:.2f} kg)" \
+        if f.get("saves_m_s") is not None and f.get("saves_kg") is not None else ""
+    return f"{f['severity']} {f['rule']} [{', '.join(f['steps'])}]: {f['message']}{saving}"
+
+
+def table(diff: dict, console: Console, old_label: str, new_label: str) -> None:
+    console.print(f"Budget change {old_label} -> {new_label}: {headline(diff)}",
+                  style="bold", highlight=False)
+    t = Table(box=box.SIMPLE_HEAVY)
+    for col in STEP_COLUMNS:
+        t.add_column(col, justify="left" if col in ("status", "step", "where") else "right")
+    for e in diff["steps"]:
+        side = e["new"] or e["old"]
+        t.add_row(e["status"], f"{side['kind']} {_step_label(e)}", _where(e), *_step_cells(e),
+                  style=STATUS_STYLE[e["status"]])
+    console.print(t)
+    tot = Table(box=box.SIMPLE_HEAVY)
+    for col in ("total", old_label, new_label, "change"):
+        tot.add_column(col, justify="left" if col == "total" else "right")
+    for key, label, unit, digits in TOTALS:
+        tot.add_row(label, *_total_cells(diff, key, digits, unit))
+    console.print(tot)
+    lines = _findings_lines(diff)
+    if lines:
+        console.print("Findings", style="bold")
+        for how, f in lines:
+            console.print(f"  {how}: {_finding_text(f)}", highlight=False)
+    console.print(f"Caution: {CAUTION}", style="italic", highlight=False)
+
+
+def _md_row(cells) -> str:
+    return "| " + " | ".join(str(c).replace("|", "\\|") for c in cells) + " |"
+
+
+def markdown(diff: dict, old_label: str, new_label: str) -> str:
+    """A review comment: the headline, the steps that are not the same, the totals."""
+    out = [f"**Delta-v budget: {headline(diff)}** (`{old_label}` -> `{new_label}`)", ""]
+    shown = [e for e in diff["steps"] if e["status"] != "same"]
+    if shown:
+        out += [_md_row(STEP_COLUMNS), "|" + "---|" * 3 + "--:|" * 6]
+        for e in shown:
+            side = e["new"] or e["old"]
+            out.append(_md_row([e["status"], f"{side['kind']} `{_step_label(e)}`", _where(e),
+                                *_step_cells(e)]))
+        same = len(diff["steps"]) - len(shown)
+        if same:
+            out += ["", f"{same} other step{'s' if same != 1 else ''} unchanged."]
+    else:
+        out.append("No step changed.")
+    out += ["", _md_row(["total", f"`{old_label}`", f"`{new_label}`", "change"]),
+            "|---|--:|--:|--:|"]
+    for key, label, unit, digits in TOTALS:
+        out.append(_md_row([label, *_total_cells(diff, key, digits, unit)]))
+    lines = _findings_lines(diff)
+    if lines:
+        out += ["", "**Findings**", ""]
+        out += [f"- {how}: {_finding_text(f)}" for how, f in lines]
+    out += ["", f"_{CAUTION}_", ""]
+    return "\n".join(out)
+
+
+def to_json(diff: dict) -> str:
+    return json.dumps(diff, indent=2, allow_nan=False)
+
+
+def budget_text(report: dict) -> str:
+    """A plain, line-per-fact budget for ``git diff`` to compare (textconv).
+
+    Each step is one line and each total is one line, so a revision that changes one
+    burn shows as that burn's line and the totals it moved.
+    """
+    lines = ["", "# ---- budget computed by apsidal (not part of the file) ----"]
+    for s in report["steps"]:
+        if s["kind"] == "burn":
+            facts = (f"{s['dv_m_s']:.1f} m/s, {s['dv_with_margin_m_s']:.1f} m/s with margin, "
+                     f"{s['propellant_kg']:.2f} kg, engine {s.get('engine', '-')}")
+        elif s["kind"] == "expect":
+            facts = ", ".join(
+                f"{c['kind']} {'pass' if c['passed'] else 'FAIL'}" for c in s.get("checks", []))
+        else:
+            facts = f"mass after {s['mass_after_kg']:.2f} kg"
+        lines.append(f"# {s['kind']} {s['name']} ({s['at']}): {facts}")
+    for key, label, unit, digits in TOTALS:
+        value = report["totals"].get(key)
+        shown = duration(value) if key == "elapsed_s" else f"{_plain(value, digits)} {unit}"
+        lines.append(f"# total {label}: {shown}")
+    if "error" in report:
+        lines.append(f"# the plan cannot be flown: {report['error']['message']}")
+    return "\n".join(lines) + "\n"
