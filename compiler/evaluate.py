@@ -130,8 +130,7 @@ def _target_angle(place: Place, r, v, mu, fails: Failures):
     """Sweep angle ahead to ``place``; zero where the place is here."""
     f = frame(r, v, mu)
     ecc = norm(f.e_vec)
-    hz = f.h[:, 2]
-    equatorial = np.abs(hz) > np.cos(EQUATORIAL_RAD)
+    equatorial = np.hypot(f.h[:, 0], f.h[:, 1]) <= np.sin(EQUATORIAL_RAD)
     circular = ecc < CIRCULAR_ECC
     open_ = ecc >= 1.0
     kind = place.kind
@@ -155,6 +154,8 @@ def _target_angle(place: Place, r, v, mu, fails: Failures):
             d = np.mod(-now, TWO_PI)
         elif kind == "descending node":
             d = np.mod(np.pi - now, TWO_PI)
+        elif kind == "node":  # for a coast: the next node (a burn prices both instead)
+            d = np.minimum(np.mod(-now, TWO_PI), np.mod(np.pi - now, TWO_PI))
         else:
             raise ValueError(f"unknown place {kind!r}")
         d = np.where(equatorial, 0.0, d)
@@ -490,9 +491,9 @@ def _three_burn_plane_change(step: Transfer, index, batch: Batch, ctx: Context, 
 
 def _span_text(seconds: float) -> str:
     """A coast's length as a reader would write it: 2 d, 90 min, 3.5 h, 40 s."""
-    for unit, size in (("d", 86400.0), ("h", 3600.0), ("min", 60.0)):
+    for word, size in (("d", 86400.0), ("h", 3600.0), ("min", 60.0)):
         if seconds >= size and (seconds / size) * 100 == round((seconds / size) * 100):
-            return f"{seconds / size:g} {unit}"
+            return f"{seconds / size:g} {word}"
     return f"{seconds:g} s"
 
 

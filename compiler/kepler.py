@@ -167,7 +167,9 @@ def sweep_for_time(r: np.ndarray, v: np.ndarray, mu: float, dt: np.ndarray):
             E1 = _solve_elliptic(m1, ec)
             nu1 = 2.0 * np.arctan2(np.sqrt(1.0 + ec) * np.sin(E1 / 2),
                                    np.sqrt(1.0 - ec) * np.cos(E1 / 2))
-            dtheta[closed] = np.mod(nu1 - nu0[closed], TWO_PI)
+            swept = np.mod(nu1 - nu0[closed], TWO_PI)
+            # rounding can leave a zero sweep just below a full turn: that is no sweep
+            dtheta[closed] = np.where(swept > TWO_PI - 1e-12, 0.0, swept)
         opened = ~closed & ~parabolic
         if opened.any():
             eo = e[opened]

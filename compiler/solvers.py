@@ -172,7 +172,6 @@ def normal_for(r, v, inclination, raan, failures: Failures):
     """
     rhat = unit(r)
     h0 = unit(np.cross(r, v))
-    t0 = np.cross(h0, rhat)
     n = rhat.shape[0]
     if inclination is not None and raan is not None:
         target = plane_normal(inclination * np.ones(n), raan * np.ones(n))
@@ -188,23 +187,32 @@ def normal_for(r, v, inclination, raan, failures: Failures):
         fixed = unit(target - off[:, None] * rhat)
         return fixed
     if inclination is not None:
+        # The new normal lies in the plane perpendicular to r: h' = a u + b w with u the
+        # unit projection of z on that plane and w = r x u (horizontal).  Its z part is
+        # a |z_perp| = cos i, so a = cos i / |z_perp| and b^2 = (sin^2 i - r_z^2) / |z_perp|^2,
+        # exactly zero at the edge of what is reachable; b's sign picks the smaller turn.
         ci = np.cos(inclination) * np.ones(n)
-        A = h0[:, 2]
-        B = t0[:, 2]
-        Rr = np.hypot(A, B)  # cos(latitude)
-        lat = np.degrees(np.arcsin(np.clip(rhat[:, 2], -1.0, 1.0)))
-        bad = np.abs(ci) > Rr + 1e-12
+        si2 = np.sin(inclination) ** 2 * np.ones(n)
+        rz = rhat[:, 2]
+        zp = np.broadcast_to(np.array([0.0, 0.0, 1.0]), rhat.shape) - rz[:, None] * rhat
+        zlen = norm(zp)
+        lat = np.degrees(np.arcsin(np.clip(rz, -1.0, 1.0)))
+        slack = si2 - rz**2
+        bad = slack < -1e-15
         failures.add(bad, lambda i: (
             (f"inclination {np.degrees(np.arccos(ci[i])):.4f} deg cannot be reached at "
-            f"latitude {lat[i]:.4f} deg: a plane through this point has an inclination "
-            f"between {abs(lat[i]):.4f} and {180 - abs(lat[i]):.4f} deg"),
+             f"latitude {lat[i]:.4f} deg: a plane through this point has an inclination "
+             f"between {abs(lat[i]):.4f} and {180 - abs(lat[i]):.4f} deg"),
             "burn at a node (`at node`, `at ascending node`, `at descending node`)"))
-        phi0 = np.arctan2(B, A)
-        spread = np.arccos(np.clip(ci / np.where(Rr > 0, Rr, 1.0), -1.0, 1.0))
-        cand = np.stack([phi0 + spread, phi0 - spread], axis=-1)
-        cand = np.mod(cand + np.pi, 2 * np.pi) - np.pi
-        pick = np.where(np.abs(cand[:, 0]) <= np.abs(cand[:, 1]), cand[:, 0], cand[:, 1])
-        return np.cos(pick)[:, None] * h0 + np.sin(pick)[:, None] * t0
+        pole = zlen < 1e-12  # over a pole only polar planes pass; keep the current one
+        safe = np.where(pole, 1.0, zlen)
+        u = zp / safe[:, None]
+        w = np.cross(rhat, u)
+        a = ci / safe
+        b = np.sqrt(np.maximum(slack, 0.0)) / safe
+        b = np.where(dot(h0, w) < 0, -b, b)
+        target = a[:, None] * u + b[:, None] * w
+        return np.where(pole[:, None], h0, unit(target))
     # raan alone: the plane with that node line through the current position
     Om = raan * np.ones(n)
     P = rhat[:, 0] * np.sin(Om) - rhat[:, 1] * np.cos(Om)

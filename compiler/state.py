@@ -49,8 +49,8 @@ def unit(a: np.ndarray) -> np.ndarray:
 
 def signed_angle(a: np.ndarray, b: np.ndarray, axis: np.ndarray) -> np.ndarray:
     """Angle from ``a`` to ``b`` about ``axis`` (right hand), in [0, 2 pi)."""
-    ang = np.arctan2(dot(axis, np.cross(a, b)), dot(a, b))
-    return np.mod(ang, TWO_PI)
+    ang = np.mod(np.arctan2(dot(axis, np.cross(a, b)), dot(a, b)), TWO_PI)
+    return np.where(ang >= TWO_PI, 0.0, ang)  # a tiny negative angle rounds to 2 pi
 
 
 @dataclass(frozen=True)
@@ -118,7 +118,7 @@ def elements_from_state(r: np.ndarray, v: np.ndarray, mu: float) -> Elements:
     p = hmag**2 / mu
     with np.errstate(divide="ignore", invalid="ignore"):
         sma = np.where(np.abs(energy) > 0, -mu / (2.0 * energy), np.inf)
-    inc = np.arccos(np.clip(f.h[..., 2], -1.0, 1.0))
+    inc = np.arctan2(np.hypot(f.h[..., 0], f.h[..., 1]), f.h[..., 2])  # well-conditioned at 0
     raan = np.mod(np.arctan2(f.node[..., 1], f.node[..., 0]), TWO_PI)
     argp = signed_angle(f.node, f.periapsis, f.h)
     anomaly = signed_angle(f.periapsis, r, f.h)

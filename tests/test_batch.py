@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import numpy as np
-
 from apsidal.compiler.evaluate import Batch, apply, context_for, run, start_batch
 from apsidal.compiler.load import load_text
 
@@ -45,7 +44,7 @@ def test_one_batch_equals_single_runs():
     batch = Batch(np.stack([p.start_r for p in programs]), np.stack([p.start_v for p in programs]),
                   base.mass, base.propellant, base.t, base.dv, base.dv_margin, base.expect_ok)
     for index, step in enumerate(first.steps):
-        batch, rows, fails = apply(step, index, batch, ctx)
+        batch, _, fails = apply(step, index, batch, ctx)
         assert fails.ok.all()
     for k, single in enumerate(singles):
         assert np.allclose(batch.r[k], single.r[0], rtol=0, atol=1e-9)

@@ -8,16 +8,15 @@ import math
 
 import numpy as np
 import pytest
-from hypothesis import HealthCheck, given, settings
-from hypothesis import strategies as st
-from scipy.optimize import minimize_scalar
-
 from apsidal.compiler import cli
 from apsidal.compiler.budget import budget
 from apsidal.compiler.check import check_program
 from apsidal.compiler.evaluate import run
 from apsidal.compiler.load import load_text
 from apsidal.compiler.rules import BY_NAME, RULES
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+from scipy.optimize import minimize_scalar
 
 # The catalogue's Earth (IERS Conventions 2010, Table 1.1), used by the hand calculations.
 MU = 398600.4418
@@ -162,7 +161,7 @@ def test_break_even_angles_from_our_own_derivation():
     # Optimised apoapsis: the detour starts to pay when d(cost)/dn at n = 1 turns
     # negative, cos-free form: sin(di/2) = 1/3, di = 38.94 deg (from memory: 38.9 deg).
     h = 1e-7
-    slope = lambda di: (three_burn_cost(1 + h, di) - three_burn_cost(1, di)) / h  # noqa: E731
+    slope = lambda di: (three_burn_cost(1 + h, di) - three_burn_cost(1, di)) / h
     from scipy.optimize import brentq
 
     optimised = math.degrees(brentq(slope, math.radians(20), math.radians(60)))

@@ -6,10 +6,9 @@ import doctest
 import importlib
 import pkgutil
 
-import pytest
-
 import apsidal.compiler
 import apsidal.lang
+import pytest
 
 
 def _modules():

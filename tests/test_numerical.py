@@ -265,10 +265,6 @@ def test_time_of_flight_matches_quadrature(name):
         assert dt[0] == pytest.approx(want, rel=1e-10, abs=1e-6)
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "evaluate._target_angle tests `abs(h_z) > cos(EQUATORIAL_RAD)`, but cos(1e-9) is 1.0 "
-    "in double precision, so no orbit is ever equatorial there: `at node` on an "
-    "equatorial orbit coasts to the x-axis crossing instead of burning here"))
 @pytest.mark.parametrize("start", ["start circular 500 km anomaly 30 deg",
                                    ("start orbit periapsis 500 km apoapsis 3000 km argp 45 deg "
                                     "anomaly 30 deg")])

@@ -190,10 +190,6 @@ def test_time_of_flight_inverts_sweep_for_time(elements, fraction):
     assert abs(miss) < 1e-7 * period
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "kepler.sweep_for_time returns 2 pi, not 0, for dt = 0 on some orbits: "
-    "np.mod(nu1 - nu0, 2 pi) of a rounding-size negative difference is 2 pi in floats, "
-    "so time_of_flight(sweep_for_time(0)) is a whole period"))
 def test_sweep_for_no_time_is_no_angle():
     r, v = state_of((6600.0, 0.0, 1.0, 1.0, 0.0, 1.0))
     dtheta, ok = kepler.sweep_for_time(r, v, MU, np.array([0.0]))
@@ -278,7 +274,7 @@ def step_lines(draw, radius: float, dry: float):
     if kind == "coast-for":
         return f"coast for {num(draw(st.floats(0.01, 100.0)))} h"
     if kind == "coast-to":
-        if where in ("", " at node"):  # `coast to node`: see test_coast_to_node below
+        if where == "":
             where = " at periapsis"
         return f"coast to{where[3:]}"
     if kind == "coast-rev":
@@ -366,10 +362,6 @@ def test_no_plan_puts_nan_or_inf_in_the_budget(text):
     assert_clean_budget(budget(result))
 
 
-@pytest.mark.xfail(strict=True, raises=ValueError, reason=(
-    "`coast to node` raises ValueError('unknown place node') from evaluate._target_angle "
-    "(a traceback for something a user can type); burns resolve `node` in burn_outcome, "
-    "coasts go straight to goto"))
 def test_coast_to_node():
     text = ("around earth\ncraft c {\n dry 100 kg\n propellant 10 kg\n"
             " engine m isp 300 s thrust 10 N\n}\nstart circular 500 km inclination 30 deg\n"
@@ -377,6 +369,11 @@ def test_coast_to_node():
     result = run(load_text(text))
     assert result.error is None
     assert result.rows[0].coast_time[0] == 0.0  # the start is at the ascending node
+    # a quarter turn on: the next node is the descending one, half a period after it
+    later = run(load_text(text.replace("inclination 30 deg",
+                                       "inclination 30 deg anomaly 90 deg")))
+    period = 2 * np.pi * np.sqrt((6378.1366 + 500) ** 3 / 398600.4418)
+    assert later.rows[0].coast_time[0] == pytest.approx(period / 4, rel=1e-12)
 
 
 def test_the_generator_reaches_flyable_and_unflyable_plans():

@@ -256,11 +256,6 @@ def test_pure_plane_change_formula(plans, start_deg, goal_deg, where):
     assert turn["orbit_after"]["inclination_deg"] == pytest.approx(goal_deg, abs=1e-9)
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "solvers.normal_for: `inclination to 0 deg` at a node leaves a residual inclination "
-    "of about 1e-6 deg (2.6e-8 rad, above state.EQUATORIAL_RAD) and prices the turn "
-    "about 1.5e-4 m/s low: spread = arccos(clip(cos(i) / hypot(A, B))) is ill-conditioned "
-    "where cos(i) / hypot(A, B) is 1 to rounding"))
 @pytest.mark.parametrize("start_deg,raan_deg", [(51.6, 30.0), (10.0, 0.0)])
 def test_plane_change_to_equatorial_lands_in_the_equator(plans, start_deg, raan_deg):
     # Common practice: dv = 2 v sin(di / 2); and the orbit after `inclination to 0 deg`
