@@ -358,8 +358,6 @@ def _transfer(step: Transfer, index: int, batch: Batch, ctx: Context, fails: Fai
         fails.merge(~take_a, fb)
         new = a[0].where(take_a, b[0])
         rows = [_merge_rows(ra, rb, take_a) for ra, rb in zip(a[1], b[1])]
-        for row in rows:
-            row.at = "node"
         return new, rows
     return _transfer_from(step, index, batch, ctx, fails)
 
@@ -370,7 +368,8 @@ def _merge_rows(a: Row, b: Row, take_a: np.ndarray) -> Row:
             return None
         m = take_a.reshape(take_a.shape + (1,) * (np.ndim(x) - 1))
         return np.where(m, x, y)
-    return Row(a.step, a.name, a.kind, a.at, a.after.where(take_a, b.after),
+    at = a.at if take_a.all() else b.at if not take_a.any() else "node" if a.at != b.at else a.at
+    return Row(a.step, a.name, a.kind, at, a.after.where(take_a, b.after),
                *(pick(getattr(a, f), getattr(b, f)) for f in
                  ("dv_vec", "dv", "dv_margin", "propellant", "burn_time", "coast_time",
                   "duration")), a.engine, a.margin, v_before=pick(a.v_before, b.v_before))
