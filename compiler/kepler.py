@@ -78,15 +78,20 @@ def _mean_anomaly_open(nu: np.ndarray, e: np.ndarray) -> np.ndarray:
     return e * np.sinh(H) - H
 
 
-def time_of_flight(r: np.ndarray, v: np.ndarray, mu: float, dtheta: np.ndarray):
-    """Time to sweep ``dtheta`` (rad, >= 0) from (r, v); returns (dt, ok)."""
-    rmag = norm(r)
-    energy = 0.5 * dot(v, v) - mu / rmag
+def _conic(r: np.ndarray, v: np.ndarray, mu: float):
+    """Energy, true anomaly, eccentricity, semi-latus rectum and which conic each is."""
+    energy = 0.5 * dot(v, v) - mu / norm(r)
     nu0, e = anomaly(r, v, mu)
     p = norm(np.cross(r, v)) ** 2 / mu
-    dtheta = np.asarray(dtheta, dtype=float) * np.ones_like(nu0)
     closed = (e < 1.0 - PARABOLIC_BAND) & (energy < 0)
     parabolic = np.abs(e - 1.0) <= PARABOLIC_BAND
+    return energy, nu0, e, p, closed, parabolic
+
+
+def time_of_flight(r: np.ndarray, v: np.ndarray, mu: float, dtheta: np.ndarray):
+    """Time to sweep ``dtheta`` (rad, >= 0) from (r, v); returns (dt, ok)."""
+    energy, nu0, e, p, closed, parabolic = _conic(r, v, mu)
+    dtheta = np.asarray(dtheta, dtype=float) * np.ones_like(nu0)
     dt = np.zeros_like(nu0)
     ok = np.ones_like(nu0, dtype=bool)
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -148,13 +153,8 @@ def _solve_hyperbolic(M: np.ndarray, e: np.ndarray) -> np.ndarray:
 
 def sweep_for_time(r: np.ndarray, v: np.ndarray, mu: float, dt: np.ndarray):
     """The angle swept in time ``dt`` (s, >= 0) from (r, v); returns (dtheta, ok)."""
-    rmag = norm(r)
-    energy = 0.5 * dot(v, v) - mu / rmag
-    nu0, e = anomaly(r, v, mu)
-    p = norm(np.cross(r, v)) ** 2 / mu
+    energy, nu0, e, p, closed, parabolic = _conic(r, v, mu)
     dt = np.asarray(dt, dtype=float) * np.ones_like(nu0)
-    closed = (e < 1.0 - PARABOLIC_BAND) & (energy < 0)
-    parabolic = np.abs(e - 1.0) <= PARABOLIC_BAND
     dtheta = np.zeros_like(nu0)
     ok = np.ones_like(nu0, dtype=bool)
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
