@@ -43,11 +43,26 @@ def cmd_run(args) -> int:
     program = load(args.plan)
     result = evaluate(program)
     report = budget(result)
+    report["findings"] = [f.as_dict() for f in self_consistency(program, result)]
     emit_report(report, args.format)
     if result.error is not None:
         print(result.error.render(), file=sys.stderr)
         return EXIT_BAD_INPUT
     return EXIT_OK
+
+
+def self_consistency(program, result):
+    """The findings `run` reports itself: what the plan says of itself, no searches.
+
+    Expectations, reserve and burn length (an exhausted tank is the run's error);
+    `check` adds the rules that look for a cheaper plan.
+    """
+    from .check import Checker
+    from .rules import CONSISTENCY
+
+    checker = Checker(program, result)
+    return [f for rule in CONSISTENCY if result.ok or not rule.needs_flyable
+            for f in rule(checker)]
 
 
 def emit_report(report: dict, fmt: str) -> None:

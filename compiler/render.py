@@ -91,8 +91,12 @@ def table(report: dict, console: Console) -> None:
         for s, c in checks:
             mark = Text("pass", style="green") if c["passed"] else Text("FAIL", style="bold red")
             console.print(Text.assemble("  ", mark, f"  {s['name']}: {_check_text(c)}"))
-    for f in report.get("findings", []):
-        console.print(f"{f['severity']}: {f['rule']}: {f['message']}", highlight=False)
+    if report.get("findings"):
+        console.print()
+        console.print("Findings", style="bold")
+        for f in report["findings"]:
+            console.print(f"  {f['severity']} {f['rule']}: {f['message']}", highlight=False,
+                          markup=False)
     console.print()
     console.print(f"Caution: {report['caution']}", style="italic", highlight=False)
 
@@ -134,6 +138,9 @@ def markdown(report: dict) -> str:
         out += ["", "**Expectations**", ""]
         out += [f"- {'pass' if c['passed'] else '**FAIL**'} `{s['name']}`: {_check_text(c)}"
                 for s, c in checks]
+    if report.get("findings"):
+        out += ["", "**Findings**", ""]
+        out += [f"- {f['severity']} `{f['rule']}`: {f['message']}" for f in report["findings"]]
     out += ["", f"_Caution: {report['caution']}_", ""]
     return "\n".join(out)
 

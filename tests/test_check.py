@@ -423,3 +423,19 @@ def test_a_fixed_step_is_not_moved():
                                      "burn plane at node: inclination to 0 deg fixed")
     assert findings(pinned, "cheaper-order") == []
     assert findings(LOW_PLANE_FIRST, "cheaper-order") != []
+
+
+def test_run_reports_the_plans_own_findings_but_no_searches(tmp_path, capsys):
+    text = plan("""start circular 400 km
+burn raise: apoapsis to 1000 km using slow
+expect high apoapsis 1200 km within 1 km
+""").replace("engine main isp 320 s thrust 400 kN",
+             "engine main isp 320 s thrust 400 kN\n    engine slow isp 320 s thrust 5 N")
+    assert cli.main(["run", write(tmp_path, text), "--format", "json"]) == 0
+    rules = {f["rule"] for f in json.loads(capsys.readouterr().out)["findings"]}
+    assert rules == {"expectation-not-met", "long-burn"}
+    # the reorder search is check's job, not run's
+    assert cli.main(["run", write(tmp_path, LOW_PLANE_FIRST, "low.aps"), "--format",
+                     "json"]) == 0
+    rules = {f["rule"] for f in json.loads(capsys.readouterr().out)["findings"]}
+    assert "cheaper-order" not in rules

@@ -28,3 +28,6 @@ RULES = (
 )
 
 BY_NAME = {r.rule_name: r for r in RULES}
+
+# What `run` reports on its own: the plan measured against itself, no search.
+CONSISTENCY = (expectation_not_met, reserve_not_covered, long_burn)
