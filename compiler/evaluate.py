@@ -188,6 +188,7 @@ class BurnOutcome:
     v_after: np.ndarray
     coast: np.ndarray
     fails: Failures
+    at: str = ""  # where it happened, for the report ("node" resolves to the one chosen)
 
 
 def _solve_burn(step: Burn, r, v, ctx: Context, fails: Failures, normal=None):
@@ -224,21 +225,28 @@ def _burn_at(step: Burn, place: Place, r, v, ctx: Context, normal=None) -> BurnO
     fails = Failures(r.shape[0])
     r1, v1, coast = goto(place, r, v, ctx.mu, fails)
     v2 = _solve_burn(step, r1, v1, ctx, fails, normal)
-    return BurnOutcome(r1, v1, v2, coast, fails)
+    return BurnOutcome(r1, v1, v2, coast, fails, place.label())
+
+
+def _prefer_first(cost_a, cost_b, wait_a, wait_b) -> np.ndarray:
+    """The first option where it is cheaper, or as cheap and sooner."""
+    tie = np.abs(cost_a - cost_b) <= 1e-12 * np.maximum(cost_a, cost_b) + 1e-15
+    return np.where(tie, wait_a <= wait_b, cost_a < cost_b)
 
 
 def _cheaper(a: BurnOutcome, b: BurnOutcome) -> BurnOutcome:
     da = norm(a.v_after - a.v_before)
     db = norm(b.v_after - b.v_before)
-    take_a = a.fails.ok & (~b.fails.ok | (da <= db * (1 + 1e-12)))
+    take_a = a.fails.ok & (~b.fails.ok | _prefer_first(da, db, a.coast, b.coast))
     take_a |= ~a.fails.ok & ~b.fails.ok
     fails = Failures(take_a.shape[0])
     fails.merge(take_a, a.fails)
     fails.merge(~take_a, b.fails)
     m = take_a[:, None]
+    at = a.at if take_a.all() else b.at if not take_a.any() else "node"
     return BurnOutcome(np.where(m, a.r, b.r), np.where(m, a.v_before, b.v_before),
                        np.where(m, a.v_after, b.v_after), np.where(take_a, a.coast, b.coast),
-                       fails)
+                       fails, at)
 
 
 def burn_outcome(step: Burn, r, v, ctx: Context, normal=None) -> BurnOutcome:
@@ -315,7 +323,7 @@ def _burn_rows(step: Burn, index: int, name: str, batch: Batch, ctx: Context, fa
     margin = step.margin
     new, vec, dv, dvm, prop, burn_time = _price(batch, out, _engine(step, ctx), margin, ctx,
                                                 fails, name)
-    row = Row(index, name, "burn", step.place.label(), new, vec, dv, dvm, prop, burn_time,
+    row = Row(index, name, "burn", out.at or step.place.label(), new, vec, dv, dvm, prop, burn_time,
               out.coast, out.coast, _engine(step, ctx), margin, v_before=out.v_before)
     return new, row
 
@@ -353,7 +361,7 @@ def _transfer(step: Transfer, index: int, batch: Batch, ctx: Context, fails: Fai
             results.append((res, sub))
         (a, fa), (b, fb) = results
         ca, cb = a[0].dv_margin, b[0].dv_margin
-        take_a = fa.ok & (~fb.ok | (ca <= cb * (1 + 1e-12))) | (~fa.ok & ~fb.ok)
+        take_a = fa.ok & (~fb.ok | _prefer_first(ca, cb, a[0].t, b[0].t)) | (~fa.ok & ~fb.ok)
         fails.merge(take_a, fa)
         fails.merge(~take_a, fb)
         new = a[0].where(take_a, b[0])

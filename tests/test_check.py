@@ -439,3 +439,12 @@ expect high apoapsis 1200 km within 1 km
                      "json"]) == 0
     rules = {f["rule"] for f in json.loads(capsys.readouterr().out)["findings"]}
     assert "cheaper-order" not in rules
+
+
+def test_node_tie_takes_the_sooner_node_and_reports_which():
+    # a circular orbit costs the same at both nodes: the one here wins
+    text = plan("""start circular 400 km inclination 30 deg anomaly 180 deg
+burn turn at node: inclination to 35 deg
+""")
+    [row] = reprice(text)["steps"]
+    assert row["at"] == "descending node" and row["coast_before_s"] == 0.0
