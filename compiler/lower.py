@@ -74,6 +74,7 @@ class Lowerer:
         self.title = ""
         self.margin = 0.0
         self.reserve = 0.0
+        self.ceiling: ast.Setting | None = None
         self.start: ast.Start | None = None
         self.names: dict[str, Span] = {}
         self.counts: dict[str, int] = {}
@@ -117,8 +118,16 @@ class Lowerer:
                        "add a line such as `start circular 400 km inclination 51.6 deg`")
         r, v = self._start_state(self.start)
         steps = tuple(self._step(s) for s in steps_ast)
+        ceiling = None
+        if self.ceiling is not None:
+            ceiling = self.ceiling.value.internal() + self.body.radius
+            if ceiling <= float(np.linalg.norm(r)):
+                raise _err(f"the ceiling ({self.ceiling.value.internal():g} km altitude) is "
+                           "below the start orbit", self.ceiling,
+                           "the ceiling bounds the apoapsis of detours `check` suggests; give "
+                           "an altitude above the start")
         return Program(self.title, self.body, self.craft, self.margin, self.reserve, r, v,
-                       steps, self.plan.source, self.plan, self.start.span)
+                       steps, self.plan.source, self.plan, self.start.span, ceiling)
 
     def _statement(self, st) -> None:
         if isinstance(st, ast.PlanTitle):
@@ -132,8 +141,10 @@ class Lowerer:
         elif isinstance(st, ast.Setting):
             if st.key == "margin":
                 self.margin = st.value.internal()
-            else:
+            elif st.key == "reserve":
                 self.reserve = st.value.internal()
+            else:
+                self.ceiling = st
         elif isinstance(st, ast.Start):
             self.start = st
 

@@ -163,6 +163,7 @@ class Program:
     source: Source
     plan: Plan | None = None
     start_span: Span | None = None
+    ceiling: float | None = None  # highest apoapsis radius (km) a suggested detour may use
 
     def with_steps(self, steps) -> Program:
         return replace(self, steps=tuple(steps))

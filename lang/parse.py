@@ -226,6 +226,7 @@ def _slots() -> dict[str, Slot]:
         "engine.thrust": Slot("engine thrust", "force", POSITIVE),
         "setting.margin": Slot("margin", "ratio", NOT_NEGATIVE),
         "setting.reserve": Slot("reserve", "speed", NOT_NEGATIVE),
+        "setting.ceiling": Slot("ceiling", "length", POSITIVE),
         "start.circular": Slot("start circular", "length"),
         "start.periapsis": Slot("start periapsis", "length"),
         "start.apoapsis": Slot("start apoapsis", "length"),

@@ -146,7 +146,7 @@ class CraftDef:
 
 @dataclass(frozen=True)
 class Setting:
-    """A plan-wide setting: ``margin 5 %`` or ``reserve 25 m/s``."""
+    """A plan-wide setting: ``margin 5 %``, ``reserve 25 m/s`` or ``ceiling 150000 km``."""
 
     key: str
     value: Quantity

@@ -448,3 +448,15 @@ burn turn at node: inclination to 35 deg
 """)
     [row] = reprice(text)["steps"]
     assert row["at"] == "descending node" and row["coast_before_s"] == 0.0
+
+
+def test_ceiling_bounds_the_detour_apoapsis():
+    text = big_turn(60).replace("start circular", "ceiling 20000 km\nstart circular")
+    [f] = findings(text, "three-burn-plane-change")
+    via = next(ln for ln in f.suggestion.splitlines() if "via apoapsis" in ln)
+    altitude = float(via.split("via apoapsis")[1].split()[0])
+    assert altitude <= 20000
+    assert any("ceiling" in n for n in f.notes)
+    # unbounded by the plan, the best detour for 60 deg goes far higher
+    [g] = findings(big_turn(60), "three-burn-plane-change")
+    assert g.saves_m_s > f.saves_m_s

@@ -24,8 +24,14 @@ def apoapsis_bound(c: Checker) -> tuple[float, str]:
     """Highest apoapsis radius (km) a detour may use, and why."""
     body = c.program.body
     if body.soi is not None:
-        return 0.95 * body.soi, f"95 % of {body.name}'s sphere of influence"
-    return 100.0 * body.radius, f"100 body radii ({body.name} has no sphere of influence set)"
+        bound, why = 0.95 * body.soi, f"95 % of {body.name}'s sphere of influence"
+    else:
+        bound, why = (100.0 * body.radius,
+                      f"100 body radii ({body.name} has no sphere of influence set)")
+    ceiling = c.program.ceiling
+    if ceiling is not None and ceiling < bound:
+        bound, why = ceiling, f"the plan's ceiling of {ceiling - body.radius:g} km altitude"
+    return bound, why
 
 
 def best_apoapsis(c: Checker, build, low: float, high: float) -> Proof | None:
@@ -76,7 +82,8 @@ def bi_elliptic_cheaper(c: Checker) -> list[Finding]:
     Going out past the target to a far apoapsis, raising the periapsis there where the
     craft is slow, and coming back in costs less than the two Hohmann burns once the
     target radius is more than about 11.9 times the start (always beyond 15.6 times).
-    The rule searches the intermediate apoapsis up to the body's sphere of influence and
+    The rule searches the intermediate apoapsis up to the body's sphere of influence (or
+    the plan's `ceiling`) and
     reports the best; it costs far more time in flight, which the finding shows.
     """
     out = []
@@ -139,7 +146,8 @@ def three_burn_plane_change(c: Checker) -> list[Finding]:
     Raising the apoapsis, turning the plane there at low speed and lowering it again
     costs less than a pure rotation 2 v sin(di/2) once the angle is large: above about
     48.9 deg even with an unbounded apoapsis, and from about 38.9 deg with the best
-    apoapsis.  The rule searches the apoapsis up to the body's sphere of influence and
+    apoapsis.  The rule searches the apoapsis up to the body's sphere of influence (or the
+    plan's `ceiling`) and
     reports the cheapest detour as `transfer NAME: inclination to I via apoapsis A`.
     """
     out = []
