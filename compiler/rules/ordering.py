@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+
 from ..check import Checker, Finding, rule, saving_text
 from ..reorder import BEAM, blocks, search_block
 
@@ -28,8 +30,10 @@ def cheaper_order(c: Checker) -> list[Finding]:
             continue
         names = [c.program.steps[i].name for i in block]
         new = [c.program.steps[i].name for i in res.best.order]
-        scope = (f"exhaustive over {res.orderings} orderings of {len(block)} steps, "
-                 f"{res.valid} of them reach the same orbit" if res.exhaustive else
+        total = math.factorial(len(block))
+        scope = (f"exhaustive: all {total} orderings of {len(block)} steps priced; "
+                 f"{total - res.orderings} cannot be flown, {res.valid} reach the same orbit"
+                 if res.exhaustive else
                  f"bounded search: the {BEAM} cheapest partial orders were kept at each "
                  f"step ({res.priced} step evaluations); a cheaper order may exist")
         out.append(c.finding(
