@@ -11,10 +11,9 @@ import json
 import re
 from pathlib import Path
 
+from apsidal.compiler import cli
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-
-from apsidal.compiler import cli
 
 SAMPLES = sorted((Path(__file__).parent.parent / "samples").glob("*.aps"))
 TEXTS = [p.read_text() for p in SAMPLES]
