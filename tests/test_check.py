@@ -460,3 +460,36 @@ def test_ceiling_bounds_the_detour_apoapsis():
     # unbounded by the plan, the best detour for 60 deg goes far higher
     [g] = findings(big_turn(60), "three-burn-plane-change")
     assert g.saves_m_s > f.saves_m_s
+
+
+@pytest.mark.parametrize("angle, expected", [(38, False), (40, True)])
+def test_three_burn_detour_starts_to_pay_at_the_optimised_break_even(angle, expected):
+    # our derivation above: with the best apoapsis the detour pays from 38.94 deg
+    found = findings(big_turn(angle), "three-burn-plane-change")
+    assert bool(found) is expected
+    if found:
+        assert 0 < found[0].saves_m_s < 5  # just past break-even the saving is small
+
+
+def test_priced_break_even_through_a_far_apoapsis_matches_the_derivation():
+    # The compiler's own prices for a three-burn detour through a fixed apoapsis n times
+    # the orbit radius against a pure rotation; their crossing must be where our closed
+    # form puts it, and for large n near 48.94 deg.
+    from scipy.optimize import brentq
+
+    r = RE + 400
+    n = 2000.0
+    via = n * r - RE
+
+    def priced(angle: float, detour: bool) -> float:
+        step = (f"transfer turn at node: inclination to {10 + angle:.10f} deg via apoapsis "
+                f"{via:.3f} km" if detour else
+                f"burn turn at node: inclination to {10 + angle:.10f} deg")
+        text = plan(f"start circular 400 km inclination 10 deg\n{step}\n")
+        return reprice(text)["totals"]["dv_m_s"]
+
+    crossing = brentq(lambda a: priced(a, True) - priced(a, False), 40, 60, xtol=1e-6)
+    closed = brentq(lambda d: three_burn_cost(n, math.radians(d)) - 2 * math.sin(math.radians(d) / 2),
+                    40, 60, xtol=1e-9)
+    assert crossing == pytest.approx(closed, abs=1e-4)
+    assert closed == pytest.approx(48.94, abs=0.05)  # tends to 48.94 deg as n grows
