@@ -195,10 +195,12 @@ def findings_for(program: Program, rules: Iterable[Rule] | None = None) -> list[
     return [f.as_dict() for f in check_program(program, rules)]
 
 
-def check_program(program: Program, rules: Iterable[Rule] | None = None) -> list[Finding]:
+def check_program(program: Program, rules: Iterable[Rule] | None = None,
+                  result: Result | None = None) -> list[Finding]:
+    """Every finding for one plan; ``result`` is its priced chain if already at hand."""
     from .rules import RULES
 
-    result = run(program)
+    result = run(program) if result is None else result
     if result.error is not None and result.failure != "propellant":
         raise result.error
     checker = Checker(program, result)

@@ -12,6 +12,9 @@ from rich.markup import escape
 from rich.syntax import Syntax
 
 from .check import SEVERITIES, Finding, check_program
+from .cliutil import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_OK, UsageError
+from .cliutil import console as _console
+from .evaluate import run
 from .load import load
 from .rules import BY_NAME, RULES
 
@@ -43,7 +46,6 @@ def parse_min_saving(text: str | None) -> tuple[str, float] | None:
     >>> parse_min_saving("2 %")
     ('ratio', 0.02)
     """
-    from .cli import UsageError
 
     if text is None:
         return None
@@ -70,7 +72,6 @@ def _keep(f: Finding, threshold, plan_dv_m_s: float) -> bool:
 
 
 def cmd_check(args) -> int:
-    from .cli import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_OK, UsageError, _console
 
     threshold = parse_min_saving(args.min_saving)
     rules = None
@@ -92,14 +93,13 @@ def cmd_check(args) -> int:
     for path in args.plans:
         try:
             program = load(path)
-            findings = check_program(program, rules)
+            result = run(program)
+            findings = check_program(program, rules, result)
         except PlanError as err:
             print(err.render(), file=sys.stderr)
             bad_input = True
             continue
-        from .evaluate import run
-
-        dv = float(run(program).final.dv_margin[0]) * 1000.0
+        dv = float(result.final.dv_margin[0]) * 1000.0
         kept = [f for f in findings if _keep(f, threshold, dv)]
         reports.append((path, program, kept))
         for f in kept:
@@ -201,7 +201,6 @@ def markdown(reports) -> str:
 def cmd_explain(args) -> int:
     import inspect
 
-    from .cli import UsageError, _console
 
     console = _console()
     if args.rule is None:

@@ -8,35 +8,23 @@ reaches the user for anything they can type; set APSIDAL_DEBUG=1 to see one for 
 
 from __future__ import annotations
 
-import argparse
 import os
 import sys
 
 from apsidal.lang.errors import PlanError
-from rich.console import Console
 
-from . import bodies, render
+from . import bodies, check_cli, render, review_cli
 from .budget import budget
+from .cliutil import (
+    EXIT_BAD_INPUT,
+    EXIT_INTERNAL,
+    EXIT_OK,
+    Parser,
+    UsageError,
+    console,
+)
 from .evaluate import run as evaluate
 from .load import load
-
-EXIT_OK, EXIT_FINDINGS, EXIT_BAD_INPUT, EXIT_INTERNAL = 0, 1, 2, 70
-
-
-class UsageError(Exception):
-    """A command-line mistake; exits 2 like any other bad input."""
-
-
-class _Parser(argparse.ArgumentParser):
-    def error(self, message):  # argparse exits 2 by itself; keep the wording ours
-        self.print_usage(sys.stderr)
-        print(f"apsidal: error: {message}", file=sys.stderr)
-        raise SystemExit(EXIT_BAD_INPUT)
-
-
-def _console(stream=None) -> Console:
-    return Console(file=stream or sys.stdout, highlight=False, soft_wrap=False,
-                   width=None if (stream or sys.stdout).isatty() else 160)
 
 
 def cmd_run(args) -> int:
@@ -73,7 +61,7 @@ def emit_report(report: dict, fmt: str) -> None:
     elif fmt == "csv":
         sys.stdout.write(render.to_csv(report))
     else:
-        render.table(report, _console())
+        render.table(report, console())
 
 
 def cmd_bodies(args) -> int:
@@ -87,15 +75,15 @@ def cmd_bodies(args) -> int:
         t.add_row(b.name, f"{b.gm:.10g}", f"{b.radius:.10g}",
                   "-" if b.j2 is None else f"{b.j2:.6e}",
                   "-" if b.soi is None else f"{b.soi:,.0f}", b.source)
-    _console().print(t)
+    console().print(t)
     return EXIT_OK
 
 
-def build_parser() -> argparse.ArgumentParser:
-    p = _Parser(prog="apsidal", description="Price a spacecraft manoeuvre plan: delta-v, "
+def build_parser() -> Parser:
+    p = Parser(prog="apsidal", description="Price a spacecraft manoeuvre plan: delta-v, "
                 "propellant, burn time and margin, under the impulsive two-body "
                 "approximation.")
-    sub = p.add_subparsers(dest="command", required=True, parser_class=_Parser)
+    sub = p.add_subparsers(dest="command", required=True, parser_class=Parser)
     run = sub.add_parser("run", help="price a plan and print its budget")
     run.add_argument("plan", help="plan file (.aps)")
     run.add_argument("--format", choices=("table", "json", "markdown", "csv"),
@@ -103,24 +91,9 @@ def build_parser() -> argparse.ArgumentParser:
     run.set_defaults(func=cmd_run)
     bod = sub.add_parser("bodies", help="list the body catalogue and its sources")
     bod.set_defaults(func=cmd_bodies)
-    for module in _command_modules():
-        module.register(sub)
+    check_cli.register(sub)
+    review_cli.register(sub)
     return p
-
-
-def _command_modules():
-    """Modules that add their own subcommands through ``register(subparsers)``."""
-    import importlib
-
-    names = ("apsidal.compiler.check_cli", "apsidal.compiler.review_cli")
-    out = []
-    for name in names:
-        try:
-            out.append(importlib.import_module(name))
-        except ModuleNotFoundError as exc:  # a command module not written yet
-            if exc.name != name:
-                raise
-    return out
 
 
 def main(argv: list[str] | None = None) -> int:

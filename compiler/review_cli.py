@@ -25,7 +25,8 @@ from apsidal.lang.units import UNITS, to_internal
 
 from . import diff_render, render
 from .budget import budget
-from .cli import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_INTERNAL, EXIT_OK, UsageError, _console
+from .cliutil import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_INTERNAL, EXIT_OK, UsageError
+from .cliutil import console as _console
 from .diff import diff_reports, grows_past, step_info
 from .evaluate import run
 from .gitsource import GitError, read_at, split_range
