@@ -338,7 +338,7 @@ class Lowerer:
                 raise _err(f"`{opt.key}` is given twice in one step", opt,
                            f"keep one (the first is at column {seen[opt.key].span.column})")
             seen[opt.key] = opt
-            if opt.key == "fixed":
+            if opt.key in ("fixed", "movable"):
                 continue
             if opt.key == "using":
                 engine = self.craft.engine(opt.value.text)
@@ -350,7 +350,10 @@ class Lowerer:
                                "its engines are " + ", ".join(f"`{n}`" for n in names))
             else:
                 margin = opt.value.internal()
-        return engine, margin, "fixed" in seen
+        if "fixed" in seen and "movable" in seen:
+            raise _err("a step cannot be both `fixed` and `movable`", seen["movable"],
+                       "keep the one you mean")
+        return engine, margin, "fixed" in seen, "movable" in seen
 
     def _goals(self, node) -> dict:
         goals: dict = {}
@@ -369,13 +372,17 @@ class Lowerer:
             return self._transfer(node)
         if isinstance(node, ast.Coast):
             name = self._name(node, "coast")
+            free = node.movable
             if node.mode == "for":
-                return Coast(name, "for", duration=node.duration.internal(), span=node.span)
+                return Coast(name, "for", duration=node.duration.internal(), span=node.span,
+                             movable=free)
             if node.mode == "to":
-                return Coast(name, "to", place=self._place(node.where), span=node.span)
-            return Coast(name, "rev", revs=int(node.duration.value), span=node.span)
+                return Coast(name, "to", place=self._place(node.where), span=node.span,
+                             movable=free)
+            return Coast(name, "rev", revs=int(node.duration.value), span=node.span,
+                         movable=free)
         if isinstance(node, ast.Drop):
-            return Drop(self._name(node, "drop"), node.mass.internal(), node.span)
+            return Drop(self._name(node, "drop"), node.mass.internal(), node.span, node.movable)
         if isinstance(node, ast.Expect):
             return self._expect(node)
         raise TypeError(type(node))  # pragma: no cover
@@ -383,7 +390,7 @@ class Lowerer:
     def _burn(self, node: ast.Burn) -> Burn:
         name = self._name(node, "burn")
         goals = self._goals(node)
-        engine, margin, fixed = self._options(node)
+        engine, margin, fixed, movable = self._options(node)
         place = self._place(node.where)
         explicit = [k for k in ("along", "cross", "radial") if k in goals]
         if explicit:
@@ -394,7 +401,7 @@ class Lowerer:
             vec = tuple(goals[k].value.internal() if k in goals else 0.0
                         for k in ("along", "cross", "radial"))
             return Burn(name, place, vector=vec, engine=engine, margin=margin, span=node.span,
-                        fixed=fixed)
+                        fixed=fixed, movable=movable)
         if "circular" in goals and ("periapsis" in goals or "apoapsis" in goals):
             raise _err("`circular` already sets both apsides", goals["circular"],
                        "drop `circular`, or drop the apsis goal")
@@ -426,7 +433,7 @@ class Lowerer:
     def _transfer(self, node: ast.Transfer) -> Transfer:
         name = self._name(node, "transfer")
         goals = self._goals(node)
-        engine, margin, fixed = self._options(node)
+        engine, margin, fixed, _ = self._options(node)
         place = self._place(node.where)
         bad = [k for k in goals if k not in ("circular", "inclination", "raan")]
         if bad:
@@ -471,7 +478,7 @@ class Lowerer:
             tol = (c.tolerance.internal() if c.tolerance is not None
                    else DEFAULT_TOLERANCE[c.kind])
             checks.append(CheckSpec(c.kind, target, c.comparator, tol, c.span))
-        return Expect(name, tuple(checks), node.span)
+        return Expect(name, tuple(checks), node.span, node.movable)
 
 
 def lower(plan: ast.Plan) -> Program:

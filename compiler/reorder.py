@@ -1,7 +1,8 @@
 """The reorder search: the cheapest ordering of each block of movable steps.
 
 A plan splits into blocks at its barriers: ``drop``, ``expect``, explicit-vector burns,
-timed coasts (``for``, ``rev``) and steps marked ``fixed`` stay where they are.  Inside a block the goal burns,
+timed coasts (``for``, ``rev``) and steps marked ``fixed`` stay where they are, unless
+the plan marks them ``movable``.  Inside a block the goal burns,
 transfers and coasts to a place may be flown in any order, and each ordering is priced by
 the evaluator.  The orderings form a prefix tree: all orderings that start with the same
 steps share those steps' state, so each level of the tree is one batched ``apply`` per
@@ -32,6 +33,8 @@ BEAM = 4096
 def is_barrier(step) -> bool:
     if getattr(step, "fixed", False):  # pinned by the plan with the `fixed` option
         return True
+    if getattr(step, "movable", False):  # freed by the plan with `movable`
+        return False
     if isinstance(step, (Drop, Expect)):
         return True
     if isinstance(step, Burn) and step.vector is not None:

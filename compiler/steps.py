@@ -77,6 +77,7 @@ class Burn:
     margin: float = 0.0
     span: Span | None = None
     fixed: bool = False  # pinned in place: the reorder search does not move it
+    movable: bool = False  # an explicit-vector burn the plan lets the search move
     kind: str = field(default="burn", init=False)
 
     @property
@@ -119,6 +120,7 @@ class Coast:
     place: Place | None = None
     revs: int | None = None
     span: Span | None = None
+    movable: bool = False
     kind: str = field(default="coast", init=False)
 
 
@@ -127,6 +129,7 @@ class Drop:
     name: str
     mass: float
     span: Span | None = None
+    movable: bool = False
     kind: str = field(default="drop", init=False)
 
 
@@ -144,6 +147,7 @@ class Expect:
     name: str
     checks: tuple[CheckSpec, ...]
     span: Span | None = None
+    movable: bool = False
     kind: str = field(default="expect", init=False)
 
 

@@ -52,7 +52,7 @@ FIELD_ORDER = {
     ast.Start: ("circular", "periapsis", "apoapsis", "sma", "ecc", "vinf",
                 "inclination", "raan", "argp", "anomaly"),
 }
-OPTION_ORDER = ("using", "margin", "fixed")
+OPTION_ORDER = ("using", "margin", "fixed", "movable")
 
 
 class FormatError(Exception):
@@ -233,10 +233,15 @@ def _step_parts(stmt) -> _StepParts:
             body = f"to {_where(stmt.where)}"
         else:
             body = f"{stmt.duration.number} rev"
-        return _StepParts("coast", name, "", False, body, "")
+        return _StepParts("coast", name, "", False, body, _free(stmt))
     if isinstance(stmt, ast.Drop):
-        return _StepParts("drop", name, "", False, stmt.mass.text(), "")
-    return _StepParts("expect", name, "", False, ", ".join(_check(c) for c in stmt.checks), "")
+        return _StepParts("drop", name, "", False, stmt.mass.text(), _free(stmt))
+    return _StepParts("expect", name, "", False, ", ".join(_check(c) for c in stmt.checks),
+                      _free(stmt))
+
+
+def _free(stmt) -> str:
+    return "movable" if stmt.movable else ""
 
 
 def _align_steps(run: list[_StepParts]) -> list[str]:

@@ -491,7 +491,7 @@ class _ToSyntax(Transformer):
 
     def option(self, meta, children):
         key = str(children[0])
-        if key == "fixed":
+        if key in ("fixed", "movable"):
             return ast.Option(key, None, _span(meta))
         value = children[1]
         if key == "using":
@@ -509,30 +509,34 @@ class _ToSyntax(Transformer):
         name, where, goals, via, options = children
         return ast.Transfer(name, where, goals, via, options, _span(meta))
 
+    def free(self, meta, children):
+        return children[0] is not None
+
     def coast_for(self, meta, children):
-        name, duration = children
-        return ast.Coast(name, "for", _checked(duration, SLOTS["coast.for"]), None, _span(meta))
+        name, duration, free = children
+        return ast.Coast(name, "for", _checked(duration, SLOTS["coast.for"]), None, _span(meta),
+                         free)
 
     def coast_to(self, meta, children):
-        name, where = children
-        return ast.Coast(name, "to", None, where, _span(meta))
+        name, where, free = children
+        return ast.Coast(name, "to", None, where, _span(meta), free)
 
     def coast_rev(self, meta, children):
-        name, count = children
+        name, count, free = children
         revs = ast.Quantity(str(count), "", _token_span(count))
         if not (math.isfinite(revs.value) and revs.value > 0 and revs.value.is_integer()):
             raise PlanError(f"a coast counts whole revolutions, got `{count} rev`", revs.span,
                             hint="write a positive whole number such as `2 rev`, or coast "
                                  "`for` a time or `to` a point of the orbit")
-        return ast.Coast(name, "rev", revs, None, _span(meta))
+        return ast.Coast(name, "rev", revs, None, _span(meta), free)
 
     def drop(self, meta, children):
-        name, mass = children
-        return ast.Drop(name, _checked(mass, SLOTS["drop"]), _span(meta))
+        name, mass, free = children
+        return ast.Drop(name, _checked(mass, SLOTS["drop"]), _span(meta), free)
 
     def expect(self, meta, children):
-        name, *checks = children
-        return ast.Expect(name, tuple(checks), _span(meta))
+        name, *checks, free = children
+        return ast.Expect(name, tuple(checks), _span(meta), free)
 
     def distance_kind(self, meta, children):
         return children[0]

@@ -87,8 +87,8 @@ class Goal:
 class Option:
     """A trailing step option: ``using trim``, ``margin 20 %`` or ``fixed``."""
 
-    key: str  # using | margin | fixed
-    value: Name | Quantity | None  # None for `fixed`
+    key: str  # using | margin | fixed | movable
+    value: Name | Quantity | None  # None for `fixed` and `movable`
     span: Span
 
 
@@ -188,6 +188,7 @@ class Coast:
     duration: Quantity | None
     where: Where | None
     span: Span
+    movable: bool = False  # `movable`: the reorder search may move it
 
 
 @dataclass(frozen=True)
@@ -195,6 +196,7 @@ class Drop:
     name: Name | None
     mass: Quantity
     span: Span
+    movable: bool = False
 
 
 @dataclass(frozen=True)
@@ -202,6 +204,7 @@ class Expect:
     name: Name | None
     checks: tuple[Check, ...]
     span: Span
+    movable: bool = False
 
 
 Statement = (

@@ -493,3 +493,18 @@ def test_priced_break_even_through_a_far_apoapsis_matches_the_derivation():
                     40, 60, xtol=1e-9)
     assert crossing == pytest.approx(closed, abs=1e-4)
     assert closed == pytest.approx(48.94, abs=0.05)  # tends to 48.94 deg as n grows
+
+
+def test_movable_frees_a_barrier():
+    # the drop splits the plan: the plane change cannot move past it ...
+    text = plan("""start circular 300 km inclination 28.5 deg
+burn plane at node: inclination to 0 deg
+drop cover 5 kg
+burn raise at periapsis: apoapsis to 35786 km
+burn circ at apoapsis: circular
+""")
+    assert findings(text, "cheaper-order") == []
+    # ... unless the plan says the drop may move
+    [f] = findings(text.replace("drop cover 5 kg", "drop cover 5 kg movable"), "cheaper-order")
+    assert f.saves_m_s > 2000
+    assert "drop cover 5 kg movable" in f.suggestion
