@@ -508,3 +508,14 @@ burn circ at apoapsis: circular
     [f] = findings(text.replace("drop cover 5 kg", "drop cover 5 kg movable"), "cheaper-order")
     assert f.saves_m_s > 2000
     assert "drop cover 5 kg movable" in f.suggestion
+
+
+def test_an_apoapsis_past_the_sphere_of_influence_is_flagged():
+    # Earth's Laplace sphere of influence is about 924 600 km (see test_bodies.py)
+    far = plan("""start circular 400 km
+burn out at periapsis: apoapsis to 1000000 km
+""")
+    [f] = findings(far, "beyond-sphere-of-influence")
+    assert f.severity == "warning" and f.steps == ("out",)
+    near = far.replace("1000000 km", "800000 km")
+    assert findings(near, "beyond-sphere-of-influence") == []

@@ -6,7 +6,12 @@ rewritten plan text and let ``Checker.prove`` price it; they never compute a sav
 """
 
 from .burns import cancelling_burns, long_burn, merge_burns
-from .expectations import expectation_not_met, propellant_exhausted, reserve_not_covered
+from .expectations import (
+    beyond_sphere_of_influence,
+    expectation_not_met,
+    propellant_exhausted,
+    reserve_not_covered,
+)
 from .ordering import cheaper_order
 from .planes import costlier_node, plane_change_at_speed, shared_plane_change
 from .transfers import bi_elliptic_cheaper, hohmann_cheaper, three_burn_plane_change
@@ -15,6 +20,7 @@ RULES = (
     propellant_exhausted,
     expectation_not_met,
     reserve_not_covered,
+    beyond_sphere_of_influence,
     cheaper_order,
     plane_change_at_speed,
     costlier_node,
@@ -30,4 +36,4 @@ RULES = (
 BY_NAME = {r.rule_name: r for r in RULES}
 
 # What `run` reports on its own: the plan measured against itself, no search.
-CONSISTENCY = (expectation_not_met, reserve_not_covered, long_burn)
+CONSISTENCY = (expectation_not_met, reserve_not_covered, beyond_sphere_of_influence, long_burn)

@@ -56,3 +56,27 @@ def propellant_exhausted(c: Checker) -> list[Finding]:
     return [Finding("propellant-exhausted", "error", steps,
                     err.message + (f" ({err.hint})" if err.hint else ""))]
 
+
+
+@rule("beyond-sphere-of-influence")
+def beyond_sphere_of_influence(c: Checker) -> list[Finding]:
+    """An orbit of the plan reaches beyond the body's sphere of influence.
+
+    apsidal prices every step with the central body alone.  Past the sphere of influence
+    (Laplace's radius, from the catalogue or the body's `soi`) another body — the Sun, or
+    the planet a moon circles — pulls harder than the central one, and the orbit is no
+    longer the conic the numbers assume: the estimate there is not to be used for sizing.
+    """
+    body = c.program.body
+    if body.soi is None:
+        return []
+    out = []
+    for s in c.report["steps"]:
+        ap = s["orbit_after"]["apoapsis_alt_km"]
+        if ap is not None and ap + body.radius > body.soi:
+            out.append(Finding(
+                "beyond-sphere-of-influence", "warning", (s["name"],),
+                f"after {s['name']} the apoapsis ({ap:,.0f} km altitude) lies beyond "
+                f"{body.name}'s sphere of influence ({body.soi - body.radius:,.0f} km "
+                "altitude): the two-body approximation does not hold out there"))
+    return out
