@@ -519,3 +519,11 @@ burn out at periapsis: apoapsis to 1000000 km
     assert f.severity == "warning" and f.steps == ("out",)
     near = far.replace("1000000 km", "800000 km")
     assert findings(near, "beyond-sphere-of-influence") == []
+
+
+def test_every_rule_is_documented():
+    from pathlib import Path
+
+    doc = (Path(__file__).parent.parent / "docs" / "check.md").read_text()
+    for r in RULES:
+        assert f"### `{r.rule_name}`" in doc
