@@ -7,11 +7,20 @@ through the public path: text -> parse -> lower -> evaluate -> budget.
 
 from __future__ import annotations
 
+import os
+
 import numpy as np
 import pytest
 from apsidal.compiler.budget import budget
 from apsidal.compiler.evaluate import Result, run
 from apsidal.compiler.load import load_text
+from hypothesis import settings
+
+# CI (CI=true) replays the same examples on every run, so a red build is a real,
+# reproducible regression; on a developer's machine the examples are fresh each time.
+settings.register_profile("ci", derandomize=True, database=None, print_blob=True)
+if os.environ.get("CI"):
+    settings.load_profile("ci")
 
 
 class Plans:
