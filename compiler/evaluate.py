@@ -145,9 +145,12 @@ def _target_angle(place: Place, r, v, mu, fails: Failures):
                 f"there is no apoapsis on an open orbit (eccentricity {ecc[i]:.6f})",
                 "burn `at periapsis` or here, or close the orbit first"))
         if kind == "periapsis":
-            passed = open_ & (d > np.pi)
-            fails.add(open_ & ~passed & (now > 0) & (now < np.pi) & (d > 0), lambda i: (
-                "periapsis already passed on this open orbit", "burn here instead"))
+            # on an open orbit the true anomaly runs from -limit to +limit: past 0 (and
+            # below pi) the craft is leaving and never comes back to periapsis
+            outbound = open_ & (now > HERE_TOL) & (now < np.pi)
+            fails.add(outbound, lambda i: (
+                f"periapsis already passed on this open orbit (true anomaly "
+                f"{np.degrees(now[i]):.3f} deg, outbound)", "burn here instead"))
     else:
         now = signed_angle(f.node, r, f.h)
         if kind == "ascending node":
