@@ -149,8 +149,8 @@ def _target_angle(place: Place, r, v, mu, fails: Failures):
             # below pi) the craft is leaving and never comes back to periapsis
             outbound = open_ & (now > HERE_TOL) & (now < np.pi)
             fails.add(outbound, lambda i: (
-                f"periapsis already passed on this open orbit (true anomaly "
-                f"{np.degrees(now[i]):.3f} deg, outbound)", "burn here instead"))
+                (f"periapsis already passed on this open orbit (true anomaly "
+                f"{np.degrees(now[i]):.3f} deg, outbound)"), "burn here instead"))
     else:
         now = signed_angle(f.node, r, f.h)
         if kind == "ascending node":
