@@ -12,7 +12,7 @@ from rich.markup import escape
 from rich.syntax import Syntax
 
 from .check import SEVERITIES, Finding, check_program
-from .cliutil import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_OK, UsageError
+from .cliutil import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_OK, UsageError, write_atomic
 from .cliutil import console as _console
 from .evaluate import run
 from .load import load
@@ -119,30 +119,12 @@ def cmd_check(args) -> int:
         if best is None:
             print("apsidal: no cheaper plan found; nothing written", file=sys.stderr)
         else:
-            _write(args.write_suggestion, best.suggestion)
+            write_atomic(args.write_suggestion, best.suggestion)
     if bad_input:
         return EXIT_BAD_INPUT
     if worst >= SEVERITIES.index(args.fail_on):
         return EXIT_FINDINGS
     return EXIT_OK
-
-
-def _write(path: str, text: str) -> None:
-    import os
-    import tempfile
-
-    folder = os.path.dirname(os.path.abspath(path))
-    fd, tmp = tempfile.mkstemp(prefix=".apsidal-", suffix=".aps", dir=folder)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
 
 
 STYLE = {"error": "bold red", "warning": "yellow", "info": "cyan"}

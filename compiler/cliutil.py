@@ -9,7 +9,12 @@ cannot be flown; 70 a bug in apsidal itself.
 from __future__ import annotations
 
 import argparse
+import contextlib
+import os
+import stat
 import sys
+import tempfile
+from pathlib import Path
 
 from rich.console import Console
 
@@ -31,3 +36,28 @@ def console(stream=None) -> Console:
     out = stream or sys.stdout
     return Console(file=out, highlight=False, soft_wrap=False,
                    width=None if out.isatty() else 160)
+
+
+def write_atomic(path: str | Path, text: str) -> None:
+    """Replace ``path`` by ``text`` (UTF-8) so that a reader sees the old or the new file,
+    never a part: write a temporary file beside it, fsync, then rename over."""
+    target = Path(os.path.realpath(path))
+    mode = stat.S_IMODE(target.stat().st_mode) if target.exists() else 0o644
+    fd, tmp = tempfile.mkstemp(dir=target.parent, prefix=f".{target.name}.", suffix=".tmp")
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(text.encode("utf-8"))
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.chmod(tmp, mode)
+        os.replace(tmp, target)
+    except BaseException:
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(tmp)
+        raise
+    with contextlib.suppress(OSError):  # make the rename itself durable where we can
+        dir_fd = os.open(target.parent, os.O_RDONLY)
+        try:
+            os.fsync(dir_fd)
+        finally:
+            os.close(dir_fd)

@@ -43,7 +43,8 @@ def _where(step: dict) -> str:
     return step["at"]
 
 
-def _check_text(c: dict) -> str:
+def check_text(c: dict) -> str:
+    """One expectation check as a reader says it: `apoapsis 1200 km within 1 km: actual ...`."""
     unit = f" {c['unit']}" if c["unit"] else ""
     if c["comparator"] == "within":
         cond = f"{c['expected']:.6g}{unit} within {c['tolerance']:.6g}{unit}"
@@ -90,7 +91,7 @@ def table(report: dict, console: Console) -> None:
         console.print("Expectations", style="bold")
         for s, c in checks:
             mark = Text("pass", style="green") if c["passed"] else Text("FAIL", style="bold red")
-            console.print(Text.assemble("  ", mark, f"  {s['name']}: {_check_text(c)}"))
+            console.print(Text.assemble("  ", mark, f"  {s['name']}: {check_text(c)}"))
     if report.get("findings"):
         console.print()
         console.print("Findings", style="bold")
@@ -136,7 +137,7 @@ def markdown(report: dict) -> str:
     checks = [(s, c) for s in report["steps"] for c in s.get("checks", [])]
     if checks:
         out += ["", "**Expectations**", ""]
-        out += [f"- {'pass' if c['passed'] else '**FAIL**'} `{s['name']}`: {_check_text(c)}"
+        out += [f"- {'pass' if c['passed'] else '**FAIL**'} `{s['name']}`: {check_text(c)}"
                 for s, c in checks]
     if report.get("findings"):
         out += ["", "**Findings**", ""]

@@ -8,13 +8,9 @@ not parse, a revision or file git does not have); 70 an internal error of ours.
 
 from __future__ import annotations
 
-import contextlib
 import difflib
-import os
 import re
-import stat
 import sys
-import tempfile
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -25,7 +21,7 @@ from apsidal.lang.units import UNITS, to_internal
 
 from . import diff_render, render
 from .budget import budget
-from .cliutil import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_INTERNAL, EXIT_OK, UsageError
+from .cliutil import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_INTERNAL, EXIT_OK, UsageError, write_atomic
 from .cliutil import console as _console
 from .diff import diff_reports, grows_past, step_info
 from .evaluate import run
@@ -99,31 +95,6 @@ class FmtReport:
         if self.failed:
             return EXIT_BAD_INPUT
         return EXIT_FINDINGS if check and self.changed else EXIT_OK
-
-
-def write_atomic(path: str | Path, text: str) -> None:
-    """Replace ``path`` by ``text`` (UTF-8) so that a reader sees the old or the new file,
-    never a part: write a temporary file beside it, fsync, then rename over."""
-    target = Path(os.path.realpath(path))
-    mode = stat.S_IMODE(target.stat().st_mode) if target.exists() else 0o644
-    fd, tmp = tempfile.mkstemp(dir=target.parent, prefix=f".{target.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(text.encode("utf-8"))
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.chmod(tmp, mode)
-        os.replace(tmp, target)
-    except BaseException:
-        with contextlib.suppress(FileNotFoundError):
-            os.unlink(tmp)
-        raise
-    with contextlib.suppress(OSError):  # make the rename itself durable where we can
-        dir_fd = os.open(target.parent, os.O_RDONLY)
-        try:
-            os.fsync(dir_fd)
-        finally:
-            os.close(dir_fd)
 
 
 def _read_plan(path: str) -> tuple[str, object]:

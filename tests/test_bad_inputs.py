@@ -16,7 +16,6 @@ the top of the file, line 1, column 1.
 
 from __future__ import annotations
 
-import json
 import math
 import os
 import re
@@ -27,6 +26,7 @@ from dataclasses import dataclass
 import pytest
 from apsidal.compiler import bodies
 from apsidal.compiler.cli import main
+from strictjson import strict_json
 
 # --- the plan the rows vary -------------------------------------------------------------
 #
@@ -305,10 +305,6 @@ def write(tmp_path, case: Bad):
     return path
 
 
-def strict_json(text: str):
-    def refuse(token):
-        raise AssertionError(f"non-finite number {token} in JSON output")
-    return json.loads(text, parse_constant=refuse)
 
 
 def check_error(case: Bad, path, code: int, out: str, err: str) -> None:

@@ -7,13 +7,13 @@ from __future__ import annotations
 
 import csv
 import io
-import json
 import math
 import re
 from pathlib import Path
 
 import pytest
 from apsidal.compiler.cli import main
+from strictjson import strict_json
 
 SAMPLES = Path(__file__).resolve().parent.parent / "samples"
 SAMPLE_FILES = sorted(SAMPLES.glob("*.aps"))
@@ -43,11 +43,6 @@ def run(capsys, *argv) -> tuple[int, str, str]:
     return code, out, err
 
 
-def strict_json(text: str):
-    """json.loads that refuses NaN, Infinity and -Infinity."""
-    def refuse(token):
-        raise AssertionError(f"non-finite number {token} in JSON output")
-    return json.loads(text, parse_constant=refuse)
 
 
 def flat(text: str) -> str:

@@ -10,13 +10,12 @@ from __future__ import annotations
 
 import os
 import stat
-import sys
 from collections import Counter
 from dataclasses import replace
 from pathlib import Path
 
 import pytest
-from apsidal.compiler import review_cli
+from apsidal.compiler import cliutil, review_cli
 from apsidal.compiler.budget import budget
 from apsidal.compiler.cli import main
 from apsidal.compiler.evaluate import run
@@ -28,7 +27,6 @@ from apsidal.lang.parse import parse
 from hypothesis import HealthCheck, given, settings
 
 HERE = Path(__file__).resolve().parent
-sys.path.insert(0, str(HERE))  # tests/plangen.py, under --import-mode=importlib
 from plangen import plan_texts
 
 CASES = sorted((HERE / "format_cases").glob("*.aps"))
@@ -323,11 +321,11 @@ def test_an_interrupted_write_leaves_the_original_intact(tmp_path, capsys, monke
     plan.write_text(MESSY)
     if failure == "mid-write":
         real = os.fdopen
-        monkeypatch.setattr(review_cli.os, "fdopen", lambda *a, **k: _HalfWrite(real(*a, **k)))
+        monkeypatch.setattr(cliutil.os, "fdopen", lambda *a, **k: _HalfWrite(real(*a, **k)))
     else:
         def fail(*args):
             raise OSError(5, "Input/output error")
-        monkeypatch.setattr(review_cli.os, "fsync" if failure == "fsync" else "replace", fail)
+        monkeypatch.setattr(cliutil.os, "fsync" if failure == "fsync" else "replace", fail)
     code, _, err = fmt_cli(capsys, "--write", plan)
     assert code == 2 and "cannot write" in err and "left as it was" in err
     assert plan.read_text() == MESSY

@@ -18,8 +18,6 @@ from __future__ import annotations
 
 import json
 import math
-import sys
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -34,7 +32,6 @@ from hypothesis import strategies as st
 
 # tests/plangen.py (flyable plans, written for the formatter's tests), importable under
 # --import-mode=importlib once this folder is on the path
-sys.path.insert(0, str(Path(__file__).resolve().parent))
 plangen = pytest.importorskip("plangen")
 
 MU = 398600.4418

@@ -5,7 +5,9 @@ from __future__ import annotations
 import numpy as np
 
 from ..check import Checker, Finding, rule, saving_text, with_goals
+from ..evaluate import start_batch
 from ..reorder import same_orbit
+from ..state import elements_from_state
 from ..steps import Burn
 
 SHAPE = {"apoapsis", "periapsis", "circular"}
@@ -63,11 +65,7 @@ def cancelling_burns(c: Checker) -> list[Finding]:
     """
     out = []
     for i, a, b in _same_point_pairs(c):
-        before = c.rows_of(i - 1)[-1].after if i > 0 else None
-        if before is None:
-            from ..evaluate import start_batch
-
-            before = start_batch(c.program)
+        before = c.rows_of(i - 1)[-1].after if i > 0 else start_batch(c.program)
         after = c.rows_of(i + 1)[-1].after
         if not bool(same_orbit(after, before, c.program.body.gm, True)[0]):
             continue
@@ -97,8 +95,6 @@ def long_burn(c: Checker) -> list[Finding]:
     for row in c.result.rows:
         if row.kind != "burn" or row.burn_time is None:
             continue
-        from ..state import elements_from_state
-
         before = elements_from_state(row.after.r, row.v_before, c.program.body.gm)
         after = elements_from_state(row.after.r, row.after.v, c.program.body.gm)
         periods = [float(p[0]) for p in (before.period, after.period) if np.isfinite(p[0])]

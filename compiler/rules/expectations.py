@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from ..check import Checker, Finding, rule
-from ..render import _check_text
+from ..render import check_text
 
 
 @rule("expectation-not-met")
@@ -21,7 +21,7 @@ def expectation_not_met(c: Checker) -> list[Finding]:
         for chk in s.get("checks", []):
             if not chk["passed"]:
                 out.append(Finding("expectation-not-met", "error", (s["name"],),
-                                   f"{s['name']}: expected {_check_text(chk)}"))
+                                   f"{s['name']}: expected {check_text(chk)}"))
     return out
 
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 from apsidal.lang import syntax as ast
@@ -120,7 +121,7 @@ def hohmann_cheaper(c: Checker) -> list[Finding]:
         if not (isinstance(step, Transfer) and step.form == "bielliptic"):
             continue
         node = c.statements[i]
-        proof = c.prove(c.rewrite({i: [c.unparse(_replace_via(node, None))]}))
+        proof = c.prove(c.rewrite({i: [c.unparse(replace(node, via=None))]}))
         if proof is not None:
             out.append(c.finding(
                 "hohmann-cheaper", "warning", (step.name,),
@@ -129,14 +130,8 @@ def hohmann_cheaper(c: Checker) -> list[Finding]:
     return out
 
 
-def _replace_via(node: ast.Transfer, via):
-    from dataclasses import replace
-
-    return replace(node, via=via)
-
-
 def _with_via(node: ast.Transfer, alt_km: float):
-    return _replace_via(node, _distance(alt_km, node.span))
+    return replace(node, via=_distance(alt_km, node.span))
 
 
 @rule("three-burn-plane-change")
