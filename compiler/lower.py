@@ -49,7 +49,7 @@ def _top_of(plan: ast.Plan) -> Span:
     return Span(1, 1, 1, max(2, len(first) + 1), 0, len(first))
 
 
-def _fields(fields, allowed: dict[str, str], what: str) -> dict[str, ast.Field]:
+def _fields(fields, allowed: tuple[str, ...], what: str) -> dict[str, ast.Field]:
     """Fields by key; duplicates and unknown keys are errors."""
     seen: dict[str, ast.Field] = {}
     for f in fields:
@@ -149,7 +149,7 @@ class Lowerer:
             self.start = st
 
     def _body_def(self, st: ast.BodyDef) -> None:
-        f = _fields(st.fields, {"gm": "", "radius": "", "soi": "", "j2": ""},
+        f = _fields(st.fields, ("gm", "radius", "soi", "j2"),
                     f"body `{st.name.text}`")
         for need in ("gm", "radius"):
             if need not in f:
@@ -180,7 +180,7 @@ class Lowerer:
         self.body = body
 
     def _craft(self, st: ast.CraftDef) -> None:
-        f = _fields(st.fields, {"dry": "", "propellant": ""}, f"craft `{st.name.text}`")
+        f = _fields(st.fields, ("dry", "propellant"), f"craft `{st.name.text}`")
         for need in ("dry", "propellant"):
             if need not in f:
                 raise _err(f"craft `{st.name.text}` needs `{need}`", st,
@@ -195,7 +195,7 @@ class Lowerer:
                        "add `engine main isp 300 s thrust 400 N` inside the braces")
         engines = []
         for e in st.engines:
-            ef = _fields(e.fields, {"isp": "", "thrust": ""}, f"engine `{e.name.text}`")
+            ef = _fields(e.fields, ("isp", "thrust"), f"engine `{e.name.text}`")
             for need in ("isp", "thrust"):
                 if need not in ef:
                     raise _err(f"engine `{e.name.text}` needs `{need}`", e,
@@ -216,14 +216,14 @@ class Lowerer:
         return value if d.is_radius else value + self.body.radius
 
     def _start_state(self, st: ast.Start):
-        angles = {"inclination": "", "raan": "", "argp": "", "anomaly": ""}
+        angles = ("inclination", "raan", "argp", "anomaly")
         if st.form == "circular":
-            f = _fields(st.fields, {"circular": "", **angles}, "`start circular`")
+            f = _fields(st.fields, ("circular", *angles), "`start circular`")
             rp = ra = self._radius(f["circular"].value)
             shape_node = f["circular"]
         else:
-            f = _fields(st.fields, {"periapsis": "", "apoapsis": "", "sma": "", "ecc": "",
-                                    "vinf": "", **angles}, "`start orbit`")
+            f = _fields(st.fields, ("periapsis", "apoapsis", "sma", "ecc", "vinf",
+                                    *angles), "`start orbit`")
             rp, ra = self._start_shape(st, f)
             shape_node = f.get("periapsis") or f.get("sma") or st
         if not rp > self.body.radius:
