@@ -278,7 +278,14 @@ CASES = [
     Bad("circular-with-apsis-goal", plan("burn a: circular, apoapsis to 900 km"), 10, 9,
         "circular", ("`circular` already sets both apsides",), "drop `circular`"),
     Bad("goal-given-twice", plan("burn a: along 1 m/s, along 2 m/s"), 10, 22, "along 2",
-        ("`along` is given twice in one step",), ""),
+        ("`along` is given twice in one step",), "keep one `along`"),
+    Bad("option-given-twice", plan("burn a: apoapsis to 1000 km using main using trim"),
+        10, 40, "using trim", ("`using` is given twice in one step",), "keep one"),
+    Bad("fixed-and-movable", plan("burn a: along 1 m/s fixed movable"), 10, 27, "movable",
+        ("cannot be both `fixed` and `movable`",), "keep the one you mean"),
+    Bad("ceiling-below-start", plan(start="ceiling 100 km\n" + START), 9, 1, "ceiling",
+        ("the ceiling (100 km altitude) is below the start orbit",),
+        "give an altitude above the start"),
 ]
 
 assert len(CASES) >= 30

@@ -339,3 +339,17 @@ def test_write_atomic_replaces_through_a_symlink(tmp_path):
     link.symlink_to(target)
     review_cli.write_atomic(link, "new\n")
     assert link.is_symlink() and target.read_text() == "new\n"
+
+
+def test_fixed_movable_and_ceiling_survive_formatting():
+    text = ("around earth\nceiling 150000 km\ncraft c {\n dry 1 t\n propellant 1 t\n"
+            " engine main isp 300 s thrust 1 kN\n}\nstart circular 400 km\n"
+            "burn a at node: inclination to 3 deg fixed\n"
+            "burn b: along 1 m/s movable\ncoast for 2 h movable\ndrop d 5 kg movable\n"
+            "expect apoapsis 400 km movable\n")
+    once = format_text(text)
+    assert format_text(once) == once
+    for words in ("ceiling 150000 km", "inclination to 3 deg  fixed", "along 1 m/s",
+                  "for 2 h", "5 kg", "apoapsis 400 km"):
+        assert words in once
+    assert once.count("movable") == 4 and once.count("fixed") == 1
