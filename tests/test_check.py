@@ -268,6 +268,9 @@ burn tilt at ascending node: inclination to 25 deg
 """)
     [f] = findings(text, "costlier-node")
     assert "descending node" in f.suggestion
+    # With argp 0 the ascending node is the periapsis and the descending one the apoapsis,
+    # where the flight is horizontal: 2 v sin(di/2) at each (common practice), speeds
+    # from vis-viva.
     expected = 2 * math.sin(math.radians(2.5)) * 1000 * (
         math.sqrt(MU * (2 / (RE + 400) - 2 / (2 * RE + 30400)))
         - vapo(400, 30000))
