@@ -16,7 +16,15 @@ import numpy as np
 from apsidal.lang.errors import PlanError
 
 from . import kepler
-from .solvers import Failures, Shape, new_velocity, normal_for, rotate_about
+from .solvers import (
+    Failures,
+    Shape,
+    crossings,
+    new_velocity,
+    normal_for,
+    rotate_about,
+    target_plane,
+)
 from .state import (
     CIRCULAR_ECC,
     EQUATORIAL_RAD,
@@ -166,11 +174,18 @@ def _target_angle(place: Place, r, v, mu, fails: Failures):
     return d
 
 
-def goto(place: Place, r, v, mu, fails: Failures):
-    """Coast to ``place``; returns (r, v, seconds)."""
+def goto(place: Place, r, v, mu, fails: Failures, sweep=None):
+    """Coast to ``place``; returns (r, v, seconds).
+
+    A ``crossing`` is resolved by the caller, who knows the plane: ``sweep`` is the angle
+    to it, per element.
+    """
     if place.kind == "here":
         return r, v, np.zeros(r.shape[0])
-    d = _target_angle(place, r, v, mu, fails)
+    if place.kind == "crossing":
+        d = np.where((sweep < HERE_TOL) | (sweep > TWO_PI - HERE_TOL), 0.0, sweep)
+    else:
+        d = _target_angle(place, r, v, mu, fails)
     dt, ok_t = kepler.time_of_flight(r, v, mu, d)
     r1, v1, ok_p = kepler.place(r, v, mu, d)
     fails.add(~(ok_t & ok_p), lambda i: (
@@ -213,9 +228,13 @@ def _solve_burn(step: Burn, r, v, ctx: Context, fails: Failures, normal=None):
                 (f"use `transfer NAME: circular {R - ctx.radius:g} km`, or drop the altitude "
                 "to circularise here")))
         shape = Shape(periapsis=rmag, apoapsis=rmag)
+    elif step.apsis_here:
+        far = np.full_like(rmag, step.apoapsis if step.apoapsis is not None else step.periapsis)
+        shape = Shape(periapsis=np.minimum(rmag, far), apoapsis=np.maximum(rmag, far))
     else:
-        shape = Shape(periapsis=None if step.periapsis is None else np.full_like(rmag, step.periapsis),
-                      apoapsis=None if step.apoapsis is None else np.full_like(rmag, step.apoapsis))
+        full = lambda x: None if x is None else np.full_like(rmag, x)
+        shape = Shape(periapsis=full(step.periapsis), apoapsis=full(step.apoapsis),
+                      tangential=step.tangential)
     if normal is None and step.normal is not None:
         normal = np.broadcast_to(np.asarray(step.normal), r.shape)
     if normal is None and (step.inclination is not None or step.raan is not None):
@@ -224,9 +243,10 @@ def _solve_burn(step: Burn, r, v, ctx: Context, fails: Failures, normal=None):
     return np.where(fails.ok[:, None], v_new, v)
 
 
-def _burn_at(step: Burn, place: Place, r, v, ctx: Context, normal=None) -> BurnOutcome:
+def _burn_at(step: Burn, place: Place, r, v, ctx: Context, normal=None,
+             sweep=None) -> BurnOutcome:
     fails = Failures(r.shape[0])
-    r1, v1, coast = goto(place, r, v, ctx.mu, fails)
+    r1, v1, coast = goto(place, r, v, ctx.mu, fails, sweep)
     v2 = _solve_burn(step, r1, v1, ctx, fails, normal)
     return BurnOutcome(r1, v1, v2, coast, fails, place.label())
 
@@ -258,6 +278,10 @@ def burn_outcome(step: Burn, r, v, ctx: Context, normal=None) -> BurnOutcome:
         asc = _burn_at(step, Place("ascending node"), r, v, ctx, normal)
         desc = _burn_at(step, Place("descending node"), r, v, ctx, normal)
         return _cheaper(asc, desc)
+    if step.place.kind == "crossing":
+        first, second = crossings(r, v, target_plane(r, v, step.inclination, step.raan))
+        return _cheaper(_burn_at(step, step.place, r, v, ctx, normal, first),
+                        _burn_at(step, step.place, r, v, ctx, normal, second))
     return _burn_at(step, step.place, r, v, ctx, normal)
 
 
@@ -318,10 +342,11 @@ def _engine(step, ctx: Context) -> EngineSpec:
 
 
 def _burn_rows(step: Burn, index: int, name: str, batch: Batch, ctx: Context, fails: Failures,
-               normal=None, place=None):
-    if place is not None:
-        step = replace(step, place=place)
-    out = burn_outcome(step, batch.r, batch.v, ctx, normal)
+               normal=None, sweep=None):
+    if sweep is not None:  # a transfer's first burn at a crossing already chosen
+        out = _burn_at(step, step.place, batch.r, batch.v, ctx, normal, sweep)
+    else:
+        out = burn_outcome(step, batch.r, batch.v, ctx, normal)
     fails.merge(~out.fails.ok, out.fails)
     margin = step.margin
     new, vec, dv, dvm, prop, burn_time = _price(batch, out, _engine(step, ctx), margin, ctx,
@@ -335,32 +360,44 @@ def _burn_rows(step: Burn, index: int, name: str, batch: Batch, ctx: Context, fa
 
 
 def _phase_burns(step: Transfer, r, v, ctx: Context):
-    """The burns of a transfer as plain Burn steps (plane goals filled in later)."""
+    """The burns of a transfer as plain Burn steps (plane goals filled in later).
+
+    The first burn makes the point it stands on an apsis of the transfer orbit (it takes
+    out any radial speed), so the next burn is half a revolution on, at the opposite
+    apsis, which lies in every plane through the first point: the transfer reaches the
+    circle and the plane it names from anywhere on any orbit.
+    """
     rmag = norm(r)
     eng, margin, span = step.engine, step.margin, step.span
     mk = lambda i, place, **goals: Burn(f"{step.name}/{i}", place, engine=eng,
                                         margin=margin, span=span, **goals)
     if step.form == "hohmann":
         up = step.radius >= rmag
-        first_up = mk(1, step.place, apoapsis=step.radius)
-        first_down = mk(1, step.place, periapsis=step.radius)
+        first_up = mk(1, step.place, apoapsis=step.radius, apsis_here=True)
+        first_down = mk(1, step.place, periapsis=step.radius, apsis_here=True)
         second_up = mk(2, Place("apoapsis"), circular=True)
         second_down = mk(2, Place("periapsis"), circular=True)
         return up, [(first_up, first_down), (second_up, second_down)]
     if step.form == "bielliptic":
-        return None, [(mk(1, step.place, apoapsis=step.via),) * 2,
-                      (mk(2, Place("apoapsis"), periapsis=step.radius),) * 2,
+        return None, [(mk(1, step.place, apoapsis=step.via, apsis_here=True),) * 2,
+                      (mk(2, Place("apoapsis"), periapsis=step.radius, apsis_here=True),) * 2,
                       (mk(3, Place("periapsis"), circular=True),) * 2]
     raise ValueError(step.form)
 
 
 def _transfer(step: Transfer, index: int, batch: Batch, ctx: Context, fails: Failures):
-    if step.place.kind == "node":
-        # price the whole transfer from each node and keep the cheaper per element
+    if step.place.kind in ("node", "crossing"):
+        # price the whole transfer from each node (crossing) and keep the cheaper per element
+        if step.place.kind == "node":
+            ways = [(replace(step, place=Place(kind)), None)
+                    for kind in ("ascending node", "descending node")]
+        else:
+            target = target_plane(batch.r, batch.v, step.inclination, step.raan)
+            ways = [(step, d) for d in crossings(batch.r, batch.v, target)]
         results = []
-        for kind in ("ascending node", "descending node"):
+        for way, sweep in ways:
             sub = Failures(batch.size)
-            res = _transfer_from(replace(step, place=Place(kind)), index, batch, ctx, sub)
+            res = _transfer_from(way, index, batch, ctx, sub, sweep)
             results.append((res, sub))
         (a, fa), (b, fb) = results
         ca, cb = a[0].dv_margin, b[0].dv_margin
@@ -386,20 +423,22 @@ def _merge_rows(a: Row, b: Row, take_a: np.ndarray) -> Row:
                   "duration")), a.engine, a.margin, v_before=pick(a.v_before, b.v_before))
 
 
-def _either(b_up: Burn, b_down: Burn, up, index, batch: Batch, ctx: Context, fails, normal):
+def _either(b_up: Burn, b_down: Burn, up, index, batch: Batch, ctx: Context, fails, normal,
+            sweep=None):
     """Burn ``b_up`` where ``up`` else ``b_down`` (a transfer raising or lowering)."""
     f_up, f_dn = Failures(batch.size), Failures(batch.size)
-    new_up, row_up = _burn_rows(b_up, index, b_up.name, batch, ctx, f_up, normal)
-    new_dn, row_dn = _burn_rows(b_down, index, b_down.name, batch, ctx, f_dn, normal)
+    new_up, row_up = _burn_rows(b_up, index, b_up.name, batch, ctx, f_up, normal, sweep)
+    new_dn, row_dn = _burn_rows(b_down, index, b_down.name, batch, ctx, f_dn, normal, sweep)
     fails.merge(up, f_up)
     fails.merge(~up, f_dn)
     return new_up.where(up, new_dn), _merge_rows(row_up, row_dn, up)
 
 
-def _transfer_from(step: Transfer, index: int, batch: Batch, ctx: Context, fails: Failures):
+def _transfer_from(step: Transfer, index: int, batch: Batch, ctx: Context, fails: Failures,
+                   sweep=None):
     if step.form == "plane-change":
-        return _three_burn_plane_change(step, index, batch, ctx, fails)
-    r0, v0, _ = goto(step.place, batch.r, batch.v, ctx.mu, Failures(batch.size))
+        return _three_burn_plane_change(step, index, batch, ctx, fails, sweep)
+    r0, v0, _ = goto(step.place, batch.r, batch.v, ctx.mu, Failures(batch.size), sweep)
     up, phases = _phase_burns(step, r0, v0, ctx)
     normals = [None] * len(phases)
     if step.changes_plane:
@@ -409,16 +448,17 @@ def _transfer_from(step: Transfer, index: int, batch: Batch, ctx: Context, fails
         fails.merge(~tmp.ok, tmp)
         if step.form == "hohmann":
             share = (np.full(batch.size, step.split) if step.split is not None
-                     else _best_split(phases, up, batch, ctx, r0, v0, target))
+                     else _best_split(phases, up, batch, ctx, r0, v0, target, sweep))
             normals = _split_normals(r0, v0, target, share)
         else:
             normals = [None, target, None]  # all of it at the bi-elliptic's far apoapsis
     rows = []
-    for (b_up, b_down), normal in zip(phases, normals):
+    for k, ((b_up, b_down), normal) in enumerate(zip(phases, normals)):
+        first = sweep if k == 0 else None
         if up is None:
-            batch, row = _burn_rows(b_up, index, b_up.name, batch, ctx, fails, normal)
+            batch, row = _burn_rows(b_up, index, b_up.name, batch, ctx, fails, normal, first)
         else:
-            batch, row = _either(b_up, b_down, up, index, batch, ctx, fails, normal)
+            batch, row = _either(b_up, b_down, up, index, batch, ctx, fails, normal, first)
         rows.append(row)
     return batch, rows
 
@@ -434,7 +474,7 @@ def _split_normals(r, v, target, share):
     return [first, target]
 
 
-def _best_split(phases, up, batch: Batch, ctx: Context, r0, v0, target) -> np.ndarray:
+def _best_split(phases, up, batch: Batch, ctx: Context, r0, v0, target, sweep=None):
     """Share of the plane change at the first burn that minimises the total delta-v.
 
     Golden-section search on [0, 1] over the whole batch at once; the total is convex
@@ -443,8 +483,10 @@ def _best_split(phases, up, batch: Batch, ctx: Context, r0, v0, target) -> np.nd
     def total(share):
         b = batch
         cost = np.zeros(batch.size)
-        for (b_up, b_down), normal in zip(phases, _split_normals(r0, v0, target, share)):
-            b, row = _either(b_up, b_down, up, 0, b, ctx, Failures(b.size), normal)
+        normals = _split_normals(r0, v0, target, share)
+        for k, ((b_up, b_down), normal) in enumerate(zip(phases, normals)):
+            b, row = _either(b_up, b_down, up, 0, b, ctx, Failures(b.size), normal,
+                             sweep if k == 0 else None)
             cost += row.dv
         return cost
     lo, hi = np.zeros(batch.size), np.ones(batch.size)
@@ -462,29 +504,37 @@ def _best_split(phases, up, batch: Batch, ctx: Context, r0, v0, target) -> np.nd
     return 0.5 * (lo + hi)
 
 
-def _three_burn_plane_change(step: Transfer, index, batch: Batch, ctx: Context, fails):
-    """Raise the apoapsis, turn the plane there, lower it back."""
+def _three_burn_plane_change(step: Transfer, index, batch: Batch, ctx: Context, fails,
+                            sweep=None):
+    """Raise the apoapsis, turn the plane there, lower it back.
+
+    The raise makes the first point the periapsis of the detour, so the turn is half a
+    revolution on and the lowering is back at the first point's radius, where it restores
+    both apsides of the orbit the craft started from (the apse line may have turned).
+    """
     tmp = Failures(batch.size)
-    r0, v0, _ = goto(step.place, batch.r, batch.v, ctx.mu, tmp)
+    r0, v0, _ = goto(step.place, batch.r, batch.v, ctx.mu, tmp, sweep)
     el = elements_from_state(r0, v0, ctx.mu)
-    restore = np.where(el.ecc < CIRCULAR_ECC, norm(r0), el.apoapsis)
+    circular = el.ecc < CIRCULAR_ECC
+    keep_pe = np.where(circular, norm(r0), el.periapsis)
+    keep_ap = np.where(circular, norm(r0), el.apoapsis)
     eng, margin, span = step.engine, step.margin, step.span
-    raise_ = Burn(f"{step.name}/1", step.place, apoapsis=step.via, engine=eng, margin=margin,
-                  span=span)
+    raise_ = Burn(f"{step.name}/1", step.place, apoapsis=step.via, apsis_here=True,
+                  engine=eng, margin=margin, span=span)
     turn = Burn(f"{step.name}/2", Place("apoapsis"), inclination=step.inclination,
                 raan=step.raan, engine=eng, margin=margin, span=span)
+    fails.add(~el.closed, lambda i: (
+        (f"a three-burn plane change starts from a closed orbit; this one is open "
+         f"(eccentricity {el.ecc[i]:.6f})"), "capture first, then turn the plane"))
     rows = []
-    for burn in (raise_, turn):
-        batch, row = _burn_rows(burn, index, burn.name, batch, ctx, fails)
+    for burn, first in ((raise_, sweep), (turn, None)):
+        batch, row = _burn_rows(burn, index, burn.name, batch, ctx, fails, None, first)
         rows.append(row)
-    # lower back: restore the original apoapsis (circular orbits come back circular)
     lower = Burn(f"{step.name}/3", Place("periapsis"), engine=eng, margin=margin, span=span)
     out = burn_outcome(lower, batch.r, batch.v, ctx)
     sub = Failures(batch.size)
     r3, v3 = out.r, out.v_before
-    circ = np.abs(restore - norm(r3)) <= 1e-7 * restore
-    shape = Shape(periapsis=np.where(circ, norm(r3), np.minimum(norm(r3), restore)),
-                  apoapsis=np.where(circ, norm(r3), np.maximum(norm(r3), restore)))
+    shape = Shape(periapsis=np.minimum(keep_pe, norm(r3)), apoapsis=np.maximum(keep_ap, norm(r3)))
     v_new = new_velocity(r3, v3, ctx.mu, shape, None, sub, ctx.radius)
     fails.merge(~sub.ok, sub)
     out = BurnOutcome(r3, v3, np.where(sub.ok[:, None], v_new, v3), out.coast, out.fails)

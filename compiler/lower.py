@@ -338,7 +338,7 @@ class Lowerer:
                 raise _err(f"`{opt.key}` is given twice in one step", opt,
                            f"keep one (the first is at column {seen[opt.key].span.column})")
             seen[opt.key] = opt
-            if opt.key in ("fixed", "movable"):
+            if opt.key in ("fixed", "movable", "tangential"):
                 continue
             if opt.key == "using":
                 engine = self.craft.engine(opt.value.text)
@@ -353,8 +353,17 @@ class Lowerer:
         if "fixed" in seen and "movable" in seen:
             raise _err("a step cannot be both `fixed` and `movable`", seen["movable"],
                        "keep the one you mean")
+        self._tangential = seen.get("tangential")
         return engine, margin, "fixed" in seen, "movable" in seen
 
+    def _crossing_needs_plane(self, node, goals, kind: str):
+        """`at crossing` is where the current plane meets the plane the goals name."""
+        if node.where is None or node.where.kind != "crossing":
+            return
+        if "raan" not in goals:
+            raise _err(f"`at crossing` needs the plane a {kind} turns to: a `raan to` goal "
+                       "(with or without `inclination to`)", node.where,
+                       "for `inclination to` alone burn `at node`; every node reaches it")
     def _goals(self, node) -> dict:
         goals: dict = {}
         for g in node.goals:
@@ -377,6 +386,10 @@ class Lowerer:
                 return Coast(name, "for", duration=node.duration.internal(), span=node.span,
                              movable=free)
             if node.mode == "to":
+                if node.where.kind == "crossing":
+                    raise _err("a coast has no plane to cross: `crossing` is where a burn's "
+                               "`raan to` plane meets the orbit", node.where,
+                               "give the burn `at crossing` instead, or coast `to node`")
                 return Coast(name, "to", place=self._place(node.where), span=node.span,
                              movable=free)
             return Coast(name, "rev", revs=int(node.duration.value), span=node.span,
@@ -392,7 +405,16 @@ class Lowerer:
         goals = self._goals(node)
         engine, margin, fixed, movable = self._options(node)
         place = self._place(node.where)
+        tangential = self._tangential
         explicit = [k for k in ("along", "cross", "radial") if k in goals]
+        if tangential is not None and (explicit or "circular" in goals
+                                       or ("periapsis" in goals) == ("apoapsis" in goals)):
+            raise _err("`tangential` goes with one apsis goal (`apoapsis to` or "
+                       "`periapsis to`): it keeps the flight-path angle while that apsis "
+                       "moves", tangential,
+                       "drop `tangential`; with both apsides or `circular` the burn is "
+                       "already fixed")
+        self._crossing_needs_plane(node, goals, "burn")
         if explicit:
             other = [k for k in goals if k not in ("along", "cross", "radial")]
             if other:
@@ -428,13 +450,17 @@ class Lowerer:
                        "a retrograde orbit has an inclination above 90 deg; to move the node "
                        "instead, use `raan to`")
         return Burn(name, place, engine=engine, margin=margin, span=node.span, fixed=fixed,
-                    **kw)
+                    tangential=tangential is not None, **kw)
 
     def _transfer(self, node: ast.Transfer) -> Transfer:
         name = self._name(node, "transfer")
         goals = self._goals(node)
         engine, margin, fixed, _ = self._options(node)
         place = self._place(node.where)
+        if self._tangential is not None:
+            raise _err("`tangential` is an option of a one-apsis burn, not of a transfer",
+                       self._tangential, "drop it: a transfer's burns are already tangential")
+        self._crossing_needs_plane(node, goals, "transfer")
         bad = [k for k in goals if k not in ("circular", "inclination", "raan")]
         if bad:
             raise _err(f"a transfer takes `circular`, `inclination to` and `raan to`, "

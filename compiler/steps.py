@@ -49,7 +49,10 @@ class Craft:
 class Place:
     """Where a burn happens or a coast ends."""
 
-    kind: str  # here | periapsis | apoapsis | ascending node | descending node | node | anomaly
+    # here | periapsis | apoapsis | ascending node | descending node | node | anomaly |
+    # crossing (where the current plane meets the plane the burn's goals name; the cheaper
+    # of the two, like `node`)
+    kind: str
     angle: float | None = None  # rad, for anomaly
 
     def label(self) -> str:
@@ -72,6 +75,8 @@ class Burn:
     inclination: float | None = None  # rad
     raan: float | None = None
     normal: tuple[float, float, float] | None = None  # explicit target plane normal
+    apsis_here: bool = False  # the current point becomes the other apsis (transfer burns)
+    tangential: bool = False  # one apsis goal flown keeping the flight-path angle
     vector: tuple[float, float, float] | None = None  # along, cross, radial, km/s
     engine: EngineSpec | None = None
     margin: float = 0.0

@@ -52,7 +52,7 @@ FIELD_ORDER = {
     ast.Start: ("circular", "periapsis", "apoapsis", "sma", "ecc", "vinf",
                 "inclination", "raan", "argp", "anomaly"),
 }
-OPTION_ORDER = ("using", "margin", "fixed", "movable")
+OPTION_ORDER = ("using", "margin", "tangential", "fixed", "movable")
 
 
 class FormatError(Exception):

@@ -491,7 +491,7 @@ class _ToSyntax(Transformer):
 
     def option(self, meta, children):
         key = str(children[0])
-        if key in ("fixed", "movable"):
+        if key in ("fixed", "movable", "tangential"):
             return ast.Option(key, None, _span(meta))
         value = children[1]
         if key == "using":

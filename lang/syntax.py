@@ -57,7 +57,7 @@ class Distance:
 class Where:
     """Where a burn or a coast ends: an apsis, a node, a true anomaly, or here."""
 
-    kind: str  # periapsis | apoapsis | ascending node | descending node | node | anomaly
+    kind: str  # periapsis | apoapsis | ascending node | descending node | node | crossing | anomaly
     angle: Quantity | None
     span: Span
 
@@ -87,8 +87,8 @@ class Goal:
 class Option:
     """A trailing step option: ``using trim``, ``margin 20 %`` or ``fixed``."""
 
-    key: str  # using | margin | fixed | movable
-    value: Name | Quantity | None  # None for `fixed` and `movable`
+    key: str  # using | margin | tangential | fixed | movable
+    value: Name | Quantity | None  # None for the bare words
     span: Span
 
 

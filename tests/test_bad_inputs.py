@@ -231,7 +231,7 @@ CASES = [
         "retrograde"),
     Bad("plane-not-through-position", plan("burn tilt: inclination to 40 deg, raan to 200 deg"),
         10, 1, "burn tilt", ("does not contain the craft's position",),
-        "burn where the two planes cross"),
+        "burn `at crossing`"),
     Bad("apoapsis-on-hyperbola", plan("burn back at apoapsis: periapsis to 300 km",
                                       start=HYPERBOLA), 10, 1, "burn back",
         ("back:", "no apoapsis on an open orbit", "1.5"), "`at periapsis`"),

@@ -32,7 +32,7 @@ PLANS = {
         "coast loop 2 rev",
         "burn kick at anomaly 200 deg: along 50 m/s, cross 10 m/s, radial 20 m/s",
         "coast home to periapsis",
-        "burn swing at ascending node: raan to 60 deg",
+        "burn swing at crossing: raan to 60 deg",
         "coast drift for 40 min",
     ),
     "near-equatorial": (

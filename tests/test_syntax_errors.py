@@ -18,7 +18,7 @@ from hypothesis import strategies as st
 ERRORS = [
     # id, text, (line, column), message, part of the hint
     ("unexpected-character", "around earth\nburn x: circular 3 km )\n", (2, 23),
-     "unexpected character `)`", "expected `margin`, `,`, `using`, `fixed`, `movable` or end of line"),
+     "unexpected character `)`", "expected `margin`, `,`, `using`, `fixed`, `movable`, `tangential` or end of line"),
     ("misspelt-goal", "burn raise at periapsis: apoapsys to 35786 km\n", (1, 26),
      "unexpected `apoapsys`", "did you mean `apoapsis`?"),
     ("misspelt-where", "burn raise at periapsys: apoapsis to 35786 km\n", (1, 15),
@@ -80,7 +80,7 @@ ERRORS = [
      'unterminated string: the closing `"` is missing', 'plan "..."'),
     ("end-of-line", "around earth\nburn x at", (2, 10),
      "unexpected end of line", ("expected `periapsis`, `apoapsis`, `anomaly`, "
-                                "`ascending node`, `node` or `descending node`")),
+                                "`ascending node`, `node`, `descending node` or `crossing`")),
     ("keyword-as-step-name", "burn node: inclination to 0 deg\n", (1, 6),
      "`node` is a keyword and cannot name a step", "such as `node-1`"),
     ("keyword-as-engine-name", "craft c { engine thrust isp 1 s }\n", (1, 18),
