@@ -92,15 +92,22 @@ def _check_dict(c, radius: float) -> dict:
     tol = c.tolerance
     if c.kind in ("inclination", "raan", "argp"):
         tol = np.degrees(tol)
-    return {
+    missing = c.missing(0)
+    out = {
         "kind": c.kind,
         "comparator": c.comparator,
         "expected": check_value(c.kind, c.target, radius),
         "tolerance": finite(tol, 9) if c.comparator == "within" else None,
-        "actual": check_value(c.kind, c.actual[0], radius),
+        "actual": None if missing else check_value(c.kind, c.actual[0], radius),
         "unit": UNIT_OF_CHECK[c.kind],
         "passed": bool(c.passed[0]),
+        "reason": missing,
     }
+    if c.apsides is not None:
+        out["actual_periapsis"] = check_value("periapsis", c.apsides[0][0], radius)
+        out["actual_apoapsis"] = None if missing else check_value("apoapsis", c.apsides[1][0],
+                                                                   radius)
+    return out
 
 
 def budget(result: Result) -> dict:

@@ -94,6 +94,16 @@ class CheckResult:
     tolerance: float
     actual: np.ndarray
     passed: np.ndarray
+    undefined: np.ndarray | None = None  # the orbit has no such value (open: no apoapsis)
+    ecc: np.ndarray | None = None  # for the reason an undefined value is worded with
+    apsides: tuple[np.ndarray, np.ndarray] | None = None  # `circular`: both, as radii
+
+    def missing(self, i: int) -> str | None:
+        """Why element ``i`` has no value to compare, or None when it has one."""
+        if self.undefined is None or not self.undefined[i]:
+            return None
+        what = {"period": "period", "circular": "apoapsis"}.get(self.kind, self.kind)
+        return (f"the orbit is open (eccentricity {self.ecc[i]:.6f}): it has no {what}")
 
 
 @dataclass
@@ -612,12 +622,19 @@ def measure(kind: str, batch: Batch, ctx: Context) -> np.ndarray:
 ANGLES = {"inclination", "raan", "argp"}
 
 
+OPEN_UNDEFINED = {"apoapsis", "period", "circular"}  # no value on an open orbit
+
+
 def _expect(step: Expect, index: int, batch: Batch, ctx: Context, fails: Failures):
     results = []
     ok = np.ones(batch.size, dtype=bool)
+    el = elements_from_state(batch.r, batch.v, ctx.mu)
     for check in step.checks:
+        undefined = ~el.closed if check.kind in OPEN_UNDEFINED else np.zeros(batch.size, bool)
+        apsides = None
         if check.kind == "circular":
-            pe, ap = measure("periapsis", batch, ctx), measure("apoapsis", batch, ctx)
+            pe, ap = el.periapsis, el.apoapsis
+            apsides = (pe, ap)
             err = np.maximum(np.abs(pe - check.target), np.abs(ap - check.target))
             actual = np.where(np.abs(pe - check.target) >= np.abs(ap - check.target), pe, ap)
             passed = err <= check.tolerance
@@ -632,8 +649,9 @@ def _expect(step: Expect, index: int, batch: Batch, ctx: Context, fails: Failure
                 if check.kind in ANGLES:
                     diff = np.mod(diff + np.pi, TWO_PI) - np.pi
                 passed = np.abs(diff) <= check.tolerance
+        passed = passed & ~undefined
         results.append(CheckResult(check.kind, check.comparator, check.target, check.tolerance,
-                                   actual, passed))
+                                   actual, passed, undefined, el.ecc, apsides))
         ok &= passed
     new = replace(batch, expect_ok=batch.expect_ok & ok)
     return new, [Row(index, step.name, "expect", "here", new, checks=results)]

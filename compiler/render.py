@@ -50,6 +50,11 @@ def check_text(c: dict) -> str:
         cond = f"{c['expected']:.6g}{unit} within {c['tolerance']:.6g}{unit}"
     else:
         cond = f"{c['comparator']} {c['expected']:.6g}{unit}"
+    if c.get("reason"):
+        return f"{c['kind']} {cond}: {c['reason']}"
+    if c["kind"] == "circular":
+        return (f"{c['kind']} {cond}: actual {c['actual_periapsis']:.6g} x "
+                f"{c['actual_apoapsis']:.6g}{unit}")
     return f"{c['kind']} {cond}: actual {c['actual']:.6g}{unit}"
 
 

@@ -315,7 +315,8 @@ def plan_texts(draw):
 
 
 # Numbers that may be empty (None), and when.
-MAY_BE_NONE = {"apoapsis_alt_km", "period_s", "line", "column", "hint", "tolerance", "actual"}
+MAY_BE_NONE = {"apoapsis_alt_km", "period_s", "line", "column", "hint", "tolerance", "actual",
+               "actual_apoapsis", "reason"}
 
 
 def _walk(node, path=()):
@@ -344,6 +345,10 @@ def assert_clean_budget(report: dict) -> None:
         for check in step.get("checks", []):
             if check["actual"] is None:
                 assert check["kind"] in ("apoapsis", "circular", "period") and open_orbit
+                # an open orbit has no such value: the check fails, and says why
+                assert not check["passed"] and "open" in check["reason"]
+            else:
+                assert check["reason"] is None
     assert report["totals"]["propellant_left_kg"] >= -1e-9
 
 
