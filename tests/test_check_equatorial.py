@@ -15,7 +15,6 @@ import pytest
 from apsidal.compiler.evaluate import run
 from apsidal.compiler.load import load_text
 from scipy.optimize import minimize_scalar
-
 from test_check import MU, RE, findings, plan, reprice, vcirc
 
 EARTH_SOI = 924_649  # km, the catalogue's Laplace radius (recomputed in test_bodies.py)
@@ -118,8 +117,8 @@ def test_moving_or_merging_a_plane_change_from_the_equator_keeps_its_plane(rule)
      "shared-plane-change"),
     ("burn turn: inclination to 30 deg\ntransfer geo: circular 35786 km",
      "shared-plane-change"),
-    ("burn raise: apoapsis to 35786 km, inclination to 30 deg\n"
-     "burn circ at apoapsis: circular", "shared-plane-change"),
+    (("burn raise: apoapsis to 35786 km, inclination to 30 deg\n"
+      "burn circ at apoapsis: circular"), "shared-plane-change"),
     ("transfer out: circular 130000 km, inclination to 30 deg", "bi-elliptic-cheaper"),
     ("transfer geo: circular 35786 km, inclination to 30 deg via apoapsis 90000 km",
      "hohmann-cheaper"),
