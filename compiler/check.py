@@ -99,27 +99,31 @@ class Checker:
         rows = self.rows_of(step_index)
         return rows[-1].after if rows else self.state_before(step_index)
 
-    def pin_plane(self, goals, given_at: int, reached_at: int | None = None) -> list:
+    def pin_plane(self, goals, given_at: int | tuple[int, ...],
+                  reached_at: int | None = None) -> list:
         """``goals`` with the plan's own node line added where it was left to chance.
 
         From an equatorial orbit `inclination to I` alone leaves the node line to the
         point of the burn: every position is on the equator, so every point is a node,
         and a rewrite that turns the plane elsewhere reaches another plane.  Where the
-        plane goals were given (step ``given_at``) from an equatorial orbit, by
-        inclination without raan, the rewrite is pinned to the plane the plan flew: the
-        raan of the orbit after step ``reached_at`` (default ``given_at``), to 10
-        significant digits, goes in beside the inclination.  Otherwise the goals are
-        returned as they are.
+        plane goals are given by inclination without raan and the plan is in an
+        equatorial orbit just before step ``given_at`` (or any of several: the steps a
+        rewrite folds into one), the rewrite is pinned to the plane the plan flew: the
+        raan of the orbit after step ``reached_at`` (default: the last of ``given_at``),
+        to 10 significant digits, goes in beside the inclination.  Otherwise the goals
+        are returned as they are.  A pin never makes a wrong claim: the proof still
+        prices the rewrite and compares its final orbit.
         """
         goals = list(goals)
         kinds = {g.kind for g in goals}
         if "inclination" not in kinds or "raan" in kinds:
             return goals
         mu = self.program.body.gm
-        before = self.state_before(given_at)
-        if not bool(elements_from_state(before.r, before.v, mu).equatorial[0]):
+        given = (given_at,) if isinstance(given_at, int) else tuple(given_at)
+        states = [self.state_before(k) for k in given]
+        if not any(bool(elements_from_state(b.r, b.v, mu).equatorial[0]) for b in states):
             return goals
-        after = self.state_after(given_at if reached_at is None else reached_at)
+        after = self.state_after(max(given) if reached_at is None else reached_at)
         el = elements_from_state(after.r, after.v, mu)
         if bool(el.equatorial[0]):
             return goals  # the equator (or its retrograde twin) has no node line to pin

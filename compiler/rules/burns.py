@@ -46,9 +46,8 @@ def merge_burns(c: Checker) -> list[Finding]:
         later = {g.kind for g in nb.goals}
         if later & SHAPE:
             later |= SHAPE  # the second burn's shape goals replace the first's
-        kept = [g for g in na.goals if g.kind not in later]
-        plane_first = any(g.kind in ("inclination", "raan") for g in kept)
-        goals = c.pin_plane(kept + list(nb.goals), i if plane_first else i + 1, i + 1)
+        goals = c.pin_plane([g for g in na.goals if g.kind not in later] + list(nb.goals),
+                            (i, i + 1))
         proof = c.prove(c.rewrite({i: [c.unparse(with_goals(na, goals))], i + 1: []}))
         if proof is not None:
             out.append(c.finding(

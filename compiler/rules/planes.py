@@ -136,8 +136,7 @@ def shared_plane_change(c: Checker) -> list[Finding]:
                 continue
             tnode, pnode = c.statements[i], c.statements[j]
             goals = [g for g in tnode.goals if g.kind not in PLANE_GOALS]
-            goals += c.pin_plane([g for g in pnode.goals if g.kind in PLANE_GOALS], j,
-                                 max(i, j))
+            goals += c.pin_plane([g for g in pnode.goals if g.kind in PLANE_GOALS], (i, j))
             texts = []
             for where in ((tnode.where.kind if tnode.where else None),
                           (pnode.where.kind if pnode.where else None), "node"):
@@ -172,7 +171,7 @@ def _burn_pairs(c: Checker) -> list[Finding]:
             continue
         na, nb = c.statements[i], c.statements[i + 1]
         plane = c.pin_plane([g for g in list(na.goals) + list(nb.goals)
-                             if g.kind in PLANE_GOALS], i if a.changes_plane else i + 1, i + 1)
+                             if g.kind in PLANE_GOALS], (i, i + 1))
         shape_goal = next(g for g in na.goals if g.kind == far)
         circ = ast.Goal("circular", shape_goal.value, shape_goal.span)
         transfer = ast.Transfer(na.name, na.where, (circ, *plane), None, na.options, na.span)
