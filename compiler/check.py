@@ -13,13 +13,15 @@ import difflib
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field, replace
 
+import numpy as np
 from apsidal.lang import syntax as ast
 from apsidal.lang.errors import PlanError
 
 from .budget import budget
-from .evaluate import Result, run
+from .evaluate import Batch, Result, run, start_batch
 from .load import load_text
 from .reorder import orientation_matters, same_orbit
+from .state import elements_from_state
 from .steps import Program
 
 SEVERITIES = ("info", "warning", "error")
@@ -87,6 +89,47 @@ class Checker:
 
     def rows_of(self, step_index: int):
         return [r for r in self.result.rows if r.step == step_index]
+
+    def state_before(self, step_index: int) -> Batch:
+        """The state the plan is in just before a step (the start for the first)."""
+        rows = [r for r in self.result.rows if r.step < step_index]
+        return rows[-1].after if rows else start_batch(self.program)
+
+    def state_after(self, step_index: int) -> Batch:
+        rows = self.rows_of(step_index)
+        return rows[-1].after if rows else self.state_before(step_index)
+
+    def pin_plane(self, goals, given_at: int | tuple[int, ...],
+                  reached_at: int | None = None) -> list:
+        """``goals`` with the plan's own node line added where it was left to chance.
+
+        From an equatorial orbit `inclination to I` alone leaves the node line to the
+        point of the burn: every position is on the equator, so every point is a node,
+        and a rewrite that turns the plane elsewhere reaches another plane.  Where the
+        plane goals are given by inclination without raan and the plan is in an
+        equatorial orbit just before step ``given_at`` (or any of several: the steps a
+        rewrite folds into one), the rewrite is pinned to the plane the plan flew: the
+        raan of the orbit after step ``reached_at`` (default: the last of ``given_at``),
+        to 10 significant digits, goes in beside the inclination.  Otherwise the goals
+        are returned as they are.  A pin never makes a wrong claim: the proof still
+        prices the rewrite and compares its final orbit.
+        """
+        goals = list(goals)
+        kinds = {g.kind for g in goals}
+        if "inclination" not in kinds or "raan" in kinds:
+            return goals
+        mu = self.program.body.gm
+        given = (given_at,) if isinstance(given_at, int) else tuple(given_at)
+        states = [self.state_before(k) for k in given]
+        if not any(bool(elements_from_state(b.r, b.v, mu).equatorial[0]) for b in states):
+            return goals
+        after = self.state_after(max(given) if reached_at is None else reached_at)
+        el = elements_from_state(after.r, after.v, mu)
+        if bool(el.equatorial[0]):
+            return goals  # the equator (or its retrograde twin) has no node line to pin
+        span = next(g for g in goals if g.kind == "inclination").span
+        raan = ast.Quantity(angle_text(float(np.degrees(el.raan[0]))), "deg", span)
+        return goals + [ast.Goal("raan", raan, span)]
 
     # --- rewriting ---------------------------------------------------------------------
 
@@ -181,6 +224,16 @@ def with_where(node, kind: str | None, angle=None):
     if kind is None:
         return replace(node, where=None)
     return replace(node, where=ast.Where(kind, angle, node.span))
+
+
+def angle_text(deg: float) -> str:
+    """An angle in degrees to 10 significant digits, in plain positional notation.
+
+    >>> angle_text(123.456789012345), angle_text(0.0), angle_text(7.0)
+    ('123.456789', '0', '7')
+    """
+    return np.format_float_positional(deg, precision=10, unique=False, fractional=False,
+                                      trim="-")
 
 
 def saving_text(proof: Proof) -> str:

@@ -520,8 +520,49 @@ burn out at periapsis: apoapsis to 1000000 km
 """)
     [f] = findings(far, "beyond-sphere-of-influence")
     assert f.severity == "warning" and f.steps == ("out",)
+    assert "the apoapsis after it" in f.message and "from Earth's centre" not in f.message
     near = far.replace("1000000 km", "800000 km")
     assert findings(near, "beyond-sphere-of-influence") == []
+
+
+ESCAPE = plan("""start orbit periapsis 400 km vinf 3 km/s anomaly 0 deg
+coast drift for 10 d
+burn trim: along 10 m/s
+""")
+
+
+def _two_body_radius(text: str, seconds: float) -> float:
+    """|r| after coasting the plan's start state, by scipy's solve_ivp (DOP853)."""
+    from scipy.integrate import solve_ivp
+
+    program = load_text(text, "escape.aps")
+    y0 = np.concatenate([program.start_r, program.start_v])
+
+    def rhs(_, y):
+        return np.concatenate([y[3:], -MU * y[:3] / np.linalg.norm(y[:3]) ** 3])
+
+    sol = solve_ivp(rhs, (0.0, seconds), y0, method="DOP853", rtol=1e-11, atol=1e-6)
+    return float(np.linalg.norm(sol.y[:3, -1]))
+
+
+def test_an_escape_that_coasts_past_the_sphere_of_influence_is_flagged_where_it_is():
+    # Earth's Laplace sphere of influence is 924 649 km (the catalogue; test_bodies.py
+    # recomputes it).  At 3 km/s hyperbolic excess the craft is far past it after 10 d.
+    found = findings(ESCAPE, "beyond-sphere-of-influence")
+    assert [f.steps for f in found] == [("drift",), ("trim",)]
+    assert all(f.severity == "warning" for f in found)
+    far = _two_body_radius(ESCAPE, 10 * 86400.0)
+    assert far > 924_649
+    for f in found:
+        assert "past the sphere-of-influence radius of 924,649 km" in f.message
+        assert f"{far:,.0f} km from Earth's centre" in f.message
+        assert "apoapsis" not in f.message  # an open orbit: the position is what is out there
+
+
+def test_a_flyby_inside_the_sphere_of_influence_is_not_flagged():
+    flyby = ESCAPE.replace("anomaly 0 deg", "anomaly -60 deg").replace("10 d", "3 h")
+    assert _two_body_radius(flyby, 3 * 3600.0) < 924_649
+    assert findings(flyby, "beyond-sphere-of-influence") == []
 
 
 def test_every_rule_is_documented():

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .. import kepler
 from ..check import Checker, Finding, rule, saving_text, with_goals
 from ..evaluate import start_batch
 from ..reorder import same_orbit
@@ -45,7 +46,8 @@ def merge_burns(c: Checker) -> list[Finding]:
         later = {g.kind for g in nb.goals}
         if later & SHAPE:
             later |= SHAPE  # the second burn's shape goals replace the first's
-        goals = [g for g in na.goals if g.kind not in later] + list(nb.goals)
+        goals = c.pin_plane([g for g in na.goals if g.kind not in later] + list(nb.goals),
+                            (i, i + 1))
         proof = c.prove(c.rewrite({i: [c.unparse(with_goals(na, goals))], i + 1: []}))
         if proof is not None:
             out.append(c.finding(
@@ -77,8 +79,41 @@ def cancelling_burns(c: Checker) -> list[Finding]:
     return out
 
 
-LONG_WARNING = 0.05  # of the orbital period (common practice, no single source)
-LONG_ERROR = 0.20
+LONG_WARNING_DEG = 10.0  # of true anomaly swept (common practice: past 10-20 deg)
+LONG_ERROR_DEG = 60.0  # a fixed-direction burn keeps sin(a/2)/(a/2) ~ 95.5 % there
+
+
+def _swept(r, v, mu: float, dt):
+    """True anomaly (rad) swept in ``dt`` s from (r, v), whole turns included; (arc, ok)."""
+    dtheta, ok = kepler.sweep_for_time(r, v, mu, dt)
+    period = elements_from_state(r, v, mu).period
+    closed = np.isfinite(period)
+    turns = np.where(closed, np.floor(dt / np.where(closed, period, 1.0)), 0.0)
+    return dtheta + turns * 2 * np.pi, ok
+
+
+def burn_arc(r, v_before, v_after, mu: float, burn_time):
+    """Arc of true anomaly (rad) a burn of ``burn_time`` s centred on its impulse point
+    sweeps; returns (arc, ok), ok False where Kepler's equation gives no answer.
+
+    Half the burn before the impulse point, half after: the half before is swept
+    backward from the point (the velocity reversed), the half after forward, each on
+    whichever of the orbits before and after the burn sweeps more in that time.
+
+    >>> mu = 398600.4418; r = np.array([[7000.0, 0.0, 0.0]])
+    >>> v = np.array([[0.0, np.sqrt(mu / 7000.0), 0.0]])
+    >>> period = 2 * np.pi * np.sqrt(7000.0**3 / mu)
+    >>> arc, ok = burn_arc(r, v, v, mu, np.array([period / 8]))
+    >>> round(float(np.degrees(arc[0])), 9), bool(ok[0])
+    (45.0, True)
+    """
+    half = 0.5 * np.asarray(burn_time, dtype=float)
+    sweeps = [_swept(r, sign * vel, mu, half) for sign in (-1.0, 1.0)
+              for vel in (v_before, v_after)]
+    ok = np.logical_and.reduce([s[1] for s in sweeps])
+    back = np.maximum(sweeps[0][0], sweeps[1][0])
+    ahead = np.maximum(sweeps[2][0], sweeps[3][0])
+    return np.where(ok, back + ahead, 0.0), ok
 
 
 @rule("long-burn")
@@ -87,27 +122,35 @@ def long_burn(c: Checker) -> list[Finding]:
 
     apsidal treats every burn as an instant velocity change.  A real burn spreads over
     an arc of the orbit and loses some of its effect (gravity and steering losses), more
-    the longer the arc.  Above 5 % of the orbital period (an arc of about 18 deg) the
-    estimate is optimistic and a finite-burn analysis is needed; above 20 % the number
-    should not be used for sizing (thresholds: common practice, no single source).
+    the longer the arc.  The rule centres the burn time on the impulse point and
+    measures the arc of true anomaly swept in half the burn time before it and half
+    after, each half on whichever of the orbits before and after the burn sweeps more
+    (near periapsis of an eccentric or open orbit a burn of a fraction of a period can
+    sweep a large arc).  Impulsive estimates are fine for burns that sweep a few
+    degrees; above 10 deg of arc the estimate is optimistic and a finite-burn analysis
+    is needed (common practice: the losses grow quickly past 10 to 20 deg).  Above
+    60 deg of arc the number should not be used for sizing: a burn held in one
+    direction over an arc a of a circle keeps only the mean of cos over it,
+    sin(a/2)/(a/2), about 95.5 % of its delta-v at 60 deg (our own estimate), a loss
+    the size of a usual margin.
     """
     out = []
+    mu = c.program.body.gm
     for row in c.result.rows:
-        if row.kind != "burn" or row.burn_time is None:
+        if row.kind != "burn" or row.burn_time is None or row.v_before is None:
             continue
-        before = elements_from_state(row.after.r, row.v_before, c.program.body.gm)
-        after = elements_from_state(row.after.r, row.after.v, c.program.body.gm)
-        periods = [float(p[0]) for p in (before.period, after.period) if np.isfinite(p[0])]
-        if not periods:
+        burn_time = float(row.burn_time[0])
+        if not burn_time > 0:
             continue
-        period = min(periods)
-        share = float(row.burn_time[0]) / period
-        if share < LONG_WARNING:
+        arcs, ok = burn_arc(row.after.r, row.v_before, row.after.v, mu, row.burn_time)
+        arc = float(np.degrees(arcs[0]))
+        if not bool(ok[0]) or arc < LONG_WARNING_DEG:
             continue
-        severity = "error" if share >= LONG_ERROR else "warning"
+        severity = "error" if arc >= LONG_ERROR_DEG else "warning"
         out.append(Finding(
             "long-burn", severity, (row.name,),
-            f"{row.name} lasts {float(row.burn_time[0]):.0f} s, {share * 100:.1f} % of the "
-            f"{period:.0f} s orbit: too long for the impulsive approximation; the delta-v "
-            "is optimistic and needs a finite-burn analysis"))
+            f"{row.name} lasts {burn_time:.0f} s and, centred on its impulse point, sweeps "
+            f"{arc:.1f} deg of true anomaly: too long for the impulsive approximation "
+            f"(above {LONG_WARNING_DEG:g} deg); the delta-v is optimistic and needs a "
+            "finite-burn analysis"))
     return out

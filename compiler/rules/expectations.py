@@ -3,7 +3,9 @@
 from __future__ import annotations
 
 from ..check import Checker, Finding, rule
+from ..evaluate import start_batch
 from ..render import check_text
+from ..state import elements_from_state, norm
 
 
 @rule("expectation-not-met")
@@ -57,26 +59,41 @@ def propellant_exhausted(c: Checker) -> list[Finding]:
                     err.message + (f" ({err.hint})" if err.hint else ""))]
 
 
-
 @rule("beyond-sphere-of-influence")
 def beyond_sphere_of_influence(c: Checker) -> list[Finding]:
-    """An orbit of the plan reaches beyond the body's sphere of influence.
+    """A state of the plan lies beyond the body's sphere of influence.
 
     apsidal prices every step with the central body alone.  Past the sphere of influence
     (Laplace's radius, from the catalogue or the body's `soi`) another body — the Sun, or
     the planet a moon circles — pulls harder than the central one, and the orbit is no
     longer the conic the numbers assume: the estimate there is not to be used for sizing.
+    A step is flagged where the craft is past that radius (at its start or its end: an
+    escape that coasts out, a burn flown out there), and where it leaves a bound orbit
+    whose apoapsis passes it.
     """
     body = c.program.body
     if body.soi is None:
         return []
+    soi, mu = body.soi, body.gm
     out = []
-    for s in c.report["steps"]:
-        ap = s["orbit_after"]["apoapsis_alt_km"]
-        if ap is not None and ap + body.radius > body.soi:
+    before = start_batch(c.program).r
+    for row in c.result.rows:
+        far = float(max(norm(before)[0], norm(row.after.r)[0]))
+        before = row.after.r
+        el = elements_from_state(row.after.r, row.after.v, mu)
+        apoapsis = float(el.apoapsis[0]) if bool(el.closed[0]) else None
+        parts = []
+        if far > soi:
+            parts.append(f"the craft is {far:,.0f} km from {body.name}'s centre, "
+                         f"{far - soi:,.0f} km past the sphere-of-influence radius of "
+                         f"{soi:,.0f} km")
+        if apoapsis is not None and apoapsis > soi:
+            parts.append(f"the apoapsis after it ({apoapsis - body.radius:,.0f} km altitude, "
+                         f"radius {apoapsis:,.0f} km) passes the sphere-of-influence radius "
+                         f"of {soi:,.0f} km")
+        if parts:
             out.append(Finding(
-                "beyond-sphere-of-influence", "warning", (s["name"],),
-                f"after {s['name']} the apoapsis ({ap:,.0f} km altitude) lies beyond "
-                f"{body.name}'s sphere of influence ({body.soi - body.radius:,.0f} km "
-                "altitude): the two-body approximation does not hold out there"))
+                "beyond-sphere-of-influence", "warning", (row.name,),
+                f"{row.kind} {row.name}: " + "; ".join(parts)
+                + ": the two-body approximation does not hold out there"))
     return out

@@ -4,8 +4,35 @@ from __future__ import annotations
 
 import math
 
-from ..check import Checker, Finding, rule, saving_text
+from apsidal.lang.errors import PlanError
+
+from ..check import Checker, Finding, rule, saving_text, with_goals
+from ..evaluate import run
+from ..load import load_text
 from ..reorder import BEAM, blocks, search_block
+from ..steps import Burn, Transfer
+
+
+def _pinned(c: Checker, block: list[int]) -> Checker:
+    """The plan with the block's plane changes from an equatorial orbit pinned to the
+    plane they fly (``Checker.pin_plane``), so that an order turning the plane at
+    another point of the equator is held to the same plane; ``c`` itself if none is.
+    """
+    edits = {}
+    for i in block:
+        step, node = c.program.steps[i], c.statements[i]
+        if isinstance(step, (Burn, Transfer)) and step.changes_plane:
+            goals = c.pin_plane(node.goals, i)
+            if len(goals) != len(node.goals):
+                edits[i] = [c.unparse(with_goals(node, goals))]
+    if not edits:
+        return c
+    try:
+        program = load_text(c.rewrite(edits), c.program.source.path)
+    except PlanError:
+        return c
+    result = run(program)
+    return Checker(program, result) if result.ok else c
 
 
 @rule("cheaper-order")
@@ -22,10 +49,11 @@ def cheaper_order(c: Checker) -> list[Finding]:
     """
     out = []
     for block in blocks(c.program):
-        res = search_block(c.program, block)
+        pinned = _pinned(c, block)
+        res = search_block(pinned.program, block)
         if res is None or res.best.order == tuple(block):
             continue
-        proof = c.prove(c.reorder(block, res.best.order))
+        proof = c.prove(pinned.reorder(block, res.best.order))
         if proof is None:
             continue
         names = [c.program.steps[i].name for i in block]

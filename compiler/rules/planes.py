@@ -46,7 +46,7 @@ def plane_change_at_speed(c: Checker) -> list[Finding]:
     for i, node in _plane_burns(c):
         block = _block_of(c, i)
         name = c.program.steps[i].name
-        plane = [g for g in node.goals if g.kind in PLANE_GOALS]
+        plane = c.pin_plane([g for g in node.goals if g.kind in PLANE_GOALS], i)
         rest = [g for g in node.goals if g.kind not in PLANE_GOALS]
         remaining = [c.unparse(with_goals(node, rest))] if rest else []
         candidates = []  # (text, name of the burn that carries the plane change)
@@ -100,7 +100,8 @@ def costlier_node(c: Checker) -> list[Finding]:
         if not isinstance(step, (Burn, Transfer)) or step.place.kind not in other:
             continue
         node = c.statements[i]
-        text = c.rewrite({i: [c.unparse(with_where(node, other[step.place.kind]))]})
+        moved = with_where(with_goals(node, c.pin_plane(node.goals, i)), other[step.place.kind])
+        text = c.rewrite({i: [c.unparse(moved)]})
         proof = c.prove(text)
         if proof is None:
             continue
@@ -135,7 +136,7 @@ def shared_plane_change(c: Checker) -> list[Finding]:
                 continue
             tnode, pnode = c.statements[i], c.statements[j]
             goals = [g for g in tnode.goals if g.kind not in PLANE_GOALS]
-            goals += [g for g in pnode.goals if g.kind in PLANE_GOALS]
+            goals += c.pin_plane([g for g in pnode.goals if g.kind in PLANE_GOALS], (i, j))
             texts = []
             for where in ((tnode.where.kind if tnode.where else None),
                           (pnode.where.kind if pnode.where else None), "node"):
@@ -169,7 +170,8 @@ def _burn_pairs(c: Checker) -> list[Finding]:
         if b.place.kind != far or not closes or not (a.changes_plane or b.changes_plane):
             continue
         na, nb = c.statements[i], c.statements[i + 1]
-        plane = [g for g in list(na.goals) + list(nb.goals) if g.kind in PLANE_GOALS]
+        plane = c.pin_plane([g for g in list(na.goals) + list(nb.goals)
+                             if g.kind in PLANE_GOALS], (i, i + 1))
         shape_goal = next(g for g in na.goals if g.kind == far)
         circ = ast.Goal("circular", shape_goal.value, shape_goal.span)
         transfer = ast.Transfer(na.name, na.where, (circ, *plane), None, na.options, na.span)

@@ -9,7 +9,7 @@ import numpy as np
 from apsidal.lang import syntax as ast
 from apsidal.lang.errors import Span
 
-from ..check import Checker, Finding, Proof, rule, saving_text
+from ..check import Checker, Finding, Proof, rule, saving_text, with_goals
 from ..steps import Burn, Transfer
 
 GRID = 10  # apoapsis candidates tried across the allowed range, before refining
@@ -92,7 +92,7 @@ def bi_elliptic_cheaper(c: Checker) -> list[Finding]:
     for i, step in enumerate(c.program.steps):
         if not (isinstance(step, Transfer) and step.form == "hohmann"):
             continue
-        node = c.statements[i]
+        node = with_goals(c.statements[i], c.pin_plane(c.statements[i].goals, i))
         low = 1.05 * step.radius
         proof = best_apoapsis(
             c, lambda alt, i=i, node=node: c.rewrite({i: [c.unparse(_with_via(node, alt))]}),
@@ -121,7 +121,8 @@ def hohmann_cheaper(c: Checker) -> list[Finding]:
         if not (isinstance(step, Transfer) and step.form == "bielliptic"):
             continue
         node = c.statements[i]
-        proof = c.prove(c.rewrite({i: [c.unparse(replace(node, via=None))]}))
+        hohmann = replace(node, via=None, goals=tuple(c.pin_plane(node.goals, i)))
+        proof = c.prove(c.rewrite({i: [c.unparse(hohmann)]}))
         if proof is not None:
             out.append(c.finding(
                 "hohmann-cheaper", "warning", (step.name,),
@@ -154,7 +155,8 @@ def three_burn_plane_change(c: Checker) -> list[Finding]:
         node = c.statements[i]
         row = c.rows_of(i)[0]
         r = float(np.linalg.norm(row.after.r[0]))
-        plane = tuple(g for g in node.goals if g.kind in ("inclination", "raan"))
+        plane = tuple(c.pin_plane([g for g in node.goals if g.kind in ("inclination", "raan")],
+                                  i))
 
         def build(alt, i=i, node=node, plane=plane):
             t = ast.Transfer(node.name, node.where, plane, _distance(alt, node.span),
