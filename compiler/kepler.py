@@ -167,7 +167,11 @@ def _solve_chi(r0, sigma0, alpha, target, hi):
 
 
 def propagate(r: np.ndarray, v: np.ndarray, mu: float, dt: np.ndarray):
-    """State after coasting ``dt`` seconds (>= 0); returns (r1, v1, ok)."""
+    """State after coasting ``dt`` seconds; returns (r1, v1, ok).
+
+    ``dt`` < 0 is refused (ok False) on an open orbit; on a closed one it is taken
+    modulo the period, as a coast forward.
+    """
     r0, sigma0, alpha, _, p, sqmu = _elements(r, v, mu)
     dt = np.asarray(dt, dtype=float) * np.ones_like(r0)
     period = _period(alpha, sqmu)
@@ -194,6 +198,7 @@ def propagate(r: np.ndarray, v: np.ndarray, mu: float, dt: np.ndarray):
         gdot = 1.0 - u2 / radius
         v1 = fdot[..., None] * r + gdot[..., None] * v
     ok &= finite & (radius > 0) & np.isfinite(r1).all(-1) & np.isfinite(v1).all(-1)
+    ok &= closed | (dt >= 0)  # back in time only where whole periods make it forward
     return np.where(ok[..., None], r1, r), np.where(ok[..., None], v1, v), ok
 
 

@@ -140,6 +140,20 @@ def test_propagate_takes_a_batch_of_every_conic_at_once():
         assert np.array_equal(one_r[0], r1[i]) and np.array_equal(one_v[0], v1[i])
 
 
+def test_propagate_back_in_time_only_round_a_closed_orbit():
+    # a closed orbit repeats: -600 s is one period less 600 s; an open one is refused,
+    # with the state kept and no NaN
+    r, v = conic_state(0.3, 40.0)
+    back, vb, ok = kepler.propagate(r[None], v[None], MU, np.array([-600.0]))
+    rn, vn, _ = fly(r, v, period(0.3) - 600.0)
+    assert ok[0]
+    assert_close(back[0], vb[0], rn, vn, "600 s back")
+    for e in (1.0 + 1e-9, 3.0):
+        r, v = conic_state(e, 40.0)
+        r1, v1, ok = kepler.propagate(r[None], v[None], MU, np.array([-600.0]))
+        assert not ok[0] and np.array_equal(r1[0], r) and np.array_equal(v1[0], v)
+
+
 # --- kepler.time_of_flight and kepler.place: a coast to a place ------------------------
 
 
