@@ -102,7 +102,7 @@ def _universal(chi: np.ndarray, alpha: np.ndarray):
 
 
 def _elements(r: np.ndarray, v: np.ndarray, mu: float):
-    """The quantities both directions need: |r0|, sigma0, alpha, h, p, e and sqrt(mu)."""
+    """What both directions need: |r0|, sigma0, alpha, |h|, p and sqrt(mu)."""
     r0 = norm(r)
     sqmu = np.sqrt(mu)
     sigma0 = dot(r, v) / sqmu
@@ -156,8 +156,8 @@ def _solve_chi(r0, sigma0, alpha, target, hi):
             # the steps converge at least quadratically: after one of 1e-13 chi, chi is exact
             tol = 1e-13 * np.maximum(np.abs(new), chi)
             settled = (np.abs(new - chi) <= tol) | (miss == 0) | (hi - lo <= tol)
-            newton = (new >= lo) & (new <= hi) & (np.abs(new - chi) <= 0.5 * np.abs(step_before))
-            new = np.where(newton | settled, new, 0.5 * (lo + hi))
+            accept = (new >= lo) & (new <= hi) & (np.abs(new - chi) <= 0.5 * np.abs(step_before))
+            new = np.where(accept | settled, new, 0.5 * (lo + hi))
             step_before, step = step, new - chi
             chi = np.where(done, chi, new)
             done |= settled
