@@ -29,6 +29,21 @@ def finite(x, digits: int | None = None):
     return round(x, digits) if digits is not None else x
 
 
+def degrees_wrapped(x, digits: int = 9):
+    """An angle (rad) in degrees for output, in [0, 360), wrapped after rounding.
+
+    Rounding 359.9999999997 to nine places gives 360.0, which is the angle 0:
+
+    >>> degrees_wrapped(np.radians(360.0 - 3e-10)), degrees_wrapped(np.radians(-2e-12))
+    (0.0, 0.0)
+    """
+    d = finite(np.degrees(x), digits)
+    if d is None:
+        return None
+    d %= 360.0
+    return 0.0 if d >= 360.0 else d + 0.0
+
+
 def orbit_dict(r, v, mu: float, radius: float) -> dict:
     el = elements_from_state(r, v, mu)
     deg = np.degrees
@@ -38,9 +53,9 @@ def orbit_dict(r, v, mu: float, radius: float) -> dict:
         "sma_km": finite(el.sma[0], 6),
         "ecc": finite(el.ecc[0], 12),
         "inclination_deg": finite(deg(el.inclination[0]), 9),
-        "raan_deg": finite(deg(el.raan[0]), 9),
-        "argp_deg": finite(deg(el.argp[0]), 9),
-        "anomaly_deg": finite(deg(el.anomaly[0]), 9),
+        "raan_deg": degrees_wrapped(el.raan[0]),
+        "argp_deg": degrees_wrapped(el.argp[0]),
+        "anomaly_deg": degrees_wrapped(el.anomaly[0]),
         "period_s": finite(el.period[0], 6),
     }
 
@@ -83,7 +98,9 @@ def check_value(kind: str, x: float, radius: float) -> float | None:
     """A check's number in its display unit (altitudes above the equatorial radius)."""
     if kind in ("periapsis", "apoapsis", "circular"):
         return finite(x - radius, 6)
-    if kind in ("inclination", "raan", "argp"):
+    if kind in ("raan", "argp"):
+        return degrees_wrapped(x)
+    if kind == "inclination":
         return finite(np.degrees(x), 9)
     return finite(x, 9)
 

@@ -33,6 +33,21 @@ def _num(x, fmt: str) -> str:
     return "-" if x is None else format(x, fmt)
 
 
+WRAPPED_ANGLES = {"raan", "argp", "anomaly"}  # reported in [0, 360) deg
+
+
+def angle_text(deg: float | None, fmt: str) -> str:
+    """An angle in [0, 360) deg as text, wrapped after rounding so 359.99996 is not 360.0.
+
+    >>> angle_text(359.99996, ".1f"), angle_text(359.9999999, ".6g"), angle_text(12.25, ".1f")
+    ('0.0', '0', '12.2')
+    """
+    if deg is None:
+        return "-"
+    text = format(deg % 360.0, fmt)
+    return format(0.0, fmt) if float(text) >= 360.0 or float(text) == 0.0 else text
+
+
 def orbit_text(o: dict) -> str:
     ap = "open" if o["apoapsis_alt_km"] is None else _num(o["apoapsis_alt_km"], ",.1f")
     return (f"{_num(o['periapsis_alt_km'], ',.1f')} x {ap} km, "
@@ -46,16 +61,18 @@ def _where(step: dict) -> str:
 def check_text(c: dict) -> str:
     """One expectation check as a reader says it: `apoapsis 1200 km within 1 km: actual ...`."""
     unit = f" {c['unit']}" if c["unit"] else ""
+    num = ((lambda x: angle_text(x, ".6g")) if c["kind"] in WRAPPED_ANGLES
+           else (lambda x: f"{x:.6g}"))
     if c["comparator"] == "within":
-        cond = f"{c['expected']:.6g}{unit} within {c['tolerance']:.6g}{unit}"
+        cond = f"{num(c['expected'])}{unit} within {c['tolerance']:.6g}{unit}"
     else:
-        cond = f"{c['comparator']} {c['expected']:.6g}{unit}"
+        cond = f"{c['comparator']} {num(c['expected'])}{unit}"
     if c.get("reason"):
         return f"{c['kind']} {cond}: {c['reason']}"
     if c["kind"] == "circular":
         return (f"{c['kind']} {cond}: actual {c['actual_periapsis']:.6g} x "
                 f"{c['actual_apoapsis']:.6g}{unit}")
-    return f"{c['kind']} {cond}: actual {c['actual']:.6g}{unit}"
+    return f"{c['kind']} {cond}: actual {num(c['actual'])}{unit}"
 
 
 def table(report: dict, console: Console) -> None:

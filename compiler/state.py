@@ -9,7 +9,7 @@ z along the spin axis.  Elements are derived from it, robustly:
   angles measured from the x axis, so a circular equatorial orbit's anomaly is its true
   longitude;
 * every in-plane angle is measured in the direction of motion, so retrograde orbits need
-  no special case;
+  no special case, and every angle but the inclination (in [0, pi]) is in [0, 2 pi);
 * hyperbolic orbits have a negative sma and an infinite apoapsis and period.
 
 >>> import numpy as np
@@ -47,10 +47,21 @@ def unit(a: np.ndarray) -> np.ndarray:
     return a / np.where(n > 0, n, 1.0)[..., None]
 
 
+def wrap_angle(a: np.ndarray) -> np.ndarray:
+    """An angle brought into [0, 2 pi).
+
+    ``np.mod`` alone rounds a tiny negative angle up to 2 pi itself:
+
+    >>> float(np.mod(-1e-17, TWO_PI)) == TWO_PI, float(wrap_angle(-1e-17))
+    (True, 0.0)
+    """
+    ang = np.mod(a, TWO_PI)
+    return np.where(ang >= TWO_PI, 0.0, ang) + 0.0  # + 0.0: no negative zero either
+
+
 def signed_angle(a: np.ndarray, b: np.ndarray, axis: np.ndarray) -> np.ndarray:
     """Angle from ``a`` to ``b`` about ``axis`` (right hand), in [0, 2 pi)."""
-    ang = np.mod(np.arctan2(dot(axis, np.cross(a, b)), dot(a, b)), TWO_PI)
-    return np.where(ang >= TWO_PI, 0.0, ang)  # a tiny negative angle rounds to 2 pi
+    return wrap_angle(np.arctan2(dot(axis, np.cross(a, b)), dot(a, b)))
 
 
 @dataclass(frozen=True)
@@ -119,7 +130,7 @@ def elements_from_state(r: np.ndarray, v: np.ndarray, mu: float) -> Elements:
     with np.errstate(divide="ignore", invalid="ignore"):
         sma = np.where(np.abs(energy) > 0, -mu / (2.0 * energy), np.inf)
     inc = np.arctan2(np.hypot(f.h[..., 0], f.h[..., 1]), f.h[..., 2])  # well-conditioned at 0
-    raan = np.mod(np.arctan2(f.node[..., 1], f.node[..., 0]), TWO_PI)
+    raan = wrap_angle(np.arctan2(f.node[..., 1], f.node[..., 0]))
     argp = signed_angle(f.node, f.periapsis, f.h)
     anomaly = signed_angle(f.periapsis, r, f.h)
     periapsis = p / (1.0 + ecc)
@@ -153,7 +164,7 @@ def state_from_elements(
     sma, ecc, inclination, raan, argp, anomaly = np.broadcast_arrays(
         *(np.atleast_1d(np.asarray(x, dtype=float)) for x in
           (sma, ecc, inclination, raan, argp, anomaly)))
-    p = sma * (1.0 - ecc**2)
+    p = sma * (1.0 - ecc) * (1.0 + ecc)  # not 1 - e^2: that loses digits near e = 1
     h = np.sqrt(mu * p)
     node = np.stack([np.cos(raan), np.sin(raan), np.zeros_like(raan)], axis=-1)
     normal = plane_normal(inclination, raan)
