@@ -527,7 +527,7 @@ def _three_burn_plane_change(step: Transfer, index, batch: Batch, ctx: Context, 
     el = elements_from_state(r0, v0, ctx.mu)
     circular = el.ecc < CIRCULAR_ECC
     keep_pe = np.where(circular, norm(r0), el.periapsis)
-    keep_ap = np.where(circular, norm(r0), el.apoapsis)
+    keep_ap = np.where(circular | ~el.closed, norm(r0), el.apoapsis)  # open: refused below
     eng, margin, span = step.engine, step.margin, step.span
     raise_ = Burn(f"{step.name}/1", step.place, apoapsis=step.via, apsis_here=True,
                   engine=eng, margin=margin, span=span)
