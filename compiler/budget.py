@@ -61,7 +61,7 @@ def orbit_dict(r, v, mu: float, radius: float) -> dict:
 
 
 def _step_dict(i: int, row: Row, mu: float, radius: float) -> dict:
-    burn = row.kind == "burn"
+    burn = row.kind in ("burn", "allow")  # an allowance is priced like a burn
     ms = lambda x: finite(x[0] * 1000.0, 6) if x is not None else 0.0
     vec = row.dv_vec[0] * 1000.0 if burn else np.zeros(3)
     out = {
@@ -81,6 +81,7 @@ def _step_dict(i: int, row: Row, mu: float, radius: float) -> dict:
         "orbit_after": orbit_dict(row.after.r, row.after.v, mu, radius),
     }
     if burn:
+        out["covered"] = bool(row.covered[0])
         out["engine"] = row.engine.name
         out["margin_pct"] = finite(row.margin * 100.0, 9)
         out["coast_before_s"] = finite(row.coast_time[0], 6)
@@ -127,28 +128,65 @@ def _check_dict(c, radius: float) -> dict:
     return out
 
 
+def allowance_summary(program) -> dict | None:
+    """Deterministic lines add, statistical (3-sigma) lines combine by root-sum-square
+    (common practice in delta-v budgets); the total is what the chain prices."""
+    lines = [s for s in program.steps if getattr(s, "kind", "") == "allow"]
+    if not lines:
+        return None
+    det = sum(s.dv for s in lines if not s.statistical)
+    stat = [s.dv for s in lines if s.statistical]
+    rss = math.sqrt(sum(x * x for x in stat))
+    return {"deterministic_m_s": finite(det * 1000.0, 6),
+            "statistical_rss_m_s": finite(rss * 1000.0, 6),
+            "statistical_sum_m_s": finite(sum(stat) * 1000.0, 6),
+            "total_m_s": finite((det + rss) * 1000.0, 6)}
+
+
 def budget(result: Result) -> dict:
     """The whole report of one priced plan, as the JSON contract lays it out."""
+    from .size import size
+
     p = result.program
     mu, radius = p.body.gm, p.body.radius
     steps = [_step_dict(i + 1, row, mu, radius) for i, row in enumerate(result.rows)]
     final = result.final
     ve = p.craft.default_engine.exhaust_speed
+    craft = p.craft
     mass, left = float(final.mass[0]), float(final.propellant[0])
-    capacity = ve * math.log(mass / (mass - left)) if mass > left else 0.0
-    used = p.craft.propellant - left
+    # capacity from the usable propellant left (none when the load ran out)
+    capacity = ve * math.log(mass / (mass - left)) if mass > left > 0 else 0.0
+    used = craft.usable - left
+    short = result.first_uncovered
+    sizing = size(result) if result.ok else None
+    needed = sizing.load if sizing is not None else None
+    # 10 um/s of slack: the sized load as printed (to the microgram) still fits
+    reserve_ok = bool(short is None and capacity >= p.reserve - 1e-8)
+    feasible = bool(result.ok and reserve_ok)
     totals = {
         "dv_m_s": finite(final.dv[0] * 1000.0, 6),
         "dv_with_margin_m_s": finite(final.dv_margin[0] * 1000.0, 6),
         "propellant_kg": finite(used, 6),
         "final_mass_kg": finite(mass, 6),
-        "propellant_left_kg": finite(left, 6),
+        "propellant_left_kg": finite(max(left, 0.0), 6),
         "dv_capacity_left_m_s": finite(capacity * 1000.0, 6),
         "elapsed_s": finite(final.t[0], 6),
         "reserve_m_s": finite(p.reserve * 1000.0, 6),
-        "reserve_met": bool(capacity >= p.reserve - 1e-12),
-        "expectations_met": all(c["passed"] for s in steps for c in s.get("checks", [])),
+        "reserve_met": reserve_ok and feasible,
+        "expectations_met": feasible and all(c["passed"] for s in steps
+                                             for c in s.get("checks", [])),
+        "load_kg": finite(craft.propellant, 6),
+        "residual_kg": finite(craft.residual, 6),
+        "usable_kg": finite(craft.usable, 6),
+        "propellant_needed_kg": finite(needed, 6) if needed is not None else None,
+        "shortfall_kg": (0.0 if feasible else finite(max(needed - craft.propellant, 0.0), 6))
+        if needed is not None else None,
+        "first_uncovered_step": short.name if short is not None else None,
+        "dry_max_kg": finite(sizing.dry_max, 6) if sizing and sizing.dry_max else None,
     }
+    allow = allowance_summary(p)
+    if allow is not None:
+        totals["allowances"] = allow
     out = {
         "plan": p.title,
         "source": p.source.path,
@@ -157,6 +195,7 @@ def budget(result: Result) -> dict:
                   "propellant_kg": p.craft.propellant,
                   "default_engine": p.craft.default_engine.name},
         "margin_pct": finite(p.margin * 100.0, 9),
+        "feasible": feasible,
         "steps": steps,
         "totals": totals,
         "findings": [],

@@ -208,6 +208,8 @@ class Checker:
                 notes: Iterable[str] = ()) -> Finding:
         if proof is None:
             return Finding(rule, severity, tuple(steps), message, notes=tuple(notes))
+        if not self.report["feasible"] and budget(proof.result)["feasible"]:
+            notes = (*notes, "with this rewrite the plan fits its load")
         diff = "".join(difflib.unified_diff(
             self.text.splitlines(keepends=True), proof.text.splitlines(keepends=True),
             fromfile=self.program.source.path, tofile=self.program.source.path + " (rewritten)",
@@ -259,7 +261,11 @@ def check_program(program: Program, rules: Iterable[Rule] | None = None,
     checker = Checker(program, result)
     out: list[Finding] = []
     seen: set[str] = set()
-    for rule in (RULES if rules is None else rules):
+    chosen = list(RULES if rules is None else rules)
+    from .rules.expectations import propellant_exhausted
+    if propellant_exhausted not in chosen:  # a plan that does not fit is never clean
+        chosen.insert(0, propellant_exhausted)
+    for rule in chosen:
         if not result.ok and getattr(rule, "needs_flyable", True):
             continue
         for f in rule(checker):

@@ -13,10 +13,11 @@ import sys
 
 from apsidal.lang.errors import PlanError
 
-from . import bodies, check_cli, render, review_cli
+from . import bodies, check_cli, render, review_cli, size_cli
 from .budget import budget
 from .cliutil import (
     EXIT_BAD_INPUT,
+    EXIT_FINDINGS,
     EXIT_INTERNAL,
     EXIT_OK,
     Parser,
@@ -36,6 +37,12 @@ def cmd_run(args) -> int:
     if result.error is not None:
         print(result.error.render(), file=sys.stderr)
         return EXIT_BAD_INPUT
+    if not report["feasible"]:  # a budget result, not bad input: the full report, exit 1
+        tot = report["totals"]
+        print(f"apsidal: the plan does not fit its load: it needs "
+              f"{tot['propellant_needed_kg']:,.3f} kg and carries {tot['load_kg']:,.3f} kg "
+              f"(add {tot['shortfall_kg']:,.3f} kg)", file=sys.stderr)
+        return EXIT_FINDINGS
     return EXIT_OK
 
 
@@ -93,6 +100,7 @@ def build_parser() -> Parser:
     bod.set_defaults(func=cmd_bodies)
     check_cli.register(sub)
     review_cli.register(sub)
+    size_cli.register(sub)
     return p
 
 

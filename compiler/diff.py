@@ -123,6 +123,11 @@ def _checks(step: dict) -> list[tuple]:
 def _sub(a, b):
     if isinstance(a, bool) or isinstance(b, bool):
         return None if a == b else a
+    if isinstance(a, dict) or isinstance(b, dict):  # a group of totals (allowances)
+        a, b = a or {}, b or {}
+        return {k: _sub(a.get(k, 0.0), b.get(k, 0.0)) for k in a.keys() | b.keys()}
+    if isinstance(a, str) or isinstance(b, str):  # a name: the new one if it changed
+        return None if a == b else a
     if a is None or b is None:
         return None
     return round(a - b, 6)
@@ -299,7 +304,8 @@ def diff_reports(old: dict, new: dict, old_info: dict[str, StepInfo] | None = No
         steps.append(_entry(status, o, s, m.how[i]))
     removed_before(len(m.old))
     out = {"old": old["totals"], "new": new["totals"],
-           "change": totals_change(old["totals"], new["totals"]), "steps": steps}
+           "change": totals_change(old["totals"], new["totals"]), "steps": steps,
+           "feasible": {"old": old.get("feasible", True), "new": new.get("feasible", True)}}
     if findings or (findings is None and (old.get("findings") or new.get("findings"))):
         out["findings"] = findings_change(old.get("findings", []), new.get("findings", []))
     return out

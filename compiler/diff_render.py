@@ -21,6 +21,10 @@ TOTALS = (
     ("propellant_left_kg", "propellant left", "kg", 2),
     ("dv_capacity_left_m_s", "delta-v capacity left", "m/s", 1),
     ("elapsed_s", "elapsed", "s", 1),
+    ("reserve_m_s", "reserve", "m/s", 1),
+    ("residual_kg", "residual (unusable)", "kg", 2),
+    ("propellant_needed_kg", "propellant needed", "kg", 2),
+    ("shortfall_kg", "shortfall", "kg", 2),
 )
 STATUS_STYLE = {"added": "green", "removed": "red", "changed": "yellow", "moved": "cyan",
                 "same": "dim"}
@@ -58,9 +62,25 @@ def headline(diff: dict) -> str:
     propellant``."""
     ch = diff["change"]
     dv, kg = ch.get("dv_with_margin_m_s"), ch.get("propellant_kg")
+    fit = fit_change(diff)
     if signed(dv, 1) == "0" and signed(kg, 2) == "0":
-        return "no change to delta-v or propellant"
-    return f"{signed(dv, 1)} m/s delta-v with margin, {signed(kg, 2)} kg propellant"
+        return fit + "no change to delta-v or propellant"
+    return fit + f"{signed(dv, 1)} m/s delta-v with margin, {signed(kg, 2)} kg propellant"
+
+
+def fit_change(diff: dict) -> str:
+    """What the revision did to whether the plan fits its load ("" when it still fits)."""
+    was = diff.get("feasible", {}).get("old", True)
+    now = diff.get("feasible", {}).get("new", True)
+    short = diff["new"].get("shortfall_kg") or 0.0
+    if was and not now:
+        return f"no longer fits: needs {short:,.2f} kg more; "
+    if not was and now:
+        return "now fits its load; "
+    if not was and not now:
+        before = diff["old"].get("shortfall_kg") or 0.0
+        return f"still does not fit (short {short:,.2f} kg, was {before:,.2f} kg); "
+    return ""
 
 
 def _step_label(entry: dict) -> str:
@@ -197,4 +217,7 @@ def budget_text(report: dict) -> str:
         lines.append(f"# total {label}: {shown}")
     if "error" in report:
         lines.append(f"# the plan cannot be flown: {report['error']['message']}")
+    elif not report.get("feasible", True):
+        tot = report["totals"]
+        lines.append(f"# the plan does not fit its load: short {tot['shortfall_kg']:.2f} kg")
     return "\n".join(lines) + "\n"

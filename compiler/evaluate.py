@@ -37,7 +37,18 @@ from .state import (
     signed_angle,
     unit,
 )
-from .steps import Burn, Coast, Drop, EngineSpec, Expect, Place, Program, Step, Transfer
+from .steps import (
+    Allow,
+    Burn,
+    Coast,
+    Drop,
+    EngineSpec,
+    Expect,
+    Place,
+    Program,
+    Step,
+    Transfer,
+)
 
 HERE_TOL = 1e-9  # rad: a place this close ahead is "here"
 
@@ -78,7 +89,7 @@ def start_batch(program: Program, size: int = 1) -> Batch:
         r=np.tile(program.start_r, (size, 1)),
         v=np.tile(program.start_v, (size, 1)),
         mass=ones * (craft.dry + craft.propellant),
-        propellant=ones * craft.propellant,
+        propellant=ones * craft.usable,  # the residual rides along as mass
         t=np.zeros(size),
         dv=np.zeros(size),
         dv_margin=np.zeros(size),
@@ -126,6 +137,7 @@ class Row:
     margin: float = 0.0
     checks: list[CheckResult] = field(default_factory=list)
     v_before: np.ndarray | None = None  # (B, 3) velocity just before a burn
+    covered: np.ndarray | None = None  # (B,) the load still covers this burn
 
 
 @dataclass(frozen=True)
@@ -134,11 +146,12 @@ class Context:
     radius: float  # body equatorial radius, km
     default_engine: EngineSpec
     margin: float
+    statistical_scale: float = 1.0  # see Program.statistical_scale
 
 
 def context_for(program: Program) -> Context:
     return Context(program.body.gm, program.body.radius, program.craft.default_engine,
-                   program.margin)
+                   program.margin, program.statistical_scale)
 
 
 # --- getting somewhere -------------------------------------------------------------
@@ -304,20 +317,8 @@ def _price(batch: Batch, out: BurnOutcome, engine: EngineSpec, margin: float, ct
                     dot(dv_inertial, radial)], axis=-1)
     dv = norm(dv_inertial)
     dvm = dv * (1.0 + margin)
-    ve = engine.exhaust_speed
-    need = batch.mass * -np.expm1(-dvm / ve)
-    left = batch.propellant
-    short = need > left * (1 + 1e-12) + 1e-12
-    capacity = ve * np.log(batch.mass / np.maximum(batch.mass - left, 1e-300))
-    fails.add(short, lambda i: (
-        (f"{name}: propellant exhausted: the burn needs {need[i]:.3f} kg "
-        f"({dvm[i] * 1000:.3f} m/s with margin) but {left[i]:.3f} kg remain, "
-        f"a shortfall of {need[i] - left[i]:.3f} kg"),
-        (f"{left[i]:.3f} kg give at most {capacity[i] * 1000:.3f} m/s with engine "
-        f"`{engine.name}`; add propellant, lower the margin or drop mass earlier")),
-        code="propellant")
-    used = np.minimum(need, left)
-    burn_time = used * ve * 1000.0 / engine.thrust
+    need, covered, burn_time = _propellant(batch, dvm, engine)
+    used = need
     mass = batch.mass - used
     ok = fails.ok
     _check_surface(out.r, out.v_after, ctx, fails, name)
@@ -325,13 +326,29 @@ def _price(batch: Batch, out: BurnOutcome, engine: EngineSpec, margin: float, ct
         r=out.r,
         v=np.where(ok[:, None], out.v_after, out.v_before),
         mass=mass,
-        propellant=left - used,
+        propellant=batch.propellant - used,
         t=batch.t + out.coast,
         dv=batch.dv + dv,
         dv_margin=batch.dv_margin + dvm,
         expect_ok=batch.expect_ok,
     )
-    return new, vec, dv, dvm, used, burn_time
+    return new, vec, dv, dvm, used, burn_time, covered
+
+
+def _propellant(batch: Batch, dvm, engine: EngineSpec):
+    """Propellant for a delta-v (with margin) by the rocket equation, whether the load
+    covers it, and the burn time.
+
+    The load never stops the chain: in the impulsive model the geometry, and so every
+    delta-v, does not depend on the mass.  Past the point where the usable load runs out
+    the propellant left goes negative (the deficit at that load) and the burns are marked
+    not covered; the exact load that flies the plan comes from the backward pass of
+    ``size``.
+    """
+    ve = engine.exhaust_speed
+    need = batch.mass * -np.expm1(-dvm / ve)
+    covered = batch.propellant - need >= -1e-9 * np.maximum(need, 1.0)
+    return need, covered, need * ve * 1000.0 / engine.thrust
 
 
 def _check_surface(r, v, ctx: Context, fails: Failures, name: str):
@@ -359,10 +376,11 @@ def _burn_rows(step: Burn, index: int, name: str, batch: Batch, ctx: Context, fa
         out = burn_outcome(step, batch.r, batch.v, ctx, normal)
     fails.merge(~out.fails.ok, out.fails)
     margin = step.margin
-    new, vec, dv, dvm, prop, burn_time = _price(batch, out, _engine(step, ctx), margin, ctx,
-                                                fails, name)
+    new, vec, dv, dvm, prop, burn_time, covered = _price(batch, out, _engine(step, ctx), margin,
+                                                         ctx, fails, name)
     row = Row(index, name, "burn", out.at or step.place.label(), new, vec, dv, dvm, prop, burn_time,
-              out.coast, out.coast, _engine(step, ctx), margin, v_before=out.v_before)
+              out.coast, out.coast, _engine(step, ctx), margin, v_before=out.v_before,
+              covered=covered)
     return new, row
 
 
@@ -430,7 +448,8 @@ def _merge_rows(a: Row, b: Row, take_a: np.ndarray) -> Row:
     return Row(a.step, a.name, a.kind, at, a.after.where(take_a, b.after),
                *(pick(getattr(a, f), getattr(b, f)) for f in
                  ("dv_vec", "dv", "dv_margin", "propellant", "burn_time", "coast_time",
-                  "duration")), a.engine, a.margin, v_before=pick(a.v_before, b.v_before))
+                  "duration")), a.engine, a.margin, v_before=pick(a.v_before, b.v_before),
+               covered=pick(a.covered, b.covered))
 
 
 def _either(b_up: Burn, b_down: Burn, up, index, batch: Batch, ctx: Context, fails, normal,
@@ -549,10 +568,11 @@ def _three_burn_plane_change(step: Transfer, index, batch: Batch, ctx: Context, 
     fails.merge(~sub.ok, sub)
     out = BurnOutcome(r3, v3, np.where(sub.ok[:, None], v_new, v3), out.coast, out.fails)
     fails.merge(~out.fails.ok, out.fails)
-    new, vec, dv, dvm, prop, bt = _price(batch, out, _engine(lower, ctx), margin, ctx, fails,
-                                         lower.name)
+    new, vec, dv, dvm, prop, bt, covered = _price(batch, out, _engine(lower, ctx), margin, ctx,
+                                                  fails, lower.name)
     rows.append(Row(index, lower.name, "burn", "periapsis", new, vec, dv, dvm, prop, bt,
-                    out.coast, out.coast, _engine(lower, ctx), margin, v_before=out.v_before))
+                    out.coast, out.coast, _engine(lower, ctx), margin, v_before=out.v_before,
+                    covered=covered))
     return new, rows
 
 
@@ -600,6 +620,21 @@ def _drop(step: Drop, index: int, batch: Batch, ctx: Context, fails: Failures):
         "drop less, or check the craft's dry mass"))
     new = replace(batch, mass=np.where(fails.ok, batch.mass - step.mass, batch.mass))
     return new, [Row(index, step.name, "drop", "here", new)]
+
+
+def _allow(step: Allow, index: int, batch: Batch, ctx: Context, fails: Failures, scale=1.0):
+    """A budget line: its delta-v (statistical lines scaled to their RSS share) is priced
+    by the rocket equation here; the orbit does not move."""
+    engine = _engine(step, ctx)
+    dv = np.full(batch.size, step.dv * (scale if step.statistical else 1.0))
+    dvm = dv * (1.0 + step.margin)
+    need, covered, burn_time = _propellant(batch, dvm, engine)
+    new = replace(batch, mass=batch.mass - need, propellant=batch.propellant - need,
+                  dv=batch.dv + dv, dv_margin=batch.dv_margin + dvm)
+    zero = np.zeros((batch.size, 3))
+    return new, [Row(index, step.name, "allow", "here", new, zero, dv, dvm, need, burn_time,
+                     np.zeros(batch.size), np.zeros(batch.size), engine, step.margin,
+                     covered=covered)]
 
 
 def measure(kind: str, batch: Batch, ctx: Context) -> np.ndarray:
@@ -671,6 +706,8 @@ def apply(step: Step, index: int, batch: Batch, ctx: Context) -> tuple[Batch, li
         new, rows = _drop(step, index, batch, ctx, fails)
     elif isinstance(step, Expect):
         new, rows = _expect(step, index, batch, ctx, fails)
+    elif isinstance(step, Allow):
+        new, rows = _allow(step, index, batch, ctx, fails, ctx.statistical_scale)
     else:  # pragma: no cover - lowering makes only the kinds above
         raise TypeError(type(step))
     return new, rows, fails
@@ -688,6 +725,11 @@ class Result:
     @property
     def ok(self) -> bool:
         return self.error is None
+
+    @property
+    def first_uncovered(self) -> Row | None:
+        """The first burn or allowance the load does not cover (None when it covers all)."""
+        return next((r for r in self.rows if r.covered is not None and not r.covered[0]), None)
 
 
 def run(program: Program, strict: bool = False) -> Result:

@@ -7,6 +7,8 @@ at the offending node, with what would work.
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 from apsidal.lang import syntax as ast
 from apsidal.lang.errors import PlanError, Span, did_you_mean
@@ -15,6 +17,7 @@ from . import bodies
 from .state import state_from_elements
 from .steps import (
     HERE,
+    Allow,
     Burn,
     CheckSpec,
     Coast,
@@ -27,6 +30,8 @@ from .steps import (
     Step,
     Transfer,
 )
+
+YEAR_S = 365.25 * 86400.0  # the Julian year, s
 
 # Tolerance of `expect ... ` without `within`, by what is checked (internal units).
 DEFAULT_TOLERANCE = {
@@ -180,7 +185,7 @@ class Lowerer:
         self.body = body
 
     def _craft(self, st: ast.CraftDef) -> None:
-        f = _fields(st.fields, ("dry", "propellant"), f"craft `{st.name.text}`")
+        f = _fields(st.fields, ("dry", "propellant", "residual"), f"craft `{st.name.text}`")
         for need in ("dry", "propellant"):
             if need not in f:
                 raise _err(f"craft `{st.name.text}` needs `{need}`", st,
@@ -207,7 +212,21 @@ class Lowerer:
                 raise _err(f"engine `{e.name.text}` is defined twice", e.name,
                            "give each engine its own name, or remove one of the two lines")
             engines.append(EngineSpec(e.name.text, isp, thrust))
-        self.craft = Craft(st.name.text, dry, prop, tuple(engines))
+        residual_kg = residual_share = 0.0
+        if "residual" in f:
+            value = f["residual"].value
+            if value.unit == "%":
+                residual_share = value.internal()
+                if residual_share >= 1.0:
+                    raise _err("a residual of the whole load or more leaves nothing to burn",
+                               f["residual"], "a residual is a few per cent of the load")
+            else:
+                residual_kg = value.internal()
+                if residual_kg > prop:
+                    raise _err(f"the residual ({residual_kg:g} kg) is more than the load "
+                               f"({prop:g} kg)", f["residual"],
+                               "the residual is the part of the load that cannot be used")
+        self.craft = Craft(st.name.text, dry, prop, tuple(engines), residual_kg, residual_share)
 
     # --- the start orbit ---------------------------------------------------------------
 
@@ -338,6 +357,9 @@ class Lowerer:
                 raise _err(f"`{opt.key}` is given twice in one step", opt,
                            f"keep one (the first is at column {seen[opt.key].span.column})")
             seen[opt.key] = opt
+            if opt.key == "statistical":
+                raise _err("`statistical` marks an allowance (`allow NAME ...`), not a burn",
+                           opt, "drop it; a burn's delta-v comes from its goals")
             if opt.key in ("fixed", "movable", "tangential"):
                 continue
             if opt.key == "using":
@@ -394,6 +416,8 @@ class Lowerer:
                              movable=free)
             return Coast(name, "rev", revs=int(node.duration.value), span=node.span,
                          movable=free)
+        if isinstance(node, ast.Allow):
+            return self._allow(node)
         if isinstance(node, ast.Drop):
             return Drop(self._name(node, "drop"), node.mass.internal(), node.span, node.movable)
         if isinstance(node, ast.Expect):
@@ -492,6 +516,22 @@ class Lowerer:
                        "add the raised apoapsis, or use `burn NAME at node: inclination to ...`")
         return Transfer(name, place, "plane-change", None, via, inc, raan, None, engine, margin,
                         node.span, fixed)
+
+    def _allow(self, node: ast.Allow) -> Allow:
+        name = self._name(node, "allow")
+        statistical = any(o.key == "statistical" for o in node.options)
+        others = [o for o in node.options if o.key in ("fixed", "tangential")]
+        if others:
+            raise _err(f"`{others[0].key}` is not an option of an allowance", others[0],
+                       "an allowance takes `using`, `margin`, `statistical` and `movable`")
+        engine, margin, _, movable = self._options(
+            replace(node, options=tuple(o for o in node.options if o.key != "statistical")))
+        amount = node.amount.internal()
+        if node.duration is None:
+            return Allow(name, amount, statistical, engine, margin, node.span, movable)
+        years = node.duration.internal() / YEAR_S
+        return Allow(name, amount * years, statistical, engine, margin, node.span, movable,
+                     rate=amount, years=years)
 
     def _expect(self, node: ast.Expect) -> Expect:
         name = self._name(node, "expect")

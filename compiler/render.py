@@ -75,6 +75,39 @@ def check_text(c: dict) -> str:
     return f"{c['kind']} {cond}: actual {num(c['actual'])}{unit}"
 
 
+def priced(step: dict) -> bool:
+    """Burns and allowances carry delta-v and propellant."""
+    return step["kind"] in ("burn", "allow")
+
+
+def propellant_cell(step: dict, fmt: str) -> str:
+    """A step's propellant; a star where the load no longer covers it (see fit_lines)."""
+    return format(step["propellant_kg"], fmt) + ("" if step.get("covered", True) else "*")
+
+
+def fit_lines(report: dict) -> list[str]:
+    """Whether the load flies the plan, in words (empty when it does and says nothing new)."""
+    tot = report["totals"]
+    out = []
+    if tot.get("residual_kg"):
+        out.append(f"residual             {tot['residual_kg']:,.2f} kg of the "
+                   f"{tot['load_kg']:,.2f} kg load cannot be used")
+    allow = tot.get("allowances")
+    if allow:
+        out.append(f"allowances           {allow['total_m_s']:,.1f} m/s = "
+                   f"{allow['deterministic_m_s']:,.1f} deterministic + "
+                   f"{allow['statistical_rss_m_s']:,.1f} statistical (root-sum-square of "
+                   f"{allow['statistical_sum_m_s']:,.1f})")
+    if not report.get("feasible", True) and tot.get("propellant_needed_kg") is not None:
+        first = tot["first_uncovered_step"]
+        out.append(f"DOES NOT FIT         needs {tot['propellant_needed_kg']:,.2f} kg, carries "
+                   f"{tot['load_kg']:,.2f} kg: add {tot['shortfall_kg']:,.2f} kg"
+                   + (f"; the load runs out at {first} (steps marked * are not covered, "
+                      "priced as if the tank held the rest)" if first else
+                      "; the reserve is not covered"))
+    return out
+
+
 def table(report: dict, console: Console) -> None:
     title = report["plan"] or report["source"]
     t = Table(title=f"Delta-v budget: {title}", box=box.SIMPLE_HEAVY, title_justify="left")
@@ -85,11 +118,11 @@ def table(report: dict, console: Console) -> None:
                       ("elapsed", "right")):
         t.add_column(col, justify=just)
     for s in report["steps"]:
-        burn = s["kind"] == "burn"
+        burn = priced(s)
         t.add_row(str(s["index"]), f"{s['kind']} {s['name']}", _where(s),
                   f"{s['dv_m_s']:,.1f}" if burn else "",
                   f"{s['dv_with_margin_m_s']:,.1f}" if burn else "",
-                  f"{s['propellant_kg']:,.2f}" if burn else "",
+                  propellant_cell(s, ",.2f") if burn else "",
                   f"{s['mass_after_kg']:,.2f}", orbit_text(s["orbit_after"]),
                   duration(s["elapsed_s"]))
     console.print(t)
@@ -104,6 +137,7 @@ def table(report: dict, console: Console) -> None:
         f"(reserve {tot['reserve_m_s']:,.1f} m/s: "
         f"{'covered' if tot['reserve_met'] else 'NOT covered'})"),
         f"elapsed              {duration(tot['elapsed_s'])}",
+        *fit_lines(report),
     ]
     for line in lines:
         console.print(line, highlight=False)
@@ -138,11 +172,11 @@ def markdown(report: dict) -> str:
                         "propellant (kg)", "mass after (kg)", "orbit after", "elapsed"]))
     out.append("|" + "---|" * 9)
     for s in report["steps"]:
-        burn = s["kind"] == "burn"
+        burn = priced(s)
         out.append(_md_row([s["index"], f"{s['kind']} `{s['name']}`", s["at"],
                             f"{s['dv_m_s']:.1f}" if burn else "",
                             f"{s['dv_with_margin_m_s']:.1f}" if burn else "",
-                            f"{s['propellant_kg']:.2f}" if burn else "",
+                            propellant_cell(s, ".2f") if burn else "",
                             f"{s['mass_after_kg']:.2f}", orbit_text(s["orbit_after"]),
                             duration(s["elapsed_s"])]))
     tot = report["totals"]
@@ -156,6 +190,9 @@ def markdown(report: dict) -> str:
             _md_row(["reserve", (f"{tot['reserve_m_s']:.1f} m/s "
                      f"({'covered' if tot['reserve_met'] else 'not covered'})")]),
             _md_row(["elapsed", duration(tot["elapsed_s"])])]
+    fit = fit_lines(report)
+    if fit:
+        out += ["", *(f"- {' '.join(line.split())}" for line in fit)]
     checks = [(s, c) for s in report["steps"] for c in s.get("checks", [])]
     if checks:
         out += ["", "**Expectations**", ""]
@@ -171,7 +208,7 @@ def markdown(report: dict) -> str:
 CSV_COLUMNS = ["index", "name", "kind", "at", "dv_m_s", "dv_with_margin_m_s", "along_m_s",
                "cross_m_s", "radial_m_s", "propellant_kg", "mass_after_kg", "duration_s",
                "elapsed_s", "periapsis_alt_km", "apoapsis_alt_km", "sma_km", "ecc",
-               "inclination_deg", "raan_deg", "argp_deg", "anomaly_deg", "period_s"]
+               "inclination_deg", "raan_deg", "argp_deg", "anomaly_deg", "period_s", "covered"]
 
 
 def to_csv(report: dict) -> str:
@@ -182,10 +219,13 @@ def to_csv(report: dict) -> str:
         o, vec = s["orbit_after"], s["vector_m_s"]
         flat = {**s, **o, "along_m_s": vec["along"], "cross_m_s": vec["cross"],
                 "radial_m_s": vec["radial"]}
+        flat.setdefault("covered", "")
         w.writerow(["" if flat[c] is None else flat[c] for c in CSV_COLUMNS])
     tot = report["totals"]
     w.writerow(["", "total", "", "", tot["dv_m_s"], tot["dv_with_margin_m_s"], "", "", "",
                 tot["propellant_kg"], tot["final_mass_kg"], "", tot["elapsed_s"]]
                + [""] * (len(CSV_COLUMNS) - 13))
+    for line in fit_lines(report):
+        buf.write(f"# {' '.join(line.split())}\n")
     buf.write(f"# Caution: {report['caution']}\n")
     return buf.getvalue()

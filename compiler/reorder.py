@@ -24,7 +24,7 @@ import numpy as np
 
 from .evaluate import Batch, Context, apply, context_for, start_batch
 from .state import dot, elements_from_state, frame, norm
-from .steps import Burn, Coast, Drop, Expect, Program
+from .steps import Allow, Burn, Coast, Drop, Expect, Program
 
 EXHAUSTIVE_NODES = 200_000  # tree nodes priced before the search turns to a beam
 BEAM = 4096
@@ -35,7 +35,7 @@ def is_barrier(step) -> bool:
         return True
     if getattr(step, "movable", False):  # freed by the plan with `movable`
         return False
-    if isinstance(step, (Drop, Expect)):
+    if isinstance(step, (Drop, Expect, Allow)):
         return True
     if isinstance(step, Burn) and step.vector is not None:
         return True

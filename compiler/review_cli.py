@@ -341,7 +341,11 @@ def cmd_diff(args) -> int:
         unit = "m/s delta-v with margin" if t.key.endswith("m_s") else "kg propellant"
         print(f"apsidal: the budget grew past --fail-over {t.text}: {grew:+.3f} {unit}",
               file=sys.stderr)
-    return EXIT_FINDINGS if over else EXIT_OK
+    lost_fit = result["feasible"]["old"] and not result["feasible"]["new"]
+    if lost_fit:
+        print(f"apsidal: the new plan no longer fits its load: it needs "
+              f"{result['new']['shortfall_kg']:,.3f} kg more", file=sys.stderr)
+    return EXIT_FINDINGS if over or lost_fit else EXIT_OK
 
 
 def textconv(path: str) -> int:

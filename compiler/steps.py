@@ -34,8 +34,23 @@ class EngineSpec:
 class Craft:
     name: str
     dry: float  # kg
-    propellant: float  # kg
+    propellant: float  # kg, the load
     engines: tuple[EngineSpec, ...]
+    residual_kg: float = 0.0  # propellant that cannot be used, as a mass
+    residual_share: float = 0.0  # ... or as a share of the load
+
+    def residual_of(self, load: float) -> float:
+        """The unusable part of a load (kg)."""
+        return self.residual_kg + self.residual_share * load
+
+    @property
+    def residual(self) -> float:
+        return self.residual_of(self.propellant)
+
+    @property
+    def usable(self) -> float:
+        """The part of the load the engines can burn (kg)."""
+        return self.propellant - self.residual
 
     @property
     def default_engine(self) -> EngineSpec:
@@ -156,7 +171,23 @@ class Expect:
     kind: str = field(default="expect", init=False)
 
 
-Step = Burn | Transfer | Coast | Drop | Expect
+@dataclass(frozen=True)
+class Allow:
+    """A budget line that costs delta-v and propellant but does not move the orbit."""
+
+    name: str
+    dv: float  # km/s, the whole line (a rate already multiplied by its duration)
+    statistical: bool = False  # a 3-sigma figure: combined with the others by RSS
+    engine: EngineSpec | None = None
+    margin: float = 0.0
+    span: Span | None = None
+    movable: bool = False
+    rate: float | None = None  # km/s per year, when given as a rate
+    years: float | None = None
+    kind: str = field(default="allow", init=False)
+
+
+Step = Burn | Transfer | Coast | Drop | Expect | Allow
 
 
 @dataclass(frozen=True)
@@ -173,6 +204,14 @@ class Program:
     plan: Plan | None = None
     start_span: Span | None = None
     ceiling: float | None = None  # highest apoapsis radius (km) a suggested detour may use
+
+    @property
+    def statistical_scale(self) -> float:
+        """The factor on each statistical allowance so that together they price their
+        root-sum-square: sqrt(sum dv_i^2) / sum dv_i (1 when there are none)."""
+        stat = [s.dv for s in self.steps if getattr(s, "kind", "") == "allow" and s.statistical]
+        total = sum(stat)
+        return float(np.sqrt(sum(x * x for x in stat)) / total) if total > 0 else 1.0
 
     def with_steps(self, steps) -> Program:
         return replace(self, steps=tuple(steps))

@@ -47,12 +47,12 @@ COMMENT_GAP = 2  # spaces before a trailing comment
 # Canonical keyword order of the fields of each block and of the trailing step options.
 FIELD_ORDER = {
     ast.BodyDef: ("gm", "radius", "soi", "j2"),
-    ast.CraftDef: ("dry", "propellant"),
+    ast.CraftDef: ("dry", "propellant", "residual"),
     ast.Engine: ("isp", "thrust"),
     ast.Start: ("circular", "periapsis", "apoapsis", "sma", "ecc", "vinf",
                 "inclination", "raan", "argp", "anomaly"),
 }
-OPTION_ORDER = ("using", "margin", "tangential", "fixed", "movable")
+OPTION_ORDER = ("using", "margin", "tangential", "statistical", "fixed", "movable")
 
 
 class FormatError(Exception):
@@ -118,7 +118,7 @@ def canonical(node):
                        engines=tuple(canonical(e) for e in node.engines))
     if type(node) in FIELD_ORDER:
         return replace(node, fields=_ordered(node.fields, FIELD_ORDER[type(node)]))
-    if isinstance(node, ast.Burn | ast.Transfer):
+    if isinstance(node, ast.Burn | ast.Transfer | ast.Allow):
         return replace(node, options=_ordered(node.options, OPTION_ORDER))
     return node
 
@@ -236,6 +236,13 @@ def _step_parts(stmt) -> _StepParts:
         return _StepParts("coast", name, "", False, body, _free(stmt))
     if isinstance(stmt, ast.Drop):
         return _StepParts("drop", name, "", False, stmt.mass.text(), _free(stmt))
+    if isinstance(stmt, ast.Allow):
+        body = stmt.amount.text()
+        if stmt.duration is not None:
+            body += f" per year for {stmt.duration.text()}"
+        return _StepParts("allow", name, "", False, body,
+                          " ".join(o.key if o.value is None else f"{o.key} {_value(o.value)}"
+                                   for o in _ordered(stmt.options, OPTION_ORDER)))
     return _StepParts("expect", name, "", False, ", ".join(_check(c) for c in stmt.checks),
                       _free(stmt))
 

@@ -222,6 +222,8 @@ def _slots() -> dict[str, Slot]:
         "body.j2": Slot("body j2", "number"),
         "craft.dry": Slot("craft dry mass", "mass", POSITIVE),
         "craft.propellant": Slot("craft propellant", "mass", NOT_NEGATIVE),
+        "craft.residual": Slot("craft residual", "mass", NOT_NEGATIVE),
+        "craft.residual_share": Slot("craft residual", "ratio", NOT_NEGATIVE),
         "engine.isp": Slot("engine isp", "time", POSITIVE),
         "engine.thrust": Slot("engine thrust", "force", POSITIVE),
         "setting.margin": Slot("margin", "ratio", NOT_NEGATIVE),
@@ -247,6 +249,8 @@ def _slots() -> dict[str, Slot]:
         "via": Slot("via apoapsis", "length"),
         "coast.for": Slot("coast duration", "time", POSITIVE),
         "drop": Slot("drop mass", "mass", POSITIVE),
+        "allow": Slot("allowance", "speed", NOT_NEGATIVE),
+        "allow.for": Slot("allowance duration", "time", POSITIVE),
     }
     checked = {"periapsis": ("length", ""), "apoapsis": ("length", ""),
                "circular": ("length", ""), "sma": ("length", ""),
@@ -425,7 +429,16 @@ class _ToSyntax(Transformer):
         return ast.Around(_named(children[0], "a body"), _span(meta))
 
     body_field = _field_rule("body")
-    craft_field = _field_rule("craft")
+    _craft_field = _field_rule("craft")
+
+    def craft_field(self, meta, children):
+        """`residual` takes a mass (kg) or a share of the load (%)."""
+        if str(children[0]) != "residual":
+            return self._craft_field(meta, children)
+        value = children[-1]
+        ratio = value.unit in UNITS and UNITS[value.unit][0] == "ratio"
+        return ast.Field("residual", _checked(value, SLOTS["craft.residual_share" if ratio
+                                                           else "craft.residual"]), _span(meta))
     engine_field = _field_rule("engine")
     orbit_apsis = orbit_shape = orbit_angle = _field_rule("start")
 
@@ -491,7 +504,7 @@ class _ToSyntax(Transformer):
 
     def option(self, meta, children):
         key = str(children[0])
-        if key in ("fixed", "movable", "tangential"):
+        if key in ("fixed", "movable", "tangential", "statistical"):
             return ast.Option(key, None, _span(meta))
         value = children[1]
         if key == "using":
@@ -533,6 +546,13 @@ class _ToSyntax(Transformer):
     def drop(self, meta, children):
         name, mass, free = children
         return ast.Drop(name, _checked(mass, SLOTS["drop"]), _span(meta), free)
+
+    def allow(self, meta, children):
+        name, amount, duration, options = children
+        return ast.Allow(name, _checked(amount, SLOTS["allow"]), duration, options, _span(meta))
+
+    def allow_rate(self, meta, children):
+        return _checked(children[0], SLOTS["allow.for"])
 
     def expect(self, meta, children):
         name, *checks, free = children

@@ -200,6 +200,21 @@ class Drop:
 
 
 @dataclass(frozen=True)
+class Allow:
+    """``allow NAME 50 m/s [per year for 15 yr] [statistical] [using E] [margin X %]``."""
+
+    name: Name | None
+    amount: Quantity
+    duration: Quantity | None  # with `per year for`: the amount is a yearly rate
+    options: tuple[Option, ...]
+    span: Span
+
+    @property
+    def movable(self) -> bool:
+        return any(o.key == "movable" for o in self.options)
+
+
+@dataclass(frozen=True)
 class Expect:
     name: Name | None
     checks: tuple[Check, ...]
@@ -209,9 +224,9 @@ class Expect:
 
 Statement = (
     PlanTitle | Around | BodyDef | CraftDef | Setting | Start | Burn | Transfer | Coast | Drop
-    | Expect
+    | Expect | Allow
 )
-STEP_TYPES = (Burn, Transfer, Coast, Drop, Expect)
+STEP_TYPES = (Burn, Transfer, Coast, Drop, Expect, Allow)
 
 
 @dataclass(frozen=True)

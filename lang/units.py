@@ -29,6 +29,7 @@ UNITS: dict[str, tuple[str, float]] = {
     "min": ("time", 60.0),
     "h": ("time", 3600.0),
     "d": ("time", 86400.0),
+    "yr": ("time", 365.25 * 86400.0),  # the Julian year (IAU), exactly 365.25 d
     "m/s": ("speed", 1e-3),
     "km/s": ("speed", 1.0),
     "kg": ("mass", 1.0),

@@ -341,8 +341,14 @@ def test_propellant_exhausted_is_an_error_finding(tmp_path, capsys):
 burn raise: apoapsis to 35786 km
 """).replace("propellant 20 t", "propellant 100 kg"))
     assert cli.main(["check", path, "--format", "json"]) == 1
-    [f] = json.loads(capsys.readouterr().out)["plans"][0]["findings"]
-    assert f["rule"] == "propellant-exhausted" and "shortfall" in f["message"]
+    found = json.loads(capsys.readouterr().out)["plans"][0]["findings"]
+    f = next(f for f in found if f["rule"] == "propellant-exhausted")
+    assert f["severity"] == "error" and "does not fit its load" in f["message"]
+    assert f["steps"] == ["raise"]
+    # --rule never hides that the plan does not fit
+    assert cli.main(["check", path, "--format", "json", "--rule", "merge-burns"]) == 1
+    found = json.loads(capsys.readouterr().out)["plans"][0]["findings"]
+    assert [f["rule"] for f in found] == ["propellant-exhausted"]
 
 
 def test_write_suggestion_writes_the_cheapest_plan(tmp_path, capsys):

@@ -264,26 +264,29 @@ burn far at periapsis: apoapsis to 35786 km
 
 
 @pytest.mark.parametrize("fmt", FORMATS)
-def test_unflyable_plan_prints_partial_report_and_located_error(capsys, tmp_path, fmt):
+def test_a_plan_that_does_not_fit_is_priced_in_full_and_exits_1(capsys, tmp_path, fmt):
     path = tmp_path / "starved.aps"
     path.write_text(STARVED)
     code, out, err = run(capsys, "run", path, "--format", fmt)
-    assert code == 2
-    assert "Traceback" not in err
-    assert f"{path}:11:1: error:" in err
-    assert "ring: propellant exhausted" in err
-    assert "hint:" in err
-    assert "   11 | burn ring: periapsis to 1000 km" in err
-    # the steps flown before the failure are on stdout, the failing one and later are not
+    assert code == 1
+    assert "Traceback" not in err and "does not fit its load" in err
+    assert not NON_FINITE.search(out)
+    # every step is on stdout, the ones the load does not cover marked as such
     if fmt == "json":
         rep = strict_json(out)
-        assert [s["name"] for s in rep["steps"]] == ["lift", "wait"]
-        assert rep["error"]["line"] == 11
-        assert rep["error"]["column"] == 1
+        assert [s["name"] for s in rep["steps"]] == ["lift", "wait", "ring", "far"]
+        assert rep["feasible"] is False
+        assert [s.get("covered") for s in rep["steps"]] == [True, None, False, False]
+        tot = rep["totals"]
+        assert tot["reserve_met"] is False and tot["expectations_met"] is False
+        assert tot["shortfall_kg"] == pytest.approx(tot["propellant_needed_kg"]
+                                                     - tot["load_kg"])
+        assert all(s["dv_m_s"] > 0 for s in rep["steps"] if s["kind"] == "burn")
+    elif fmt == "csv":
+        assert "DOES NOT FIT" in out and ",False" in out
     else:
-        assert not NON_FINITE.search(out)
-        assert re.search(r"\blift\b", out) and re.search(r"\bwait\b", out)
-        assert not re.search(r"\bring\b", out) and not re.search(r"\bfar\b", out)
+        assert "DOES NOT FIT" in out and "runs out at ring" in out
+        assert re.search(r"\bring\b", out) and re.search(r"\bfar\b", out)
 
 
 def test_usage_errors_exit_2_without_traceback(capsys, tmp_path):

@@ -129,7 +129,8 @@ def assert_matches_run_reports(diff: dict, old: dict, new: dict) -> None:
     """The diff is exactly the difference of the two `run` reports."""
     assert diff["old"] == old["totals"] and diff["new"] == new["totals"]
     for key, value in new["totals"].items():
-        if isinstance(value, bool):
+        if not isinstance(value, int | float) or isinstance(value, bool) \
+                or old["totals"].get(key) is None:
             continue
         assert diff["change"][key] == pytest.approx(value - old["totals"][key], abs=1e-6)
     old_steps, new_steps = by_name(old), by_name(new)
@@ -477,13 +478,18 @@ def test_a_side_that_does_not_parse_still_shows_the_other(tmp_path_factory, caps
     assert code == 2 and out.startswith("**The old plan (") and "| burn `raise`" in out
 
 
-def test_a_new_side_that_cannot_be_flown_exits_2(capsys, tmp_path):
+def test_a_new_side_that_no_longer_fits_says_so_and_exits_1(capsys, tmp_path):
     old, new = tmp_path / "old.aps", tmp_path / "new.aps"
     old.write_text(BASE)
     new.write_text(BASE.replace("propellant 380 kg", "propellant 60 kg"))
     code, out, err = cli(capsys, "diff", old, new, "--format", "json", "--no-findings")
-    assert code == 2 and "propellant exhausted" in err
-    assert json.loads(out)["change"]["dv_m_s"] < 0  # the diff is still shown
+    assert code == 1 and "no longer fits" in err
+    d = json.loads(out)
+    assert d["feasible"] == {"old": True, "new": False}
+    assert d["change"]["dv_m_s"] == 0  # the same delta-v: a shortfall is never a saving
+    assert d["new"]["shortfall_kg"] > 0
+    code, out, _ = cli(capsys, "diff", old, new, "--format", "markdown", "--no-findings")
+    assert f"no longer fits: needs {d['new']['shortfall_kg']:,.2f} kg more" in out
 
 
 # --- git integration -----------------------------------------------------------------

@@ -18,7 +18,7 @@ from hypothesis import strategies as st
 ERRORS = [
     # id, text, (line, column), message, part of the hint
     ("unexpected-character", "around earth\nburn x: circular 3 km )\n", (2, 23),
-     "unexpected character `)`", "expected `margin`, `,`, `using`, `fixed`, `movable`, `tangential` or end of line"),
+     "unexpected character `)`", "expected `margin`, `,`, `using`, `fixed`, `movable`, `tangential`, `statistical` or end of line"),
     ("misspelt-goal", "burn raise at periapsis: apoapsys to 35786 km\n", (1, 26),
      "unexpected `apoapsys`", "did you mean `apoapsis`?"),
     ("misspelt-where", "burn raise at periapsys: apoapsis to 35786 km\n", (1, 15),
@@ -37,8 +37,8 @@ ERRORS = [
     ("keyword-where-a-unit-goes", "start circular 400 inclinaton 51.6 deg\n", (1, 20),
      "unknown unit `inclinaton`", "did you mean `inclination`?"),
     ("wrong-dimension", "craft c {\n  dry 1 kg\n  engine main isp 321 m/s thrust 440 N\n}\n",
-     (3, 19), "engine isp needs a time (s, min, h, d), got a speed (m/s)",
-     "write it in s, min, h or d, e.g. `321 s`"),
+     (3, 19), "engine isp needs a time (s, min, h, d, yr), got a speed (m/s)",
+     "write it in s, min, h, d or yr, e.g. `321 s`"),
     ("wrong-dimension-margin", "margin 5 kg\n", (1, 8),
      "margin needs a ratio (%), got a mass (kg)", "e.g. `5 %`"),
     ("wrong-dimension-tolerance", "expect inclination 0 deg within 1 km\n", (1, 33),
@@ -46,7 +46,7 @@ ERRORS = [
     ("wrong-dimension-goal", "burn b: along 3 km\n", (1, 15),
      "along component needs a speed (m/s, km/s), got a length (km)", "e.g. `3 m/s`"),
     ("quantity-without-unit", "coast settle for 2\n", (1, 18),
-     "coast duration needs a time (s, min, h, d), got a plain number",
+     "coast duration needs a time (s, min, h, d, yr), got a plain number",
      "add a unit, e.g. `2 s`"),
     ("unit-on-a-plain-number", "body rock { gm 17.3 km3/s2 radius 262 km j2 0.1 km }\n",
      (1, 45), "body j2 needs a plain number, got a length (km)", "write `0.1`"),

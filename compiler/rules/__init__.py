@@ -36,4 +36,5 @@ RULES = (
 BY_NAME = {r.rule_name: r for r in RULES}
 
 # What `run` reports on its own: the plan measured against itself, no search.
-CONSISTENCY = (expectation_not_met, reserve_not_covered, beyond_sphere_of_influence, long_burn)
+CONSISTENCY = (propellant_exhausted, expectation_not_met, reserve_not_covered,
+               beyond_sphere_of_influence, long_burn)

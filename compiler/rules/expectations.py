@@ -36,8 +36,8 @@ def reserve_not_covered(c: Checker) -> list[Finding]:
     propellant gives with the default engine at the final mass, by the rocket equation.
     """
     tot = c.report["totals"]
-    if tot["reserve_met"]:
-        return []
+    if tot["reserve_met"] or tot["first_uncovered_step"] is not None:
+        return []  # a load that runs out is the propellant finding's
     return [Finding("reserve-not-covered", "error", (),
                     f"the plan ends with {tot['dv_capacity_left_m_s']:.1f} m/s of delta-v "
                     f"capacity, less than its reserve of {tot['reserve_m_s']:.1f} m/s")]
@@ -45,18 +45,26 @@ def reserve_not_covered(c: Checker) -> list[Finding]:
 
 @rule("propellant-exhausted", needs_flyable=False)
 def propellant_exhausted(c: Checker) -> list[Finding]:
-    """A burn needs more propellant than the craft has left.
+    """The load does not fly the plan with its margins, residual and reserve.
 
     Propellant per burn follows the rocket equation with the engine's specific impulse
-    and standard gravity, on the delta-v with margin.  The finding names the burn, what
-    it needs, what remains and the shortfall; nothing after it can be priced.
+    and standard gravity, on the delta-v with margin.  The whole plan is priced anyway
+    (in the impulsive model no delta-v depends on the mass); the finding names the first
+    burn the load does not cover, the load the plan needs (the exact backward pass of
+    `apsidal size`), the load it has and the difference to add.  `check` runs this rule
+    whatever `--rule` selects: a plan that does not fit is never reported clean.
     """
-    err = c.result.error
-    if err is None or c.result.failure != "propellant":
+    tot = c.report["totals"]
+    if c.report["feasible"] or tot["propellant_needed_kg"] is None:
         return []
-    steps = (c.program.steps[c.result.failed_step].name,)
-    return [Finding("propellant-exhausted", "error", steps,
-                    err.message + (f" ({err.hint})" if err.hint else ""))]
+    first = tot["first_uncovered_step"]
+    where = (f"the load runs out at {first}" if first else
+             "every burn is covered but the reserve is not")
+    return [Finding("propellant-exhausted", "error", (first,) if first else (),
+                    f"the plan does not fit its load: {where}; it needs "
+                    f"{tot['propellant_needed_kg']:,.3f} kg of propellant (margins, "
+                    f"residual and reserve included) and carries {tot['load_kg']:,.3f} kg: "
+                    f"add {tot['shortfall_kg']:,.3f} kg, or find delta-v to cut")]
 
 
 @rule("beyond-sphere-of-influence")

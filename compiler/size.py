@@ -1,0 +1,94 @@
+"""Sizing: the least load that flies a priced plan, and the most dry mass a load flies.
+
+The evaluator gives every burn's and allowance's delta-v (with margin) and engine, and
+every drop, independent of the mass (impulsive burns: the geometry does not depend on
+it).  The rocket equation then runs backwards, exactly, from the end of the plan:
+
+* at the end the usable propellant left must give the reserve with the default engine:
+  m_end = (dry_end + residual) * exp(reserve / ve0);
+* before a burn of delta-v dv with exhaust speed ve: m_before = m_after * exp(dv / ve);
+* before a drop of mass d: m_before = m_after + d.
+
+So the start mass is affine in the mass that rides to the end, m0 = G (dry_end + residual)
++ sum_j d_j G_j, with G the product of every burn's exp(dv/ve) and G_j the product over
+the burns before drop j.  The load is m0 - dry; a residual given as a share f of the
+load makes it L = (G (dry - D) + sum d_j G_j - dry) / (1 - G f).  The same line solved
+for the dry mass gives the most the present load can fly.
+
+>>> round(size_chain([(3.0, 3.0)], drops=[], dry=100.0, reserve=0.0, ve0=3.0).load, 6)
+171.828183
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+from .evaluate import Result
+
+
+@dataclass(frozen=True)
+class Sizing:
+    load: float | None  # kg: the least load that flies the plan (None: no load can)
+    dry_max: float | None  # kg: the most dry mass the present load flies (None: any)
+    why: str | None = None  # why no load can fly it
+
+
+def _chain(result: Result):
+    """(kind, value, ve) along the plan: ('burn', dv with margin, ve) or ('drop', kg, 0)."""
+    steps = result.program.steps
+    out = []
+    for row in result.rows:
+        if row.kind in ("burn", "allow"):
+            out.append(("burn", float(row.dv_margin[0]), row.engine.exhaust_speed))
+        elif row.kind == "drop":
+            out.append(("drop", steps[row.step].mass, 0.0))
+    return out
+
+
+def size_chain(burns, drops, dry: float, reserve: float, ve0: float,
+               residual_kg: float = 0.0, residual_share: float = 0.0,
+               load: float | None = None) -> Sizing:
+    """Size a chain of ``burns`` [(dv, ve)] with ``drops`` [(position, kg)] between them
+    (a drop at position k comes before burn k)."""
+    seq = []
+    for k, b in enumerate(burns):
+        seq += [("drop", d, 0.0) for pos, d in drops if pos == k]
+        seq.append(("burn", *b))
+    seq += [("drop", d, 0.0) for pos, d in drops if pos >= len(burns)]
+    return _size(seq, dry, reserve, ve0, residual_kg, residual_share, load)
+
+
+def _size(seq, dry, reserve, ve0, residual_kg, residual_share, load) -> Sizing:
+    # m0 = G * (dry_end + residual) + sum(d_j * G_j), walking back from the end
+    G = math.exp(reserve / ve0)
+    tail = 0.0  # the drops' part, already multiplied by the burns after them... backwards
+    dropped = 0.0
+    for kind, value, ve in reversed(seq):
+        if kind == "burn":
+            factor = math.exp(value / ve)
+            G *= factor
+            tail *= factor
+        else:
+            tail += value
+            dropped += value
+    dry_end = dry - dropped
+    denominator = 1.0 - G * residual_share
+    if denominator <= 0.0:
+        return Sizing(None, None, (f"the residual share ({residual_share * 100:g} %) is more "
+                                   f"than the plan's mass ratio allows (1/{G:.6g})"))
+    need = (G * (dry_end + residual_kg) + tail - dry) / denominator
+    dry_max = None
+    if load is not None and G > 1.0:
+        residual = residual_kg + residual_share * load
+        # dry + load = G (dry - D + residual) + tail  ->  dry (G - 1) = load + G (D - residual) - tail
+        dry_max = (load + G * (dropped - residual) - tail) / (G - 1.0)
+    return Sizing(max(need, 0.0), dry_max)
+
+
+def size(result: Result) -> Sizing:
+    """The sizing of a priced plan (with its margins, reserve and residual)."""
+    p = result.program
+    craft = p.craft
+    return _size(_chain(result), craft.dry, p.reserve, craft.default_engine.exhaust_speed,
+                 craft.residual_kg, craft.residual_share, craft.propellant)

@@ -1,0 +1,76 @@
+"""`apsidal size PLAN`: the load a plan needs and the dry mass its load can fly.
+
+The numbers come from the evaluator's chain and the exact backward pass of ``size``;
+this module only words them (table) or lays them out (``--format json``).
+"""
+
+from __future__ import annotations
+
+import json
+import sys
+
+from .budget import CAUTION
+from .cliutil import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_OK, console
+from .evaluate import run
+from .load import load
+from .size import size
+
+
+def sizing_report(result) -> dict:
+    p = result.program
+    craft = p.craft
+    s = size(result)
+    needed = s.load
+    return {
+        "plan": p.title,
+        "source": p.source.path,
+        "propellant_needed_kg": needed,
+        "load_kg": craft.propellant,
+        "shortfall_kg": None if needed is None else max(needed - craft.propellant, 0.0),
+        "spare_kg": None if needed is None else max(craft.propellant - needed, 0.0),
+        "dry_kg": craft.dry,
+        "dry_max_kg": s.dry_max,
+        "residual_kg_at_needed_load": (None if needed is None else craft.residual_of(needed)),
+        "reserve_m_s": p.reserve * 1000.0,
+        "feasible": needed is not None and needed <= craft.propellant * (1 + 1e-12) + 1e-9,
+        "why": s.why,
+        "caution": CAUTION,
+    }
+
+
+def cmd_size(args) -> int:
+    result = run(load(args.plan))
+    if result.error is not None:
+        print(result.error.render(), file=sys.stderr)
+        return EXIT_BAD_INPUT
+    rep = sizing_report(result)
+    if args.format == "json":
+        sys.stdout.write(json.dumps(rep, indent=2, allow_nan=False) + "\n")
+    else:
+        out = console()
+        out.print(f"Sizing: {rep['plan'] or rep['source']}")
+        if rep["propellant_needed_kg"] is None:
+            out.print(f"  no load flies this plan: {rep['why']}")
+        else:
+            out.print(f"  propellant needed   {rep['propellant_needed_kg']:,.3f} kg "
+                      "(margins, residual and reserve included)")
+            out.print(f"  propellant loaded   {rep['load_kg']:,.3f} kg")
+            if rep["shortfall_kg"] > 0:
+                out.print(f"  short by            {rep['shortfall_kg']:,.3f} kg: the plan "
+                          "does not fit")
+            else:
+                out.print(f"  spare               {rep['spare_kg']:,.3f} kg")
+            dry_max = rep["dry_max_kg"]
+            out.print(f"  dry mass            {rep['dry_kg']:,.3f} kg; the load flies at most "
+                      + ("any dry mass (no burns)" if dry_max is None else
+                         f"{dry_max:,.3f} kg"))
+        out.print(f"Caution: {CAUTION}", soft_wrap=True)
+    return EXIT_OK if rep["feasible"] else EXIT_FINDINGS
+
+
+def register(sub) -> None:
+    p = sub.add_parser("size", help="the least load that flies a plan, and the most dry mass "
+                                    "its load flies")
+    p.add_argument("plan", help="plan file (.aps)")
+    p.add_argument("--format", choices=("table", "json"), default="table")
+    p.set_defaults(func=cmd_size)

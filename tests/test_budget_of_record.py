@@ -1,0 +1,215 @@
+"""The budget of record: plans priced whatever the load, sizing, allowances, residuals.
+
+Sources beside each check:
+* the rocket equation m_prop = m0 (1 - exp(-dv / (Isp g0))) with standard gravity
+  g0 = 9.80665 m/s^2 (CGPM 1901, exact; Tsiolkovsky's equation as in any propulsion text,
+  e.g. Sutton & Biblarz, Rocket Propulsion Elements, ch. 4);
+* the Julian year of 365.25 d (IAU);
+* root-sum-square of independent 3-sigma lines, deterministic lines added (common
+  practice in delta-v budgets);
+* GEO north-south station-keeping of about 50 m/s per year (common practice; the
+  luni-solar drift of the inclination is roughly 0.75-0.95 deg per year, from memory).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+
+import pytest
+from apsidal.compiler.budget import budget
+from apsidal.compiler.cli import main
+from apsidal.compiler.evaluate import run
+from apsidal.compiler.load import load_text
+from apsidal.compiler.size import size
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+from strictjson import strict_json
+
+G0 = 9.80665e-3  # km/s^2
+
+
+def plan(*steps, dry=500.0, load=400.0, residual=None, isp=300.0, reserve=None,
+         start="start circular 400 km", engines=()) -> str:
+    lines = ['plan "record"', "around earth", "craft c {", f"    dry {dry!r} kg",
+             f"    propellant {load!r} kg"]
+    if residual:
+        lines.append(f"    residual {residual}")
+    lines.append(f"    engine main isp {isp!r} s thrust 400 N")
+    lines += [f"    engine {e}" for e in engines]
+    lines.append("}")
+    if reserve:
+        lines.append(f"reserve {reserve}")
+    return "\n".join([*lines, start, *steps]) + "\n"
+
+
+def report(text: str) -> dict:
+    return budget(run(load_text(text)))
+
+
+# --- a plan that does not fit ---------------------------------------------------------------
+
+
+def test_the_shortfall_is_the_load_to_add():
+    """400 kg, 2000 m/s at 300 s on a 500 kg craft: the load that flies it is
+    500 (exp(dv / (Isp g0)) - 1) = 486.75 kg, so 86.75 kg more (rocket equation)."""
+    rep = report(plan("burn big: along 2000 m/s"))
+    need = 500.0 * math.expm1(2.0 / (300.0 * G0))
+    assert need == pytest.approx(486.75, abs=0.005)
+    tot = rep["totals"]
+    assert rep["feasible"] is False
+    assert tot["propellant_needed_kg"] == pytest.approx(need, abs=1e-6)  # JSON: to 1 mg
+    assert tot["shortfall_kg"] == pytest.approx(need - 400.0, abs=1e-6)
+    assert tot["first_uncovered_step"] == "big"
+    assert tot["reserve_met"] is False and tot["expectations_met"] is False
+
+
+def test_every_step_is_priced_past_the_point_the_load_runs_out():
+    """Delta-v does not depend on the mass: the steps after the shortfall keep theirs."""
+    steps = ("burn up at periapsis: apoapsis to 35786 km", "burn circ at apoapsis: circular",
+             "burn tilt at node: inclination to 0 deg")
+    full = report(plan(*steps, load=20000.0))
+    short = report(plan(*steps, load=300.0))
+    assert [s["dv_m_s"] for s in short["steps"]] == pytest.approx(
+        [s["dv_m_s"] for s in full["steps"]], rel=1e-12)
+    assert [s["covered"] for s in short["steps"]] == [False, False, False]
+    assert short["totals"]["dv_m_s"] == pytest.approx(full["totals"]["dv_m_s"], rel=1e-12)
+    # the sized load does not depend on the load carried
+    assert short["totals"]["propellant_needed_kg"] == pytest.approx(
+        full["totals"]["propellant_needed_kg"], abs=1e-6)
+
+
+@pytest.mark.parametrize("fmt", ["table", "json", "markdown", "csv"])
+def test_a_plan_that_does_not_fit_in_every_format(tmp_path, capsys, fmt):
+    path = tmp_path / "short.aps"
+    path.write_text(plan("burn big: along 2000 m/s", "coast c for 1 h",
+                         "burn more: along 100 m/s"))
+    code = main(["run", str(path), "--format", fmt])
+    out, err = capsys.readouterr()
+    assert code == 1 and "does not fit its load" in err and "Traceback" not in err
+    short = f"{500.0 * math.expm1(2.1 / (300.0 * G0)) * 1.0 - 400.0:,.2f}"
+    if fmt == "json":
+        rep = strict_json(out)
+        assert [s["name"] for s in rep["steps"]] == ["big", "c", "more"]
+        assert f"{rep['totals']['shortfall_kg']:,.2f}" == short
+    else:
+        assert f"add {short} kg" in out
+        assert "more" in out
+
+
+# --- sizing ---------------------------------------------------------------------------------
+
+CHAINS = [
+    ("burn up at periapsis: apoapsis to 35786 km", "drop kick 40 kg",
+     "burn circ at apoapsis: circular, inclination to 0 deg using trim",
+     "allow keep 50 m/s per year for 5 yr using trim margin 10 %"),
+    ("burn a: along 300 m/s", "drop one 20 kg", "drop two 30 kg", "burn b: along 500 m/s"),
+]
+
+
+@pytest.mark.parametrize("residual", [None, "2 %", "12 kg"])
+@pytest.mark.parametrize("steps", CHAINS)
+def test_sized_load_ends_exactly_at_the_reserve_and_a_gram_less_does_not(steps, residual):
+    """The backward pass against a forward run with that load (to 1 g)."""
+    kw = {"residual": residual, "reserve": "25 m/s", "engines": ("trim isp 220 s thrust 20 N",)}
+    need = report(plan(*steps, load=100.0, **kw))["totals"]["propellant_needed_kg"]
+    exact = report(plan(*steps, load=need, **kw))
+    assert exact["feasible"] is True
+    assert exact["totals"]["dv_capacity_left_m_s"] == pytest.approx(25.0, abs=1e-5)
+    less = report(plan(*steps, load=need - 0.001, **kw))
+    assert less["feasible"] is False
+    assert less["totals"]["shortfall_kg"] == pytest.approx(0.001, abs=1e-6)
+
+
+def test_dry_max_is_the_heaviest_craft_the_load_flies():
+    steps = CHAINS[1]
+    rep = report(plan(*steps, load=400.0, reserve="10 m/s"))
+    dry_max = rep["totals"]["dry_max_kg"]
+    at = report(plan(*steps, load=400.0, dry=dry_max, reserve="10 m/s"))
+    assert at["totals"]["dv_capacity_left_m_s"] == pytest.approx(10.0, abs=1e-6)
+    assert report(plan(*steps, load=400.0, dry=dry_max + 0.001,
+                       reserve="10 m/s"))["feasible"] is False
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.lists(st.one_of(st.floats(1.0, 1500.0).map(lambda dv: f"along {dv:.3f} m/s"),
+                          st.floats(1.0, 50.0).map(lambda kg: f"drop {kg:.3f} kg")),
+                min_size=1, max_size=6),
+       st.floats(0.0, 0.2), st.floats(0.0, 50.0))
+def test_sizing_property_forward_run_lands_on_the_reserve(items, share, reserve):
+    steps = [f"burn b{i}: {x}" if x.startswith("along") else f"drop d{i} {x[5:]}"
+             for i, x in enumerate(items)]
+    kw = {"dry": 800.0, "residual": f"{share * 100:.4f} %", "reserve": f"{reserve:.4f} m/s"}
+    need = report(plan(*steps, load=10.0, **kw))["totals"]["propellant_needed_kg"]
+    rep = report(plan(*steps, load=need + 1e-6, **kw))
+    assert rep["feasible"]
+    assert rep["totals"]["dv_capacity_left_m_s"] == pytest.approx(reserve, abs=1e-4)
+
+
+def test_size_command(tmp_path, capsys):
+    path = tmp_path / "p.aps"
+    path.write_text(plan("burn big: along 2000 m/s"))
+    assert main(["size", str(path), "--format", "json"]) == 1
+    rep = json.loads(capsys.readouterr().out)
+    assert rep["propellant_needed_kg"] == pytest.approx(500.0 * math.expm1(2.0 / (300 * G0)))
+    assert rep["shortfall_kg"] == pytest.approx(rep["propellant_needed_kg"] - 400.0)
+    # 400 kg fly 500 kg dry at most to 2000 m/s: dry (e^x - 1) = 400
+    assert rep["dry_max_kg"] == pytest.approx(400.0 / math.expm1(2.0 / (300 * G0)))
+    assert main(["size", str(path)]) == 1
+    out = capsys.readouterr().out
+    assert "short by" in out and "Caution" in out
+
+
+# --- allowances and residuals ----------------------------------------------------------------
+
+
+def test_station_keeping_per_year_uses_the_julian_year():
+    """15 years at 50 m/s per year of north-south keeping: 750 m/s (common practice)."""
+    rep = report(plan("allow ns 50 m/s per year for 5478.75 d", load=2000.0,
+                      start="start circular 35786 km"))
+    (line,) = rep["steps"]
+    assert line["dv_m_s"] == pytest.approx(750.0, rel=1e-12)
+    same = report(plan("allow ns 50 m/s per year for 15 yr", load=2000.0,
+                       start="start circular 35786 km"))
+    assert same["steps"][0]["dv_m_s"] == pytest.approx(750.0, rel=1e-12)
+    # priced by the rocket equation at its place, the orbit unchanged
+    assert line["propellant_kg"] == pytest.approx(2500.0 * -math.expm1(-0.75 / (300 * G0)),
+                                                  abs=1e-6)
+    assert line["orbit_after"]["periapsis_alt_km"] == pytest.approx(35786.0)
+
+
+def test_statistical_lines_combine_by_root_sum_square():
+    """30 and 40 m/s at 3 sigma make 50 m/s; a deterministic 10 m/s adds."""
+    rep = report(plan("allow a 30 m/s statistical", "allow det 10 m/s",
+                      "allow b 40 m/s statistical", load=500.0))
+    allow = rep["totals"]["allowances"]
+    assert allow["statistical_rss_m_s"] == pytest.approx(50.0)
+    assert allow["deterministic_m_s"] == pytest.approx(10.0)
+    assert rep["totals"]["dv_m_s"] == pytest.approx(60.0)
+    assert [s["dv_m_s"] for s in rep["steps"]] == pytest.approx([30 * 50 / 70, 10, 40 * 50 / 70])
+
+
+def test_residual_is_carried_but_never_burnt():
+    """With 10 % of 400 kg unusable the capacity is that of 360 kg."""
+    rep = report(plan(load=400.0, residual="10 %"))
+    tot = rep["totals"]
+    assert tot["residual_kg"] == pytest.approx(40.0) and tot["usable_kg"] == pytest.approx(360.0)
+    assert tot["dv_capacity_left_m_s"] == pytest.approx(
+        300 * G0 * 1000 * math.log(900.0 / 540.0), abs=1e-6)
+    # a burn the whole load would cover but the usable part does not
+    dv = 300 * G0 * math.log(900.0 / 520.0) * 1000
+    assert report(plan(f"burn b: along {dv:.3f} m/s", load=400.0,
+                       residual="10 %"))["feasible"] is False
+    assert report(plan(f"burn b: along {dv:.3f} m/s", load=400.0))["feasible"] is True
+
+
+def test_allowance_is_a_barrier_to_the_reorder_search():
+    from apsidal.compiler.reorder import is_barrier
+
+    program = load_text(plan("allow a 5 m/s", "allow b 5 m/s movable"))
+    assert [is_barrier(s) for s in program.steps] == [True, False]
+
+
+def test_sizing_needs_every_step_flown():
+    res = run(load_text(plan("burn big: along 2000 m/s")))
+    assert size(res).load == pytest.approx(500.0 * math.expm1(2.0 / (300 * G0)))
