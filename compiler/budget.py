@@ -128,6 +128,30 @@ def _check_dict(c, radius: float) -> dict:
     return out
 
 
+def shortfall_text(report: dict) -> str:
+    """Why a plan does not fit its load and what to add, in one sentence."""
+    tot = report["totals"]
+    first = tot["first_uncovered_step"]
+    if tot.get("exhausted_component"):
+        other = "fuel" if tot["exhausted_component"] == "oxidiser" else "oxidiser"
+        where = (f"the {tot['exhausted_component']} runs out at {first}, stranding "
+                 f"{tot['stranded_kg']:,.3f} kg of {other}")
+    elif first:
+        where = f"the load runs out at {first}"
+    else:
+        where = "every burn is covered but the reserve is not"
+    if "fuel_needed_kg" in tot:
+        adds = [f"{tot[k + '_shortfall_kg']:,.3f} kg of {k}" for k in ("fuel", "oxidiser")
+                if tot[k + "_shortfall_kg"] > 0]
+        return (f"{where}; it needs {tot['fuel_needed_kg']:,.3f} kg of fuel and "
+                f"{tot['oxidiser_needed_kg']:,.3f} kg of oxidiser (margins, residual and "
+                f"reserve included) and carries {tot['fuel_load_kg']:,.3f} kg and "
+                f"{tot['oxidiser_load_kg']:,.3f} kg: add " + " and ".join(adds))
+    return (f"{where}; it needs {tot['propellant_needed_kg']:,.3f} kg of propellant (margins, "
+            f"residual and reserve included) and carries {tot['load_kg']:,.3f} kg: add "
+            f"{tot['shortfall_kg']:,.3f} kg")
+
+
 def allowance_summary(program) -> dict | None:
     """Deterministic lines add, statistical (3-sigma) lines combine by root-sum-square
     (common practice in delta-v budgets); the total is what the chain prices."""
@@ -145,19 +169,32 @@ def allowance_summary(program) -> dict | None:
 
 def budget(result: Result) -> dict:
     """The whole report of one priced plan, as the JSON contract lays it out."""
+    from .components import components_needed, ledger
     from .size import size
 
     p = result.program
     mu, radius = p.body.gm, p.body.radius
     steps = [_step_dict(i + 1, row, mu, radius) for i, row in enumerate(result.rows)]
+    book = ledger(result)
+    short = result.first_uncovered
+    for k, parts in book.per_row.items():
+        if parts is not None:
+            steps[k]["fuel_kg"], steps[k]["oxidiser_kg"] = (finite(parts[0], 6),
+                                                            finite(parts[1], 6))
+        if not book.covered.get(k, True):
+            steps[k]["covered"] = False
+            if short is None or result.rows.index(short) > k:
+                short = result.rows[k]
     final = result.final
     ve = p.craft.default_engine.exhaust_speed
     craft = p.craft
     mass, left = float(final.mass[0]), float(final.propellant[0])
+    burnable = book.burnable_at_end(craft.default_engine.mixture)
+    if burnable is not None:
+        left = min(left, burnable)  # what the default engine can still burn of two stores
     # capacity from the usable propellant left (none when the load ran out)
     capacity = ve * math.log(mass / (mass - left)) if mass > left > 0 else 0.0
-    used = craft.usable - left
-    short = result.first_uncovered
+    used = craft.usable - float(final.propellant[0])
     sizing = size(result) if result.ok else None
     needed = sizing.load if sizing is not None else None
     # 10 um/s of slack: the sized load as printed (to the microgram) still fits
@@ -187,6 +224,27 @@ def budget(result: Result) -> dict:
     allow = allowance_summary(p)
     if allow is not None:
         totals["allowances"] = allow
+    if book.per_row and any(v is not None for v in book.per_row.values()) or craft.components:
+        totals["fuel_kg"] = finite(book.fuel_kg, 6)
+        totals["oxidiser_kg"] = finite(book.oxidiser_kg, 6)
+    if craft.components:
+        totals["fuel_load_kg"], totals["oxidiser_load_kg"] = craft.fuel, craft.oxidiser
+        totals["fuel_left_kg"] = finite(max(book.fuel_left_kg, 0.0), 6)
+        totals["oxidiser_left_kg"] = finite(max(book.oxidiser_left_kg, 0.0), 6)
+        totals["exhausted_component"] = book.exhausted
+        totals["stranded_kg"] = (finite(book.stranded_kg, 6)
+                                 if book.stranded_kg is not None else None)
+        if needed is not None:
+            f_need, o_need = components_needed(result, needed)
+            totals["fuel_needed_kg"], totals["oxidiser_needed_kg"] = (finite(f_need, 6),
+                                                                      finite(o_need, 6))
+            f_short = max(f_need - craft.fuel, 0.0)
+            o_short = max(o_need - craft.oxidiser, 0.0)
+            totals["fuel_shortfall_kg"] = 0.0 if feasible else finite(f_short, 6)
+            totals["oxidiser_shortfall_kg"] = 0.0 if feasible else finite(o_short, 6)
+            if not feasible:
+                totals["shortfall_kg"] = finite(max(f_short + o_short,
+                                                    totals["shortfall_kg"] or 0.0), 6)
     out = {
         "plan": p.title,
         "source": p.source.path,

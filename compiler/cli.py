@@ -14,7 +14,7 @@ import sys
 from apsidal.lang.errors import PlanError
 
 from . import bodies, check_cli, render, review_cli, size_cli
-from .budget import budget
+from .budget import budget, shortfall_text
 from .cliutil import (
     EXIT_BAD_INPUT,
     EXIT_FINDINGS,
@@ -38,10 +38,8 @@ def cmd_run(args) -> int:
         print(result.error.render(), file=sys.stderr)
         return EXIT_BAD_INPUT
     if not report["feasible"]:  # a budget result, not bad input: the full report, exit 1
-        tot = report["totals"]
-        print(f"apsidal: the plan does not fit its load: it needs "
-              f"{tot['propellant_needed_kg']:,.3f} kg and carries {tot['load_kg']:,.3f} kg "
-              f"(add {tot['shortfall_kg']:,.3f} kg)", file=sys.stderr)
+        print(f"apsidal: the plan does not fit its load: {shortfall_text(report)}",
+              file=sys.stderr)
         return EXIT_FINDINGS
     return EXIT_OK
 

@@ -185,22 +185,39 @@ class Lowerer:
         self.body = body
 
     def _craft(self, st: ast.CraftDef) -> None:
-        f = _fields(st.fields, ("dry", "propellant", "residual"), f"craft `{st.name.text}`")
-        for need in ("dry", "propellant"):
-            if need not in f:
-                raise _err(f"craft `{st.name.text}` needs `{need}`", st,
-                           f"add `{need} 100 kg` inside the braces")
-        dry, prop = f["dry"].value.internal(), f["propellant"].value.internal()
+        f = _fields(st.fields, ("dry", "propellant", "fuel", "oxidiser", "residual"),
+                    f"craft `{st.name.text}`")
+        if "dry" not in f:
+            raise _err(f"craft `{st.name.text}` needs `dry`", st,
+                       "add `dry 100 kg` inside the braces")
+        fuel = oxidiser = None
+        parts = [k for k in ("fuel", "oxidiser") if k in f]
+        if parts and "propellant" in f:
+            raise _err("a craft loads `propellant` or its components `fuel` and `oxidiser`, "
+                       "not both", f[parts[0]], "keep the components, or the total")
+        if len(parts) == 1:
+            other = "oxidiser" if parts[0] == "fuel" else "fuel"
+            raise _err(f"`{parts[0]}` needs `{other}` beside it", f[parts[0]],
+                       f"add `{other} 0 kg` if the craft carries none")
+        if parts:
+            fuel, oxidiser = f["fuel"].value.internal(), f["oxidiser"].value.internal()
+            prop = fuel + oxidiser
+        elif "propellant" not in f:
+            raise _err(f"craft `{st.name.text}` needs `propellant`", st,
+                       "add `propellant 100 kg` inside the braces (or `fuel` and `oxidiser`)")
+        else:
+            prop = f["propellant"].value.internal()
+        dry = f["dry"].value.internal()
         if not dry > 0:
             raise _err("the dry mass must be positive", f["dry"])
-        if prop < 0:
-            raise _err("the propellant mass cannot be negative", f["propellant"])
+        if prop < 0:  # the slots refuse negative masses; kept for a load built here
+            raise _err("the propellant mass cannot be negative", st)
         if not st.engines:
             raise _err(f"craft `{st.name.text}` has no engine", st,
                        "add `engine main isp 300 s thrust 400 N` inside the braces")
         engines = []
         for e in st.engines:
-            ef = _fields(e.fields, ("isp", "thrust"), f"engine `{e.name.text}`")
+            ef = _fields(e.fields, ("isp", "thrust", "mixture"), f"engine `{e.name.text}`")
             for need in ("isp", "thrust"):
                 if need not in ef:
                     raise _err(f"engine `{e.name.text}` needs `{need}`", e,
@@ -211,7 +228,8 @@ class Lowerer:
             if any(x.name == e.name.text for x in engines):
                 raise _err(f"engine `{e.name.text}` is defined twice", e.name,
                            "give each engine its own name, or remove one of the two lines")
-            engines.append(EngineSpec(e.name.text, isp, thrust))
+            mixture = ef["mixture"].value.internal() if "mixture" in ef else None
+            engines.append(EngineSpec(e.name.text, isp, thrust, mixture))
         residual_kg = residual_share = 0.0
         if "residual" in f:
             value = f["residual"].value
@@ -226,7 +244,12 @@ class Lowerer:
                     raise _err(f"the residual ({residual_kg:g} kg) is more than the load "
                                f"({prop:g} kg)", f["residual"],
                                "the residual is the part of the load that cannot be used")
-        self.craft = Craft(st.name.text, dry, prop, tuple(engines), residual_kg, residual_share)
+        if parts and not any(e.mixture for e in engines):
+            raise _err("a craft that loads fuel and oxidiser needs a two-component engine",
+                       f["fuel"], "give its main engine a `mixture` (oxidiser to fuel, e.g. "
+                       "`mixture 1.65`), or load `propellant` as one store")
+        self.craft = Craft(st.name.text, dry, prop, tuple(engines), residual_kg, residual_share,
+                           fuel, oxidiser)
 
     # --- the start orbit ---------------------------------------------------------------
 

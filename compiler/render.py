@@ -11,6 +11,8 @@ from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
+from .budget import shortfall_text
+
 
 def duration(seconds: float | None) -> str:
     """Elapsed time as a reader counts it.
@@ -98,13 +100,13 @@ def fit_lines(report: dict) -> list[str]:
                    f"{allow['deterministic_m_s']:,.1f} deterministic + "
                    f"{allow['statistical_rss_m_s']:,.1f} statistical (root-sum-square of "
                    f"{allow['statistical_sum_m_s']:,.1f})")
+    if "fuel_kg" in tot:
+        out.append(f"components           fuel {tot['fuel_kg']:,.2f} kg, oxidiser "
+                   f"{tot['oxidiser_kg']:,.2f} kg burnt")
     if not report.get("feasible", True) and tot.get("propellant_needed_kg") is not None:
-        first = tot["first_uncovered_step"]
-        out.append(f"DOES NOT FIT         needs {tot['propellant_needed_kg']:,.2f} kg, carries "
-                   f"{tot['load_kg']:,.2f} kg: add {tot['shortfall_kg']:,.2f} kg"
-                   + (f"; the load runs out at {first} (steps marked * are not covered, "
-                      "priced as if the tank held the rest)" if first else
-                      "; the reserve is not covered"))
+        out.append(f"DOES NOT FIT         {shortfall_text(report)}"
+                   + (" (steps marked * are not covered, priced as if the tanks held the "
+                      "rest)" if tot["first_uncovered_step"] else ""))
     return out
 
 

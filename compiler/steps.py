@@ -23,6 +23,7 @@ class EngineSpec:
     name: str
     isp: float  # s
     thrust: float  # N
+    mixture: float | None = None  # oxidiser-to-fuel mass ratio of a two-component engine
 
     @property
     def exhaust_speed(self) -> float:
@@ -38,6 +39,13 @@ class Craft:
     engines: tuple[EngineSpec, ...]
     residual_kg: float = 0.0  # propellant that cannot be used, as a mass
     residual_share: float = 0.0  # ... or as a share of the load
+    fuel: float | None = None  # kg, when the craft loads its components apart
+    oxidiser: float | None = None
+
+    @property
+    def components(self) -> bool:
+        """Fuel and oxidiser are loaded (and tracked) apart."""
+        return self.fuel is not None
 
     def residual_of(self, load: float) -> float:
         """The unusable part of a load (kg)."""

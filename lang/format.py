@@ -47,8 +47,8 @@ COMMENT_GAP = 2  # spaces before a trailing comment
 # Canonical keyword order of the fields of each block and of the trailing step options.
 FIELD_ORDER = {
     ast.BodyDef: ("gm", "radius", "soi", "j2"),
-    ast.CraftDef: ("dry", "propellant", "residual"),
-    ast.Engine: ("isp", "thrust"),
+    ast.CraftDef: ("dry", "propellant", "fuel", "oxidiser", "residual"),
+    ast.Engine: ("isp", "thrust", "mixture"),
     ast.Start: ("circular", "periapsis", "apoapsis", "sma", "ecc", "vinf",
                 "inclination", "raan", "argp", "anomaly"),
 }

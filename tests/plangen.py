@@ -114,6 +114,8 @@ def _scene(draw, d: Draft) -> tuple[Orbit, list[str]]:
         names.append("aux")
     propellant = draw(st.sampled_from((("1e7", "kg"), ("10000000", "kg"), ("10000", "t"))))
     items = [["dry", q("10", "kg")], ["propellant", q(*propellant)]]
+    if draw(st.booleans()):
+        items.append(["residual", draw(st.sampled_from((q("2", "%"), q("1", "kg"))))])
     craft = Statement(["craft", "ship", "{"], draw(st.permutations(items)) + engines)
     scene.append(craft)
     if draw(st.booleans()):
@@ -151,7 +153,7 @@ def _options(draw, engines: list[str]) -> list:
 def _step(draw, names: _Names, orbit: Orbit, engines: list[str], heavy: list[int]):
     """One step that can be flown from ``orbit``; updates ``orbit``."""
     low = 300.0 + orbit.drift
-    kinds = ["coast", "drop", "expect", "vector", "apoapsis", "circularise"]
+    kinds = ["coast", "drop", "expect", "vector", "apoapsis", "circularise", "allow"]
     if orbit.apoapsis - 300.0 - orbit.drift > low:
         kinds.append("periapsis")
     if heavy[0] < 3:
@@ -169,6 +171,13 @@ def _step(draw, names: _Names, orbit: Orbit, engines: list[str], heavy: list[int
         return ["coast", *name, str(draw(st.integers(1, 3))), "rev"]
     if kind == "drop":
         return ["drop", *name, q(draw(numbers(0.1, 0.5, 1)), "kg")]
+    if kind == "allow":
+        words = ["allow", *name, q(draw(numbers(0, 30, 1)), "m/s")]
+        if draw(st.booleans()):
+            words += ["per", "year", "for", q(draw(numbers(1, 15, 0)), "yr")]
+        if draw(st.booleans()):
+            words.append("statistical")
+        return [*words, *_options(draw, engines)]
     if kind == "expect":
         checks = draw(st.lists(st.sampled_from((
             ["mass", "at", "least", q("1", "kg")],

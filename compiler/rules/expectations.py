@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from ..budget import shortfall_text
 from ..check import Checker, Finding, rule
 from ..evaluate import start_batch
 from ..render import check_text
@@ -58,13 +59,9 @@ def propellant_exhausted(c: Checker) -> list[Finding]:
     if c.report["feasible"] or tot["propellant_needed_kg"] is None:
         return []
     first = tot["first_uncovered_step"]
-    where = (f"the load runs out at {first}" if first else
-             "every burn is covered but the reserve is not")
     return [Finding("propellant-exhausted", "error", (first,) if first else (),
-                    f"the plan does not fit its load: {where}; it needs "
-                    f"{tot['propellant_needed_kg']:,.3f} kg of propellant (margins, "
-                    f"residual and reserve included) and carries {tot['load_kg']:,.3f} kg: "
-                    f"add {tot['shortfall_kg']:,.3f} kg, or find delta-v to cut")]
+                    f"the plan does not fit its load: {shortfall_text(c.report)}, or find "
+                    "delta-v to cut")]
 
 
 @rule("beyond-sphere-of-influence")
