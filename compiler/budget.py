@@ -190,10 +190,10 @@ def budget(result: Result) -> dict:
     craft = p.craft
     mass, left = float(final.mass[0]), float(final.propellant[0])
     burnable = book.burnable_at_end(craft.default_engine.mixture)
-    if burnable is not None:
-        left = min(left, burnable)  # what the default engine can still burn of two stores
+    # what the default engine can still burn: of two stores, the part left in its ratio
+    fire = left if burnable is None else min(left, burnable)
     # capacity from the usable propellant left (none when the load ran out)
-    capacity = ve * math.log(mass / (mass - left)) if mass > left > 0 else 0.0
+    capacity = ve * math.log(mass / (mass - fire)) if mass > fire > 0 else 0.0
     used = craft.usable - float(final.propellant[0])
     sizing = size(result) if result.ok else None
     needed = sizing.load if sizing is not None else None
@@ -231,6 +231,7 @@ def budget(result: Result) -> dict:
         totals["fuel_load_kg"], totals["oxidiser_load_kg"] = craft.fuel, craft.oxidiser
         totals["fuel_left_kg"] = finite(max(book.fuel_left_kg, 0.0), 6)
         totals["oxidiser_left_kg"] = finite(max(book.oxidiser_left_kg, 0.0), 6)
+        totals["burnable_left_kg"] = finite(max(fire, 0.0), 6)
         totals["exhausted_component"] = book.exhausted
         totals["stranded_kg"] = (finite(book.stranded_kg, 6)
                                  if book.stranded_kg is not None else None)

@@ -205,8 +205,8 @@ def goto(place: Place, r, v, mu, fails: Failures, sweep=None):
     """
     if place.kind == "here":
         return r, v, np.zeros(r.shape[0])
-    if place.kind == "crossing":
-        d = np.where((sweep < HERE_TOL) | (sweep > TWO_PI - HERE_TOL), 0.0, sweep)
+    if place.kind == "crossing":  # exact geometry: no snapping of small angles to here
+        d = np.where(sweep > TWO_PI - 1e-15, 0.0, sweep)
     else:
         d = _target_angle(place, r, v, mu, fails)
     dt, ok_t = kepler.time_of_flight(r, v, mu, d)

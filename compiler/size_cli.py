@@ -9,7 +9,7 @@ from __future__ import annotations
 import json
 import sys
 
-from .budget import CAUTION
+from .budget import CAUTION, budget
 from .cliutil import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_OK, console
 from .evaluate import run
 from .load import load
@@ -21,18 +21,22 @@ def sizing_report(result) -> dict:
     craft = p.craft
     s = size(result)
     needed = s.load
-    return {
+    tot = budget(result)["totals"]
+    parts = {k: tot[k] for k in ("fuel_needed_kg", "oxidiser_needed_kg", "fuel_load_kg",
+                                 "oxidiser_load_kg", "fuel_shortfall_kg",
+                                 "oxidiser_shortfall_kg") if k in tot}
+    return {**parts,
         "plan": p.title,
         "source": p.source.path,
         "propellant_needed_kg": needed,
         "load_kg": craft.propellant,
-        "shortfall_kg": None if needed is None else max(needed - craft.propellant, 0.0),
+        "shortfall_kg": tot["shortfall_kg"],
         "spare_kg": None if needed is None else max(craft.propellant - needed, 0.0),
         "dry_kg": craft.dry,
         "dry_max_kg": s.dry_max,
         "residual_kg_at_needed_load": (None if needed is None else craft.residual_of(needed)),
         "reserve_m_s": p.reserve * 1000.0,
-        "feasible": needed is not None and needed <= craft.propellant * (1 + 1e-12) + 1e-9,
+        "feasible": budget(result)["feasible"],
         "why": s.why,
         "caution": CAUTION,
     }
@@ -55,7 +59,13 @@ def cmd_size(args) -> int:
             out.print(f"  propellant needed   {rep['propellant_needed_kg']:,.3f} kg "
                       "(margins, residual and reserve included)")
             out.print(f"  propellant loaded   {rep['load_kg']:,.3f} kg")
-            if rep["shortfall_kg"] > 0:
+            for k in ("fuel", "oxidiser"):
+                if f"{k}_needed_kg" in rep:
+                    out.print(f"  {k + ' needed':<19} {rep[k + '_needed_kg']:,.3f} kg, loaded "
+                              f"{rep[k + '_load_kg']:,.3f} kg"
+                              + (f", short by {rep[k + '_shortfall_kg']:,.3f} kg"
+                                 if rep[k + "_shortfall_kg"] else ""))
+            if not rep["feasible"]:
                 out.print(f"  short by            {rep['shortfall_kg']:,.3f} kg: the plan "
                           "does not fit")
             else:

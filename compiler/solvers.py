@@ -254,7 +254,8 @@ def _tangential_speeds(rmag, vr0, vt0, mu, R, which, alt, failures):
     return speed * np.where(here, 0.0, sing), speed * np.where(here, 1.0, cosg)
 
 
-PLANE_TOL = 1e-7  # rad: how far off a named plane the position may be (6e-6 deg)
+PLANE_TOL = 1e-7  # rad: how far off a named plane the position may be (6e-6 deg), times
+                  # sin(i) for a plane near the equator, where the node is sensitive
 
 
 def target_plane(r, v, inclination, raan):
@@ -310,7 +311,10 @@ def normal_for(r, v, inclination, raan, failures: Failures):
         target = target_plane(r, v, inclination, raan)
         inc = np.arccos(np.clip(target[:, 2], -1.0, 1.0))
         off = dot(target, rhat)
-        miss = np.abs(off) > PLANE_TOL
+        # an error d in the normal moves the node by d / sin(i): near the equator the
+        # position must be closer to the plane for the node to be met as well
+        tol = np.maximum(PLANE_TOL * np.minimum(1.0, np.sin(inc)), 1e-12)
+        miss = np.abs(off) > tol
         what = "" if inclination is not None else " (the inclination kept)"
         failures.add(miss, lambda i: (
             (f"the plane with inclination {np.degrees(inc[i]):.4f} deg and raan "

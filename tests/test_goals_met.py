@@ -468,3 +468,18 @@ def test_every_goal_is_met_or_refused_with_a_located_error(start, goal):
         assert abs(math.degrees(el["i"]) - inc) <= max(REL * inc, 1e-7), (line, el["i"])
     if raan is not None and 1e-6 < el["i"] < math.pi - 1e-6:
         assert _angle_close(math.degrees(el["raan"]), raan, max(REL * raan, 1e-6)), line
+
+
+def test_a_plane_near_the_equator_keeps_its_node_at_the_crossing():
+    """Found by the property above: a node error is the normal's error over sin(i), so a
+    burn a hair off the crossing of a near-equatorial plane lost the whole node."""
+    res = fly(plan("start circular 300 km inclination 28.5 deg",
+                   "burn b at crossing: inclination to 0.0039 deg, raan to 0.0004 deg"))
+    el = final(res)
+    assert math.degrees(el["raan"]) == pytest.approx(0.0004, rel=1e-6)
+    assert math.degrees(el["i"]) == pytest.approx(0.0039, rel=1e-6)
+    # by hand a thousandth of a degree off, the node would be missed: refused instead
+    with pytest.raises(PlanError) as err:
+        fly(plan("start circular 300 km inclination 28.5 deg",
+                 "burn b at anomaly 0.001 deg: inclination to 0.0039 deg, raan to 0.0004 deg"))
+    assert "at crossing" in err.value.hint
