@@ -278,3 +278,28 @@ def test_a_one_component_engine_of_a_two_store_craft_draws_the_fuel():
     b = rep["steps"][1]
     assert b["fuel_kg"] == pytest.approx(b["propellant_kg"], abs=1e-9)
     assert b["oxidiser_kg"] == 0.0
+
+
+def test_check_runs_every_rule_on_a_plan_that_does_not_fit_and_names_the_rewrite_that_fits(
+        tmp_path, capsys):
+    """The low plane change flown before the raise: the reordered plan needs less than
+    the load carried, the original more; check says which rewrite makes it fit, and the
+    rewrite, re-parsed and re-priced, does fit."""
+    steps = ("burn plane at node: inclination to 0 deg",
+             "burn raise at periapsis: apoapsis to 35786 km", "burn circ at apoapsis: circular")
+    reordered = (steps[1], steps[2], "burn plane at node: inclination to 0 deg")
+    start = "start circular 300 km inclination 28.5 deg"
+    kw = {"start": start, "isp": 320.0}
+    high = report(plan(*steps, **kw))["totals"]["propellant_needed_kg"]
+    low = report(plan(*reordered, **kw))["totals"]["propellant_needed_kg"]
+    assert low < high
+    path = tmp_path / "tight.aps"
+    path.write_text(plan(*steps, load=(low + high) / 2, **kw))
+    assert main(["check", str(path), "--format", "json"]) == 1
+    found = json.loads(capsys.readouterr().out)["plans"][0]["findings"]
+    rules = [f["rule"] for f in found]
+    assert "propellant-exhausted" in rules
+    fits = [f for f in found if "with this rewrite the plan fits its load" in f["notes"]]
+    assert fits
+    for f in fits:
+        assert report(f["suggestion"])["feasible"] is True
