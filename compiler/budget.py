@@ -222,6 +222,7 @@ def budget(result: Result) -> dict:
         "dry_max_kg": finite(sizing.dry_max, 6) if sizing and sizing.dry_max else None,
     }
     allow = allowance_summary(p)
+    totals["allowances_m_s"] = allow["total_m_s"] if allow else 0.0
     if allow is not None:
         totals["allowances"] = allow
     if book.per_row and any(v is not None for v in book.per_row.values()) or craft.components:

@@ -262,9 +262,10 @@ def check_program(program: Program, rules: Iterable[Rule] | None = None,
     out: list[Finding] = []
     seen: set[str] = set()
     chosen = list(RULES if rules is None else rules)
-    from .rules.expectations import propellant_exhausted
-    if propellant_exhausted not in chosen:  # a plan that does not fit is never clean
-        chosen.insert(0, propellant_exhausted)
+    from .rules.expectations import propellant_exhausted, reserve_not_covered
+    for always in (reserve_not_covered, propellant_exhausted):  # never clean if it does not fit
+        if always not in chosen:
+            chosen.insert(0, always)
     for rule in chosen:
         if not result.ok and getattr(rule, "needs_flyable", True):
             continue

@@ -22,6 +22,9 @@ TOTALS = (
     ("dv_capacity_left_m_s", "delta-v capacity left", "m/s", 1),
     ("elapsed_s", "elapsed", "s", 1),
     ("reserve_m_s", "reserve", "m/s", 1),
+    ("allowances_m_s", "allowances (priced)", "m/s", 1),
+    ("fuel_kg", "fuel burnt", "kg", 2),
+    ("oxidiser_kg", "oxidiser burnt", "kg", 2),
     ("residual_kg", "residual (unusable)", "kg", 2),
     ("propellant_needed_kg", "propellant needed", "kg", 2),
     ("shortfall_kg", "shortfall", "kg", 2),
@@ -57,12 +60,21 @@ def _total_cells(diff: dict, key: str, digits: int, unit: str) -> tuple[str, str
             f"{signed(ch, digits)} {unit}")
 
 
+def shown_totals(diff: dict):
+    """The total rows that have a value on either side (no fuel rows without components)."""
+    return [t for t in TOTALS
+            if diff["old"].get(t[0]) is not None or diff["new"].get(t[0]) is not None]
+
+
 def headline(diff: dict) -> str:
     """The budget change in one line: ``+38.2 m/s delta-v with margin, +7.9 kg
     propellant``."""
     ch = diff["change"]
     dv, kg = ch.get("dv_with_margin_m_s"), ch.get("propellant_kg")
     fit = fit_change(diff)
+    reserve = ch.get("reserve_m_s")
+    if signed(reserve, 1) != "0":
+        fit += f"reserve {signed(reserve, 1)} m/s; "
     if signed(dv, 1) == "0" and signed(kg, 2) == "0":
         return fit + "no change to delta-v or propellant"
     return fit + f"{signed(dv, 1)} m/s delta-v with margin, {signed(kg, 2)} kg propellant"
@@ -98,7 +110,7 @@ def _where(entry: dict) -> str:
 def _step_cells(entry: dict) -> list[str]:
     side = entry["new"] or entry["old"]
     ch = entry["change"]
-    burn = side["kind"] == "burn"
+    burn = side["kind"] in ("burn", "allow")
     if not burn and not (entry["old"] and entry["old"]["kind"] == "burn"):
         return ["", "", "", "", "", ""]
     now = entry["new"] or {}
@@ -148,7 +160,7 @@ def table(diff: dict, console: Console, old_label: str, new_label: str) -> None:
     tot = Table(box=box.SIMPLE_HEAVY)
     for col in ("total", old_label, new_label, "change"):
         tot.add_column(col, justify="left" if col == "total" else "right")
-    for key, label, unit, digits in TOTALS:
+    for key, label, unit, digits in shown_totals(diff):
         tot.add_row(label, *_total_cells(diff, key, digits, unit))
     console.print(tot)
     lines = _findings_lines(diff)
@@ -180,7 +192,7 @@ def markdown(diff: dict, old_label: str, new_label: str) -> str:
         out.append("No step changed.")
     out += ["", _md_row(["total", f"`{old_label}`", f"`{new_label}`", "change"]),
             "|---|--:|--:|--:|"]
-    for key, label, unit, digits in TOTALS:
+    for key, label, unit, digits in shown_totals(diff):
         out.append(_md_row([label, *_total_cells(diff, key, digits, unit)]))
     lines = _findings_lines(diff)
     if lines:
@@ -202,7 +214,7 @@ def budget_text(report: dict) -> str:
     """
     lines = ["", "# ---- budget computed by apsidal (not part of the file) ----"]
     for s in report["steps"]:
-        if s["kind"] == "burn":
+        if s["kind"] in ("burn", "allow"):
             facts = (f"{s['dv_m_s']:.1f} m/s, {s['dv_with_margin_m_s']:.1f} m/s with margin, "
                      f"{s['propellant_kg']:.2f} kg, engine {s.get('engine', '-')}")
         elif s["kind"] == "expect":
@@ -211,7 +223,7 @@ def budget_text(report: dict) -> str:
         else:
             facts = f"mass after {s['mass_after_kg']:.2f} kg"
         lines.append(f"# {s['kind']} {s['name']} ({s['at']}): {facts}")
-    for key, label, unit, digits in TOTALS:
+    for key, label, unit, digits in shown_totals({"old": {}, "new": report["totals"]}):
         value = report["totals"].get(key)
         shown = duration(value) if key == "elapsed_s" else f"{_plain(value, digits)} {unit}"
         lines.append(f"# total {label}: {shown}")

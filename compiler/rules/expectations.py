@@ -39,9 +39,11 @@ def reserve_not_covered(c: Checker) -> list[Finding]:
     tot = c.report["totals"]
     if tot["reserve_met"] or tot["first_uncovered_step"] is not None:
         return []  # a load that runs out is the propellant finding's
+    add = (f"; the load that covers it is {tot['propellant_needed_kg']:,.3f} kg: add "
+           f"{tot['shortfall_kg']:,.3f} kg" if tot.get("propellant_needed_kg") else "")
     return [Finding("reserve-not-covered", "error", (),
                     f"the plan ends with {tot['dv_capacity_left_m_s']:.1f} m/s of delta-v "
-                    f"capacity, less than its reserve of {tot['reserve_m_s']:.1f} m/s")]
+                    f"capacity, less than its reserve of {tot['reserve_m_s']:.1f} m/s{add}")]
 
 
 @rule("propellant-exhausted", needs_flyable=False)
@@ -56,8 +58,8 @@ def propellant_exhausted(c: Checker) -> list[Finding]:
     whatever `--rule` selects: a plan that does not fit is never reported clean.
     """
     tot = c.report["totals"]
-    if c.report["feasible"] or tot["propellant_needed_kg"] is None:
-        return []
+    if c.report["feasible"] or tot["first_uncovered_step"] is None:
+        return []  # a reserve the load does not cover is reserve-not-covered's
     first = tot["first_uncovered_step"]
     return [Finding("propellant-exhausted", "error", (first,) if first else (),
                     f"the plan does not fit its load: {shortfall_text(c.report)}, or find "
