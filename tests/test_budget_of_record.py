@@ -310,14 +310,14 @@ def test_diff_shows_reserve_and_allowances_and_a_fit_lost(tmp_path, capsys):
                 load=400.0, reserve="25 m/s")
     old, new = tmp_path / "old.aps", tmp_path / "new.aps"
     old.write_text(text)
-    new.write_text(text.replace("reserve 25 m/s", "reserve 600 m/s")
+    new.write_text(text.replace("reserve 25 m/s", "reserve 1500 m/s")
                    .replace("for 2 yr", "for 3 yr"))
     code = main(["diff", str(old), str(new), "--format", "json", "--no-findings"])
     d = json.loads(capsys.readouterr().out)
     assert code == 1 and d["feasible"] == {"old": True, "new": False}
-    assert d["change"]["reserve_m_s"] == pytest.approx(575.0)
+    assert d["change"]["reserve_m_s"] == pytest.approx(1475.0)
     assert d["change"]["allowances_m_s"] == pytest.approx(20.0)
     main(["diff", str(old), str(new), "--format", "markdown", "--no-findings"])
     out = capsys.readouterr().out
-    assert "no longer fits" in out and "reserve +575.0 m/s" in out
+    assert "no longer fits" in out and "reserve +1,475.0 m/s" in out
     assert "| reserve |" in out and "| allowances (priced) |" in out
