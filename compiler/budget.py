@@ -132,6 +132,8 @@ def shortfall_text(report: dict) -> str:
     """Why a plan does not fit its load and what to add, in one sentence."""
     tot = report["totals"]
     first = tot["first_uncovered_step"]
+    if tot.get("no_load_fits"):
+        return f"no load flies it: {tot['no_load_fits']}"
     if tot.get("exhausted_component"):
         other = "fuel" if tot["exhausted_component"] == "oxidiser" else "oxidiser"
         where = (f"the {tot['exhausted_component']} runs out at {first}, stranding "
@@ -220,6 +222,7 @@ def budget(result: Result) -> dict:
         if needed is not None else None,
         "first_uncovered_step": short.name if short is not None else None,
         "dry_max_kg": finite(sizing.dry_max, 6) if sizing and sizing.dry_max else None,
+        "no_load_fits": sizing.why if sizing is not None else None,
     }
     allow = allowance_summary(p)
     totals["allowances_m_s"] = allow["total_m_s"] if allow else 0.0

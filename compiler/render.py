@@ -103,7 +103,7 @@ def fit_lines(report: dict) -> list[str]:
     if "fuel_kg" in tot:
         out.append(f"components           fuel {tot['fuel_kg']:,.2f} kg, oxidiser "
                    f"{tot['oxidiser_kg']:,.2f} kg burnt")
-    if not report.get("feasible", True) and tot.get("propellant_needed_kg") is not None:
+    if not report.get("feasible", True) and "error" not in report:
         out.append(f"DOES NOT FIT         {shortfall_text(report)}"
                    + (" (steps marked * are not covered, priced as if the tanks held the "
                       "rest)" if tot["first_uncovered_step"] else ""))

@@ -75,8 +75,10 @@ def _size(seq, dry, reserve, ve0, residual_kg, residual_share, load) -> Sizing:
     dry_end = dry - dropped
     denominator = 1.0 - G * residual_share
     if denominator <= 0.0:
-        return Sizing(None, None, (f"the residual share ({residual_share * 100:g} %) is more "
-                                   f"than the plan's mass ratio allows (1/{G:.6g})"))
+        return Sizing(None, None, (f"a residual of {residual_share * 100:g} % of the load is "
+                                   f"more than the plan's mass ratio {G:.6g} allows (at most "
+                                   f"{100 / G:.4g} %): every kilogram added strands more "
+                                   "than it gives"))
     need = (G * (dry_end + residual_kg) + tail - dry) / denominator
     dry_max = None
     if load is not None and G > 1.0:

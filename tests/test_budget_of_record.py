@@ -140,7 +140,11 @@ def test_sizing_property_forward_run_lands_on_the_reserve(items, share, reserve)
     steps = [f"burn b{i}: {x}" if x.startswith("along") else f"drop d{i} {x[5:]}"
              for i, x in enumerate(items)]
     kw = {"dry": 800.0, "residual": f"{share * 100:.4f} %", "reserve": f"{reserve:.4f} m/s"}
-    need = report(plan(*steps, load=10.0, **kw))["totals"]["propellant_needed_kg"]
+    first = report(plan(*steps, load=10.0, **kw))
+    need = first["totals"]["propellant_needed_kg"]
+    if need is None:  # the residual share is more than the mass ratio allows: said so
+        assert first["feasible"] is False and "residual" in first["totals"]["no_load_fits"]
+        return
     rep = report(plan(*steps, load=need + 1e-6, **kw))
     assert rep["feasible"]
     assert rep["totals"]["dv_capacity_left_m_s"] == pytest.approx(reserve, abs=1e-4)
@@ -321,3 +325,16 @@ def test_diff_shows_reserve_and_allowances_and_a_fit_lost(tmp_path, capsys):
     out = capsys.readouterr().out
     assert "no longer fits" in out and "reserve +1,475.0 m/s" in out
     assert "| reserve |" in out and "| allowances (priced) |" in out
+
+
+def test_a_transfer_that_runs_out_names_its_burn_and_keeps_its_split():
+    """The split of a shared plane change is geometry: the same whatever the load."""
+    steps = ("transfer t at node: circular 35786 km, inclination to 0 deg",)
+    kw = {"start": "start circular 300 km inclination 28.5 deg"}
+    full = report(plan(*steps, load=20000.0, **kw))
+    short = report(plan(*steps, load=full["totals"]["propellant_needed_kg"] * 0.995, **kw))
+    assert short["totals"]["first_uncovered_step"] == "t/2"
+    assert [s["covered"] for s in short["steps"]] == [True, False]
+    for a, b in zip(full["steps"], short["steps"]):
+        assert b["dv_m_s"] == pytest.approx(a["dv_m_s"], abs=1e-6)
+        assert b["vector_m_s"] == pytest.approx(a["vector_m_s"], abs=1e-6)

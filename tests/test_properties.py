@@ -317,7 +317,7 @@ def plan_texts(draw):
 # Numbers that may be empty (None), and when.
 MAY_BE_NONE = {"apoapsis_alt_km", "period_s", "line", "column", "hint", "tolerance", "actual",
                "actual_apoapsis", "reason", "first_uncovered_step", "propellant_needed_kg",
-               "shortfall_kg", "dry_max_kg"}
+               "shortfall_kg", "dry_max_kg", "no_load_fits", "exhausted_component", "stranded_kg"}
 
 
 def _walk(node, path=()):
