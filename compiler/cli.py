@@ -32,7 +32,7 @@ def cmd_run(args) -> int:
     result = evaluate(program)
     report = budget(result)
     report["findings"] = [f.as_dict() for f in self_consistency(program, result)]
-    emit_report(report, args.format)
+    emit_report(report, args.format, args.columns)
     if result.error is not None:
         print(result.error.render(), file=sys.stderr)
         return EXIT_BAD_INPUT
@@ -53,7 +53,7 @@ def self_consistency(program, result):
             for f in rule(checker)]
 
 
-def emit_report(report: dict, fmt: str) -> None:
+def emit_report(report: dict, fmt: str, columns: str | None = None) -> None:
     if fmt == "json":
         sys.stdout.write(render.to_json(report) + "\n")
     elif fmt == "markdown":
@@ -61,7 +61,7 @@ def emit_report(report: dict, fmt: str) -> None:
     elif fmt == "csv":
         sys.stdout.write(render.to_csv(report))
     else:
-        render.table(report, console())
+        render.table(report, console(), columns)
 
 
 def cmd_bodies(args) -> int:
@@ -88,6 +88,10 @@ def build_parser() -> Parser:
     run.add_argument("plan", help="plan file (.aps)")
     run.add_argument("--format", choices=("table", "json", "markdown", "csv"),
                      default="table")
+    run.add_argument("--columns", metavar="LIST", default=None,
+                     help="table columns to show: `all`, or names separated by commas ("
+                     + ", ".join(render.COLUMN_KEYS) + "); by default the columns that "
+                     "fit the terminal, the least needed giving way first")
     run.set_defaults(func=cmd_run)
     bod = sub.add_parser("bodies", help="list the body catalogue and its sources")
     bod.set_defaults(func=cmd_bodies)

@@ -33,9 +33,16 @@ class Parser(argparse.ArgumentParser):
 
 
 def console(stream=None) -> Console:
+    """The console of the screens: the terminal's width, or for a pipe or file ``COLUMNS``
+    (100 when unset), so what a script captures is what a 100-column terminal shows."""
     out = stream or sys.stdout
-    return Console(file=out, highlight=False, soft_wrap=False,
-                   width=None if out.isatty() else 160)
+    width = None
+    if not out.isatty():
+        try:
+            width = int(os.environ.get("COLUMNS", "")) or 100
+        except ValueError:
+            width = 100
+    return Console(file=out, highlight=False, soft_wrap=False, width=width)
 
 
 def write_atomic(path: str | Path, text: str) -> None:

@@ -1,0 +1,115 @@
+"""What a terminal shows: the budget table at 80, 100 and 120 columns, one step a line.
+
+Rendered with rich's ``Console(width=...)`` as a terminal of that width would; a row that
+wrapped would show as more table lines than steps, or a line past the width.
+"""
+
+from __future__ import annotations
+
+import io
+from pathlib import Path
+
+import pytest
+from apsidal.compiler.budget import budget
+from apsidal.compiler.cli import main
+from apsidal.compiler.evaluate import run
+from apsidal.compiler.load import load, load_text
+from apsidal.compiler.render import STEP_COLUMNS, fit, table
+from rich.console import Console
+
+SAMPLES = sorted((Path(__file__).parent.parent / "samples").glob("*.aps"))
+
+
+def long_plan(n: int = 200) -> str:
+    """A plan of ``n`` steps with long names: raise and lower the apoapsis, coast between."""
+    lines = ['plan "Two hundred steps"', "around earth",
+             "craft hauler {", "    dry 2000 kg", "    propellant 90000 kg",
+             "    engine main isp 320 s thrust 22 kN", "}", "start circular 400 km"]
+    for k in range(n // 2):
+        goal = "apoapsis to 2000 km" if k % 2 == 0 else "apoapsis to 400 km"
+        at = "periapsis" if k % 2 == 0 else "apoapsis"
+        lines.append(f"burn adjust-apoapsis-{k:03d} at {at}: {goal}")
+        lines.append(f"coast settle-{k:03d} 1 rev")
+    return "\n".join(lines) + "\n"
+
+
+def screen(report: dict, width: int, columns: str | None = None) -> str:
+    buf = io.StringIO()
+    table(report, Console(file=buf, width=width, color_system=None, highlight=False),
+          columns)
+    return buf.getvalue()
+
+
+def table_rows(text: str, report: dict) -> list[str]:
+    """The table's body lines: from the rule under the headings to the first blank line."""
+    lines = text.splitlines()
+    start = next(i for i, ln in enumerate(lines) if set(ln.strip()) == {"─"}) + 1
+    end = next(i for i in range(start, len(lines)) if not lines[i].strip()
+               or lines[i].startswith("total delta-v"))
+    return lines[start:end]
+
+
+def reports():
+    out = [(p.stem, budget(run(load(str(p))))) for p in SAMPLES]
+    out.append(("200 steps", budget(run(load_text(long_plan(), "long.aps")))))
+    return out
+
+
+@pytest.fixture(scope="module", params=reports(), ids=lambda r: r[0])
+def report(request):
+    return request.param[1]
+
+
+@pytest.mark.parametrize("width", [80, 100, 120])
+def test_one_step_a_line_within_the_width(report, width):
+    text = screen(report, width)
+    rows = table_rows(text, report)
+    assert len(rows) == len(report["steps"])
+    for row, step in zip(rows, report["steps"]):
+        assert len(row) <= width
+        assert row.split()[0] == str(step["index"]) and step["name"] in row
+        assert "…" not in row
+    for line in text.splitlines():
+        assert len(line) <= width, line
+
+
+def test_at_100_columns_the_money_columns_stay(report):
+    rows = table_rows(screen(report, 100), report)
+    head = screen(report, 100)
+    for heading in ("Δv", "propellant", "orbit after"):
+        assert heading in head
+    burn = next(s for s in report["steps"] if s["kind"] == "burn")
+    row = rows[burn["index"] - 1]
+    from apsidal.compiler.textfmt import sig
+
+    assert sig(burn["dv_m_s"]) in row and sig(burn["propellant_kg"]) in row
+
+
+def test_columns_give_way_by_priority(report):
+    kept = {}
+    for width in (80, 100, 120, 200):
+        con = Console(file=io.StringIO(), width=width)
+        t, need = fit(con, None, STEP_COLUMNS, report["steps"])
+        kept[width] = [c.header for c in t.columns]
+        assert need <= width or all(
+            c.priority == 0 for c in STEP_COLUMNS if c.heading in kept[width])
+    for narrow, wide in ((80, 100), (100, 120), (120, 200)):
+        assert set(kept[narrow]) <= set(kept[wide])
+    never = [c.heading for c in STEP_COLUMNS if c.priority == 0]
+    assert all(h in kept[80] for h in never)
+
+
+def test_columns_all_shows_every_column_unwrapped(report):
+    text = screen(report, 80, "all")
+    rows = table_rows(text, report)
+    assert len(rows) == len(report["steps"])
+    for c in STEP_COLUMNS:
+        assert c.heading.split()[0] in text
+
+
+def test_columns_by_name(capsys):
+    assert main(["run", str(SAMPLES[0]), "--columns", "dv,propellant"]) == 0
+    out = capsys.readouterr().out
+    assert "Δv" in out and "propellant" in out and "mass" not in out and "polar/1" in out
+    assert main(["run", str(SAMPLES[0]), "--columns", "dv,fuel"]) == 2
+    assert "no column `fuel`" in capsys.readouterr().err
