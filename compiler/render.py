@@ -149,18 +149,17 @@ def check_text(c: dict) -> str:
 
 
 def total_lines(tot: dict) -> list[str]:
-    lines = [
-        f"total delta-v        {sig(tot['dv_m_s'])} m/s "
-        f"({sig(tot['dv_with_margin_m_s'])} m/s with margin)",
-        f"propellant used      {sig(tot['propellant_kg'])} kg, "
-        f"left {sig(tot['propellant_left_kg'])} kg",
+    reserve = "covered" if tot["reserve_met"] else "NOT covered"
+    return [
+        (f"total delta-v        {sig(tot['dv_m_s'])} m/s "
+         f"({sig(tot['dv_with_margin_m_s'])} m/s with margin)"),
+        (f"propellant used      {sig(tot['propellant_kg'])} kg, "
+         f"left {sig(tot['propellant_left_kg'])} kg"),
         f"final mass           {sig(tot['final_mass_kg'])} kg",
-        f"delta-v capacity     {sig(tot['dv_capacity_left_m_s'])} m/s left "
-        f"(reserve {sig(tot['reserve_m_s'])} m/s: "
-        f"{'covered' if tot['reserve_met'] else 'NOT covered'})",
+        (f"delta-v capacity     {sig(tot['dv_capacity_left_m_s'])} m/s left "
+         f"(reserve {sig(tot['reserve_m_s'])} m/s: {reserve})"),
         f"elapsed              {duration(tot['elapsed_s'])}",
     ]
-    return lines
 
 
 def table(report: dict, console, columns: str | None = None) -> None:

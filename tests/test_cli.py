@@ -211,7 +211,7 @@ def test_csv_has_header_steps_total_checks_and_caution(capsys, sample):
                 "mass_after_kg", "burn_time_s", "coast_time_s", "check", "passed", "message"):
         assert key in header
     col = {k: header.index(k) for k in header}
-    by = lambda kind: [r for r in rows[1:] if r[col["record"]] == kind]  # noqa: E731
+    by = lambda kind: [r for r in rows[1:] if r[col["record"]] == kind]
     body, (total,), (caution,) = by("step"), by("total"), by("caution")
     assert len(body) == len(rep["steps"])
     for row, s in zip(body, rep["steps"]):
