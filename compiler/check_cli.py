@@ -1,4 +1,8 @@
-"""The `check` and `explain` commands."""
+"""The `check` and `explain` commands.
+
+The checker and its rules are imported when a command runs, not when the command line
+is built, so `apsidal run` does not load them.
+"""
 
 from __future__ import annotations
 
@@ -7,16 +11,11 @@ import sys
 
 from apsidal.lang.errors import PlanError
 from apsidal.lang.units import to_internal
-from rich.console import Console
-from rich.markup import escape
-from rich.syntax import Syntax
 
-from .check import SEVERITIES, Finding, check_program
 from .cliutil import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_OK, UsageError, write_atomic
 from .cliutil import console as _console
-from .evaluate import run
-from .load import load
-from .rules import BY_NAME, RULES
+
+SEVERITIES = ("info", "warning", "error")  # check.SEVERITIES, without importing the checker
 
 
 def register(sub) -> None:
@@ -63,7 +62,7 @@ def parse_min_saving(text: str | None) -> tuple[str, float] | None:
                      f"not `{text}`")
 
 
-def _keep(f: Finding, threshold, plan_dv_m_s: float) -> bool:
+def _keep(f, threshold, plan_dv_m_s: float) -> bool:
     if threshold is None or f.saves_m_s is None:
         return True
     dim, value = threshold
@@ -72,6 +71,10 @@ def _keep(f: Finding, threshold, plan_dv_m_s: float) -> bool:
 
 
 def cmd_check(args) -> int:
+    from .check import check_program
+    from .evaluate import run
+    from .load import load
+    from .rules import BY_NAME
 
     threshold = parse_min_saving(args.min_saving)
     rules = None
@@ -130,13 +133,16 @@ def cmd_check(args) -> int:
 STYLE = {"error": "bold red", "warning": "yellow", "info": "cyan"}
 
 
-def _saving(f: Finding) -> str:
+def _saving(f) -> str:
     if f.saves_m_s is None:
         return ""
     return f" (saves {f.saves_m_s:.1f} m/s, {f.saves_kg:.2f} kg)"
 
 
-def table(reports, console: Console) -> None:
+def table(reports, console) -> None:
+    from rich.markup import escape
+    from rich.syntax import Syntax
+
     for path, program, findings in reports:
         console.print(f"[bold]{path}[/bold]: {program.title}")
         if not findings:
@@ -182,6 +188,8 @@ def markdown(reports) -> str:
 
 def cmd_explain(args) -> int:
     import inspect
+
+    from .rules import BY_NAME, RULES
 
 
     console = _console()

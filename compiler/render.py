@@ -121,16 +121,22 @@ def fit(console, title, columns, records: list[dict], keep_all: bool = False):
 
 
 def check_text(c: dict) -> str:
-    """One expectation check as a reader says it: `apoapsis 1200 km within 1 km: actual ...`."""
+    """One expectation check as a reader says it: `apoapsis 1200 km within 1 km: actual ...`.
+
+    Numbers as a plan writes them (no thousands separators), six significant digits;
+    an interplanetary distance with its astronomical units beside it.
+    """
     unit = f" {c['unit']}" if c["unit"] else ""
     if c["unit"] == "km":
         def num(x):
-            return length(x)[: -len(" km")] if x is not None and abs(x) < 1e7 else length(x)
+            text = length(x, sep=False)
+            return text[: -len(" km")] if x is not None and abs(x) < 1e7 else text
     elif c["kind"] in WRAPPED_ANGLES:
         def num(x):
             return angle_text(x, ".6g")
     else:
-        num = short
+        def num(x):
+            return short(x, sep=False)
 
     def with_unit(x):
         text = num(x)

@@ -15,18 +15,11 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from apsidal.lang.errors import PlanError
-from apsidal.lang.format import FormatError, format_plan
 from apsidal.lang.parse import parse, parse_file
 from apsidal.lang.units import UNITS, to_internal
 
-from . import diff_render, render
-from .budget import budget
 from .cliutil import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_INTERNAL, EXIT_OK, UsageError, write_atomic
 from .cliutil import console as _console
-from .diff import diff_reports, grows_past, step_info
-from .evaluate import run
-from .gitsource import GitError, read_at, split_range
-from .lower import lower
 
 
 def register(sub) -> None:
@@ -119,6 +112,8 @@ def cmd_fmt(args) -> int:
 
 
 def _fmt_one(path: str, args, report: FmtReport, header: bool) -> None:
+    from apsidal.lang.format import FormatError, format_plan
+
     try:
         original, plan = _read_plan(path)
         formatted = format_plan(plan)
@@ -169,6 +164,9 @@ class Side:
 
 
 def _price(side: Side, findings: bool) -> Side:
+    from .budget import budget
+    from .evaluate import run
+
     result = run(side.program)
     side.report = budget(result)
     side.flight_error = result.error
@@ -189,6 +187,8 @@ def _findings(program) -> list[dict]:
 
 
 def _side_from_file(path: str, findings: bool) -> Side:
+    from .lower import lower
+
     try:
         program = lower(parse_file(path))
     except PlanError as err:
@@ -197,6 +197,9 @@ def _side_from_file(path: str, findings: bool) -> Side:
 
 
 def _side_from_git(path: str, rev: str, findings: bool) -> Side:
+    from .gitsource import GitError, read_at
+    from .lower import lower
+
     try:
         text, label = read_at(path, rev)
     except GitError as err:
@@ -209,6 +212,8 @@ def _side_from_git(path: str, rev: str, findings: bool) -> Side:
 
 
 def _sides(args) -> tuple[Side, Side]:
+    from .gitsource import GitError, split_range
+
     findings = not args.no_findings
     if len(args.plans) == 2:
         if args.rev:
@@ -240,6 +245,8 @@ class Threshold:
     limit: float  # m/s or kg
 
     def exceeded(self, change: dict) -> bool:
+        from .diff import grows_past
+
         return grows_past(change, self.key, self.limit)
 
 
@@ -292,6 +299,8 @@ def _one_sided(good: Side, broken: Side, good_is_new: bool) -> dict:
 
 
 def _emit_one_sided(args, old: Side, new: Side) -> int:
+    from . import diff_render, render
+
     broken, good = (old, new) if old.error else (new, old)
     print(broken.error.render(), file=sys.stderr)
     which = "old" if broken is old else "new"
@@ -308,6 +317,9 @@ def _emit_one_sided(args, old: Side, new: Side) -> int:
 
 
 def cmd_diff(args) -> int:
+    from . import diff_render
+    from .diff import diff_reports, step_info
+
     if args.git_textconv:
         if args.plans or args.rev:
             raise UsageError("--git-textconv takes only the file git hands it")
@@ -346,6 +358,11 @@ def cmd_diff(args) -> int:
 
 def textconv(path: str) -> int:
     """The file's text with its budget appended; never fails, so `git diff` never does."""
+    from . import diff_render
+    from .budget import budget
+    from .evaluate import run
+    from .lower import lower
+
     try:
         text = Path(path).read_bytes().decode("utf-8", errors="replace")
     except OSError as err:

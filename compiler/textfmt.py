@@ -38,13 +38,13 @@ def sig(x, digits: int = SIG, sep: bool = True) -> str:
     return "0" if float(text.replace(",", "")) == 0.0 else text
 
 
-def short(x, digits: int = 6) -> str:
+def short(x, digits: int = 6, sep: bool = True) -> str:
     """Like :func:`sig`, without trailing zeros: for numbers inside a sentence.
 
     >>> short(400.0), short(87.31391), short(0.05), short(2.5e-7)
     ('400', '87.3139', '0.05', '2.5e-7')
     """
-    text = sig(x, digits)
+    text = sig(x, digits, sep)
     if "e" in text:
         mant, e = text.split("e")
         return (mant.rstrip("0").rstrip(".") if "." in mant else mant) + "e" + e
@@ -101,15 +101,15 @@ def angle_text(deg: float | None, fmt: str) -> str:
 AU_KM = 149_597_870.700  # IAU 2012 Resolution B2
 
 
-def length(km: float | None, digits: int = 6) -> str:
+def length(km: float | None, digits: int = 6, sep: bool = True) -> str:
     """A length in km; at interplanetary scale the astronomical units beside it.
 
-    >>> length(400.0), length(227942466.0), length(149598.0)
-    ('400 km', '227,942,466 km (1.5237 au)', '149,598 km')
+    >>> length(400.0), length(227942466.0), length(149598.0, sep=False)
+    ('400 km', '227,942,466 km (1.5237 au)', '149598 km')
     """
     if km is None:
         return "-"
-    text = f"{short(km, digits)} km"
+    text = f"{short(km, digits, sep)} km"
     if abs(km) >= 1e7:
         text += f" ({short(km / AU_KM, digits)} au)"
     return text

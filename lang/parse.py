@@ -123,8 +123,12 @@ def _keep_comment(token: Token) -> Token:
 
 @cache
 def _parser() -> Lark:
+    """The LALR parser, built once per process; the built tables are cached by lark in
+    the temporary directory, keyed by the grammar's hash, so later runs load them
+    instead of building them (an unwritable cache only costs the build)."""
     return Lark(
         GRAMMAR.read_text(encoding="utf-8"),
+        cache=True,
         parser="lalr",
         lexer="contextual",
         propagate_positions=True,

@@ -109,8 +109,11 @@ def run_report(capsys, tmp_path: Path, text: str, name: str) -> dict:
     path = tmp_path / f"{name}.aps"
     path.write_text(text)
     code, out, err = cli(capsys, "run", path, "--format", "json")
-    assert code == 0, err
-    return json.loads(out)
+    rep = json.loads(out)
+    failed = not rep["totals"]["expectations_met"] or any(
+        f["severity"] == "error" for f in rep["findings"])
+    assert code == (1 if failed else 0), err  # run exits 1 for a failed expectation
+    return rep
 
 
 def rev_diff(capsys, history, old: str, new: str, *extra) -> dict:
@@ -474,7 +477,7 @@ def test_a_side_that_does_not_parse_still_shows_the_other(tmp_path_factory, caps
     assert d["old"]["dv_m_s"] > 0 and {e["status"] for e in d["steps"]} == {"removed"}
     code, out, _ = cli(capsys, "diff", plan, "--rev", f"{bad}..{good}", "--format", "markdown",
                        "--no-findings")
-    assert code == 2 and out.startswith("**The old plan (") and "| burn `raise`" in out
+    assert code == 2 and out.startswith("**The old plan (") and "| `raise` | burn |" in out
 
 
 def test_a_new_side_that_cannot_be_flown_exits_2(capsys, tmp_path):
