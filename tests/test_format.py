@@ -16,7 +16,6 @@ from pathlib import Path
 
 import pytest
 from apsidal.compiler import cliutil, review_cli
-from apsidal.lang import format as lang_format
 from apsidal.compiler.budget import budget
 from apsidal.compiler.cli import main
 from apsidal.compiler.evaluate import run
@@ -285,7 +284,7 @@ def test_an_internal_error_leaves_the_file_and_exits_70(tmp_path, capsys, monkey
     def broken(p):
         raise FormatError("p.aps: the formatted plan would not mean the same plan")
 
-    monkeypatch.setattr(lang_format, "format_plan", broken)
+    monkeypatch.setattr(fmt, "format_plan", broken)
     code, _, err = fmt_cli(capsys, "--write", plan)
     assert code == 70 and "internal error" in err and "left as it is" in err
     assert plan.read_text() == MESSY
