@@ -68,9 +68,9 @@ class Parser(argparse.ArgumentParser):
         if extras:
             sub = getattr(self, "commands", {}).get(getattr(args, "command", None), self)
             hint = ""
-            if any(w in AMOUNT_OPTIONS for w in extras) or any(
-                    _NUMBER.fullmatch(w.split()[0] if w.split() else w) for w in extras):
-                hint = "; an amount such as `5 m/s` is one argument (`5m/s` or \"5 m/s\")"
+            if any(_NUMBER.match(w) for w in extras):
+                hint = ("; an option takes one amount (`5m/s` or `5 m/s`): give each amount "
+                        "its own option, as in `--fail-over 2kg --fail-over 20m/s`")
             sub.error(f"unrecognized arguments: {' '.join(extras)}{hint}")
         return args
 

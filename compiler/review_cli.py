@@ -45,9 +45,10 @@ def register(sub) -> None:
                    "(the new side is the working file), or both sides with REV_A..REV_B; "
                    "default HEAD when one plan is given")
     d.add_argument("--format", choices=("table", "markdown", "json"), default="table")
-    d.add_argument("--fail-over", action="append", nargs="+", default=[], metavar="AMOUNT",
+    d.add_argument("--fail-over", action="append", default=[], metavar="AMOUNT",
                    help="exit 1 when delta-v with margin grows by more than a speed "
-                   "(`10m/s`) or propellant by more than a mass (`2kg`); repeatable")
+                   "(`10m/s` or `10 m/s`) or propellant by more than a mass (`2kg`); "
+                   "repeat the option for a second threshold")
     d.add_argument("--no-findings", action="store_true",
                    help="skip the `check` rules (faster); findings are not compared")
     d.add_argument("--git-textconv", metavar="FILE", help="print FILE with its budget "
@@ -69,18 +70,17 @@ class FmtReport:
 
     def summary(self, check: bool) -> str:
         def count(n: int, what: str) -> str:
-            return f"{n} file{'s' if n != 1 else ''} {what}"
+            return f"{n} plan{'s' if n != 1 else ''} {what}"
 
-        verb = "would be reformatted" if check else "reformatted"
+        verb = "not in canonical layout" if check else "rewritten in canonical layout"
         parts = [count(len(self.changed), verb)] if self.changed else []
         if self.unchanged:
-            parts.append(count(len(self.unchanged),
-                               "already formatted" if check else "left unchanged"))
+            parts.append(count(len(self.unchanged), "already canonical"))
         if self.failed:
             parts.append(count(len(self.failed), "could not be read or parsed"))
         if self.internal:
             parts.append(count(len(self.internal), "hit an internal error"))
-        return ", ".join(parts) + "."
+        return "fmt: " + ", ".join(parts) + "."
 
     def exit_code(self, check: bool) -> int:
         if self.internal:
@@ -145,7 +145,7 @@ def _fmt_one(path: str, args, report: FmtReport, header: bool) -> None:
                   "is left as it was", file=sys.stderr)
             report.failed.append(path)
             return
-        print(f"reformatted {path}", file=sys.stderr)
+        print(f"rewrote {path} in canonical layout", file=sys.stderr)
     report.changed.append(path)
 
 
@@ -221,8 +221,11 @@ def _sides(args) -> tuple[Side, Side]:
         return (_side_from_file(args.plans[0], findings),
                 _side_from_file(args.plans[1], findings))
     if len(args.plans) != 1:
+        amounts = [p for p in args.plans if QUANTITY.fullmatch(p) and not Path(p).exists()]
+        hint = (f"; `{amounts[0]}` looks like a threshold: give each its own --fail-over"
+                if amounts else "")
         raise UsageError("diff takes OLD.aps NEW.aps, or one plan with --rev REV "
-                         f"(got {len(args.plans)} plans)")
+                         f"(got {len(args.plans)} plans){hint}")
     path = args.plans[0]
     try:
         old_rev, new_rev = split_range(args.rev or "HEAD")
@@ -270,21 +273,6 @@ def parse_threshold(text: str) -> Threshold:
     return Threshold(text, "propellant_kg", value)
 
 
-def split_fail_over(groups: list[list[str]]) -> tuple[list[Threshold], list[str]]:
-    """The thresholds of every `--fail-over`, and the words after them that were plans.
-
-    `--fail-over` takes one word (`10m/s`) or two (`10 m/s`); argparse hands it every
-    word up to the next option, so plan files given after it are handed back.
-    """
-    thresholds, rest = [], []
-    for words in groups:
-        take = 2 if (len(words) >= 2 and QUANTITY.fullmatch(words[0]) is None
-                     and QUANTITY.fullmatch(" ".join(words[:2]))) else 1
-        thresholds.append(parse_threshold(" ".join(words[:take])))
-        rest += words[take:]
-    return thresholds, rest
-
-
 def _one_sided(good: Side, broken: Side, good_is_new: bool) -> dict:
     """The diff's JSON when one side does not parse: the other side's budget in full."""
     status = "added" if good_is_new else "removed"
@@ -324,8 +312,7 @@ def cmd_diff(args) -> int:
         if args.plans or args.rev:
             raise UsageError("--git-textconv takes only the file git hands it")
         return textconv(args.git_textconv)
-    thresholds, extra = split_fail_over(args.fail_over)
-    args.plans = list(args.plans) + extra
+    thresholds = [parse_threshold(t) for t in args.fail_over]
     old, new = _sides(args)
     if old.error and new.error:
         for side in (old, new):

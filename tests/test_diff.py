@@ -18,7 +18,7 @@ from pathlib import Path
 import pytest
 from apsidal.compiler.cli import main
 from apsidal.compiler.diff import diff_reports
-from apsidal.compiler.review_cli import parse_threshold, split_fail_over
+from apsidal.compiler.review_cli import parse_threshold
 
 pytestmark = pytest.mark.skipif(shutil.which("git") is None, reason="git is not installed")
 
@@ -403,9 +403,21 @@ def test_fail_over_mass_before_the_plan_files(capsys, tmp_path):
 def test_threshold_parsing():
     assert parse_threshold("10m/s").limit == pytest.approx(10.0)
     assert parse_threshold("2 kg").key == "propellant_kg"
-    thresholds, rest = split_fail_over([["5", "m/s", "a.aps", "b.aps"], ["1kg"]])
-    assert [t.limit for t in thresholds] == [pytest.approx(5.0), 1.0]
-    assert rest == ["a.aps", "b.aps"]
+
+
+
+def test_fail_over_after_the_plans_takes_one_amount(capsys, tmp_path):
+    old, new = tmp_path / "old.aps", tmp_path / "new.aps"
+    old.write_text(BASE)
+    new.write_text(BASE.replace("margin 5 %", "margin 8 %"))
+    code, _, err = cli(capsys, "diff", old, new, "--no-findings", "--fail-over", "2kg",
+                       "--fail-over", "20", "m/s")
+    assert code == 1 and "kg propellant" in err
+    with pytest.raises(SystemExit) as stop:  # argparse's own exit, worded by us
+        cli(capsys, "diff", old, new, "--no-findings", "--fail-over", "5kg", "20m/s")
+    err = capsys.readouterr().err
+    assert stop.value.code == 2 and err.startswith("usage: apsidal diff")
+    assert "unrecognized arguments: 20m/s" in err and "its own option" in err
 
 
 @pytest.mark.parametrize("words", [["10"], ["10", "s"], ["fast"], ["10", "km"]])
