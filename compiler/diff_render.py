@@ -216,3 +216,41 @@ def budget_text(report: dict) -> str:
     if "error" in report:
         lines.append(f"# the plan cannot be flown: {report['error']['message']}")
     return "\n".join(lines) + "\n"
+
+
+# --- CSV: one header, one record kind per row (as the run's CSV) ----------------------
+
+DIFF_CSV = ["record", "name", "status", "renamed_from", "kind", "at_old", "at_new",
+            "quantity", "old", "new", "change", "severity", "rule", "message"]
+STEP_QUANTITIES = ("dv_m_s", "dv_with_margin_m_s", "propellant_kg", "mass_after_kg",
+                   "burn_time_s", "coast_time_s", "elapsed_s")
+
+
+def to_csv(diff: dict) -> str:
+    """A long table a strict CSV reader loads: one ``step`` row per step and quantity,
+    one ``total`` row per total, ``finding`` rows (appeared or disappeared) and the
+    ``caution``.  Columns ``old``, ``new`` and ``change`` hold the numbers."""
+    from .render import write_csv
+
+    rows = []
+    for e in diff["steps"]:
+        old, new, ch = e["old"] or {}, e["new"] or {}, e.get("change") or {}
+        base = {"record": "step", "name": e["name"], "status": e["status"],
+                "renamed_from": e.get("renamed_from"), "kind": (new or old).get("kind"),
+                "at_old": old.get("at"), "at_new": new.get("at")}
+        for q in STEP_QUANTITIES:
+            if q in old or q in new:
+                rows.append({**base, "quantity": q, "old": old.get(q), "new": new.get(q),
+                             "change": ch.get(q)})
+    for key, *_ in TOTALS:
+        rows.append({"record": "total", "name": "total", "quantity": key,
+                     "old": (diff["old"] or {}).get(key), "new": (diff["new"] or {}).get(key),
+                     "change": (diff.get("change") or {}).get(key)})
+    for how, f in _findings_lines(diff):
+        rows.append({"record": "finding", "name": ", ".join(f["steps"]), "status": how,
+                     "severity": f["severity"], "rule": f["rule"], "message": f["message"]})
+    if diff.get("error"):
+        rows.append({"record": "error", "status": diff["error"]["side"],
+                     "message": diff["error"]["message"]})
+    rows.append({"record": "caution", "message": CAUTION})
+    return write_csv(rows, DIFF_CSV)

@@ -44,7 +44,7 @@ def register(sub) -> None:
     d.add_argument("--rev", metavar="REV", help="read the old side from git at REV "
                    "(the new side is the working file), or both sides with REV_A..REV_B; "
                    "default HEAD when one plan is given")
-    d.add_argument("--format", choices=("table", "markdown", "json"), default="table")
+    d.add_argument("--format", choices=("table", "markdown", "json", "csv"), default="table")
     d.add_argument("--fail-over", action="append", default=[], metavar="AMOUNT",
                    help="exit 1 when delta-v with margin grows by more than a speed "
                    "(`10m/s` or `10 m/s`) or propellant by more than a mass (`2kg`); "
@@ -296,6 +296,8 @@ def _emit_one_sided(args, old: Side, new: Side) -> int:
           f"{'new' if which == 'old' else 'old'} plan's budget follows", file=sys.stderr)
     if args.format == "json":
         sys.stdout.write(diff_render.to_json(_one_sided(good, broken, good is new)) + "\n")
+    elif args.format == "csv":
+        sys.stdout.write(diff_render.to_csv(_one_sided(good, broken, good is new)))
     elif args.format == "markdown":
         sys.stdout.write(f"**The {which} plan (`{broken.label}`) does not parse.** "
                          f"Budget of `{good.label}`:\n\n" + render.markdown(good.report))
@@ -324,6 +326,8 @@ def cmd_diff(args) -> int:
                           step_info(new.program), findings=not args.no_findings)
     if args.format == "json":
         sys.stdout.write(diff_render.to_json(result) + "\n")
+    elif args.format == "csv":
+        sys.stdout.write(diff_render.to_csv(result))
     elif args.format == "markdown":
         sys.stdout.write(diff_render.markdown(result, old.label, new.label))
     else:
