@@ -170,6 +170,13 @@ class Lowerer:
     def _around(self, st: ast.Around) -> None:
         name = st.body.text
         body = self.defined.get(name) or bodies.lookup(name)
+        later = next((d for d in self.plan.statements if isinstance(d, ast.BodyDef)
+                      and d.name.text == name and d.span.line > st.span.line), None)
+        if body is None and later is not None:
+            raise _err(f"body `{name}` is defined on line {later.span.line}, after this "
+                       "`around`", st.body,
+                       f"move `body {name} {{ ... }}` above `around {name}`: a body is "
+                       "defined before the plan goes around it")
         if body is None:
             pool = list(self.defined) + bodies.names()
             guess = did_you_mean(name, pool)

@@ -35,6 +35,10 @@ UNITS: dict[str, tuple[str, float]] = {
     "t": ("mass", 1000.0),
     "N": ("force", 1.0),
     "kN": ("force", 1000.0),
+    "mN": ("force", 1e-3),  # electric thrusters are rated in mN
+    "uN": ("force", 1e-6),  # micronewtons, ASCII spelling
+    "µN": ("force", 1e-6),  # U+00B5 micro sign
+    "μN": ("force", 1e-6),  # U+03BC Greek mu
     "km3/s2": ("gravitational parameter", 1.0),
     "m3/s2": ("gravitational parameter", 1e-9),
     "km2/s2": ("specific energy", 1.0),
@@ -82,8 +86,10 @@ def suggest_unit(unit: str, dimension: str | None = None) -> str | None:
     'deg'
     """
     pool = units_of(dimension) if dimension else [u for u in UNITS if u]
+    if unit in pool:
+        return unit
     lowered = {u.lower(): u for u in pool}
-    if unit.lower() in lowered:
+    if unit.lower() in lowered and lowered[unit.lower()] != unit:
         return lowered[unit.lower()]
     squashed = {u.replace("/", "").lower(): u for u in pool}
     if unit.replace("/", "").lower() in squashed:
