@@ -82,20 +82,63 @@ def emit_report(report: dict, fmt: str, columns: str | None = None) -> None:
         render.table(report, console(), columns)
 
 
+def source_standing(source: str) -> str:
+    """How a body's values are sourced: `published`, or which values lean on memory or
+    on a secondary collection (the sources say so in their own words).
+
+    >>> source_standing("gm: JPL DE440; radius: IAU 2015")
+    'published'
+    >>> source_standing("gm: DE440; radius: IAU; unchanged (from memory); "
+    ...                 "orbit: as in secondary references")
+    'radius from memory; orbit secondary'
+    """
+    import re
+
+    from .bodies import _SOURCE_ORDER
+
+    pattern = r"(?:^|; )(" + "|".join(_SOURCE_ORDER) + r"): "
+    pieces = re.split(pattern, source)[1:]  # field, text, field, text, ...
+    memory, secondary = [], []
+    for field, text in zip(pieces[::2], pieces[1::2]):
+        if "from memory" in text:
+            memory.append(field)
+        if "secondary" in text:
+            secondary.append(field)
+    out = ([f"{', '.join(memory)} from memory"] if memory else []) + (
+        [f"{', '.join(secondary)} secondary"] if secondary else [])
+    return "; ".join(out) or "published"
+
+
 def cmd_bodies(args) -> int:
+    from rich import box
     from rich.table import Table
 
     from . import bodies
+    from .textfmt import sig
 
-    t = Table(title="Body catalogue")
-    for col in ("name", "GM km3/s2", "radius km", "J2", "SOI km", "source"):
-        t.add_column(col)
+    t = Table(title="Body catalogue", title_justify="left", box=box.SIMPLE_HEAD,
+              show_edge=False, pad_edge=False)
+    for col in ("name", "GM km3/s2", "radius km", "J2", "SOI km", "sourcing"):
+        t.add_column(col, no_wrap=col != "sourcing",
+                     justify="left" if col in ("name", "sourcing") else "right")
     for name in bodies.names():
         b = bodies.lookup(name)
         t.add_row(b.name, f"{b.gm:.10g}", f"{b.radius:.10g}",
                   "-" if b.j2 is None else f"{b.j2:.6e}",
-                  "-" if b.soi is None else f"{b.soi:,.0f}", b.source)
-    console().print(t)
+                  "-" if b.soi is None else sig(b.soi, 6), source_standing(b.source))
+    con = console()
+    con.print(t)
+    con.print()
+    con.print("Sources", style="bold")
+    for name in bodies.names():
+        b = bodies.lookup(name)
+        con.print(f"{b.name}: {b.source}", highlight=False, markup=False)
+    con.print()
+    con.print("sourcing: `published` where every value was read from its published source; "
+              "`from memory` where a value or its attribution was recalled and not looked "
+              "up again; `secondary` where it was read from a collection quoting the "
+              "source.  `--format json` is not offered here; the catalogue file is "
+              "compiler/bodies.toml.", highlight=False, markup=False)
     return EXIT_OK
 
 
