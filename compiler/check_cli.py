@@ -208,7 +208,9 @@ def _saving(f) -> str:
 
 def table(reports, console) -> None:
     from rich.markup import escape
+    from rich.padding import Padding
     from rich.syntax import Syntax
+    from rich.text import Text
 
     for path, program, findings, err in reports:
         if err is not None:
@@ -223,9 +225,9 @@ def table(reports, console) -> None:
             steps = ", ".join(f.steps)
             console.print(f"  [{STYLE[f.severity]}]{f.severity}[/] {f.rule}"
                           f"{escape(' [' + steps + ']') if steps else ''}{_saving(f)}")
-            console.print(f"    {f.message}", highlight=False, markup=False)
-            for note in f.notes:
-                console.print(f"    note: {note}", highlight=False, markup=False)
+            console.print(Padding(Text(f.message), (0, 0, 0, 4)), highlight=False)
+            for note in f.notes:  # prose wraps under its own indent, not at column 0
+                console.print(Padding(Text(f"note: {note}"), (0, 0, 0, 4)), highlight=False)
             if f.diff:
                 console.print(Syntax(f.diff, "diff", theme="ansi_dark", background_color="default"))
         console.print()

@@ -130,7 +130,7 @@ TERMINAL_COLUMNS = (
     Column("at", "at", _where, 3, right=False),
     Column("dv", "Δv m/s", _cell(0), 1),
     Column("dv_change", "Δv change m/s", _cell(1), 0),
-    Column("margin_change", "with margin m/s", _cell(2), 1),
+    Column("margin_change", "Δv+margin change m/s", _cell(2), 1),
     Column("margin", "margin", _cell(3), 3),
     Column("propellant", "propellant kg", _cell(4), 2),
     Column("propellant_change", "propellant change kg", _cell(5), 0),
@@ -143,6 +143,7 @@ def table(diff: dict, console: Console, old_label: str, new_label: str) -> None:
     console.print(f"  old: {old_label}\n  new: {new_label}", highlight=False, markup=False)
     t, _ = fit(console, None, TERMINAL_COLUMNS, diff["steps"])
     console.print(t)
+    console.print()
     tot = Table(box=box.SIMPLE_HEAD, show_edge=False, pad_edge=False)
     for col in ("total", "old", "new", "change"):
         tot.add_column(col, justify="left" if col == "total" else "right")

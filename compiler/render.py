@@ -181,6 +181,7 @@ def table(report: dict, console, columns: str | None = None) -> None:
         console.width = width
     else:
         console.print(t)
+    console.print()
     for line in total_lines(report["totals"]):
         console.print(line, highlight=False, markup=False)
     checks = [(s, c) for s in report["steps"] for c in s.get("checks", [])]
@@ -193,9 +194,11 @@ def table(report: dict, console, columns: str | None = None) -> None:
     if report.get("findings"):
         console.print()
         console.print("Findings", style="bold")
-        for f in report["findings"]:
-            console.print(f"  {f['severity']} {f['rule']}: {f['message']}", highlight=False,
-                          markup=False)
+        from rich.padding import Padding
+
+        for f in report["findings"]:  # prose, wrapped under its own indent
+            console.print(Padding(Text(f"{f['severity']} {f['rule']}: {f['message']}"),
+                                  (0, 0, 0, 2)), highlight=False)
     console.print()
     console.print(f"Caution: {report['caution']}", style="italic", highlight=False,
                   markup=False)
