@@ -23,7 +23,6 @@ flown is the compiler's business.
 
 from __future__ import annotations
 
-import difflib
 import math
 import re
 from collections.abc import Callable
@@ -319,6 +318,8 @@ def _wrong_dimension(q: ast.Quantity, slot: Slot, got: str) -> PlanError:
 
 
 def _similarity(a: str, b: str) -> float:
+    import difflib  # on a mistake only: not at start-up
+
     return difflib.SequenceMatcher(None, a.lower(), b.lower()).ratio()
 
 

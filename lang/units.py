@@ -14,7 +14,6 @@ internal unit for it (km, km/s, s, kg, N, rad, km3/s2, km2/s2, a plain fraction 
 
 from __future__ import annotations
 
-import difflib
 import math
 
 # unit -> (dimension, factor to the compiler's internal unit of that dimension)
@@ -94,5 +93,7 @@ def suggest_unit(unit: str, dimension: str | None = None) -> str | None:
     squashed = {u.replace("/", "").lower(): u for u in pool}
     if unit.replace("/", "").lower() in squashed:
         return squashed[unit.replace("/", "").lower()]
+    import difflib  # on a mistake only: not at start-up
+
     match = difflib.get_close_matches(unit, pool, n=1, cutoff=0.5)
     return match[0] if match else None
