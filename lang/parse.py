@@ -455,6 +455,10 @@ class _ToSyntax(Transformer):
         key = str(children[0])
         return ast.Setting(key, _checked(children[1], SLOTS[f"setting.{key}"]), _span(meta))
 
+    def ceiling_radius(self, meta, children):
+        return ast.Setting("ceiling", _checked(children[-1], SLOTS["setting.ceiling"]),
+                           _span(meta), is_radius=True)
+
     def circular_field(self, meta, children):
         return ast.Field("circular", _checked(children[0], SLOTS["start.circular"]),
                          _span(meta))

@@ -67,3 +67,20 @@ def test_a_body_defined_after_around():
     assert "defined on line 3, after this `around`" in err.message
     assert "move `body rock" in err.hint and "define it first" not in err.hint
     assert load_text(plan_moved, "h.aps").body.name == "rock"
+
+
+def test_ceiling_takes_a_radius_as_every_altitude_does():
+    # `ceiling` is an altitude above the equatorial radius by default, like periapsis and
+    # apoapsis; `radius` measures from the centre (Earth's equatorial radius 6378.1366 km
+    # in the catalogue, IERS Conventions 2010)
+    from apsidal.lang.format import format_text
+
+    altitude = load_text(text().replace("margin 5 %", "margin 5 %\nceiling 20000 km"), "h.aps")
+    radius = load_text(text().replace("margin 5 %", "margin 5 %\nceiling radius 26378.1366 km"),
+                       "h.aps")
+    assert altitude.ceiling == pytest.approx(radius.ceiling, abs=1e-9)
+    assert radius.ceiling == pytest.approx(26378.1366, abs=1e-9)
+    canonical = format_text(text().replace("margin 5 %", "margin 5 %\nceiling radius 9000 km"))
+    assert "ceiling radius 9000 km" in canonical
+    err = error(text().replace("margin 5 %", "margin 5 %\nceiling radius 7000 km"))
+    assert "7000 km radius" in err.message and "`ceiling radius" in err.hint
