@@ -115,3 +115,67 @@ def test_columns_by_name(capsys):
     assert "Δv" in out and "propellant" in out and "mass after" not in out.replace("\n", " ") and "polar/1" in out
     assert main(["run", str(SAMPLES[0]), "--columns", "dv,fuel"]) == 2
     assert "no column `fuel`" in capsys.readouterr().err
+
+
+# --- numbers to significant digits ------------------------------------------------------
+
+TINY = """plan "Pebble survey"
+body pebble {
+    gm 2e-9 km3/s2
+    radius 0.25 km
+}
+around pebble
+craft mite {
+    dry 1 kg
+    propellant 2 kg
+    engine puff isp 70 s thrust 50 mN
+}
+start circular 1 km
+burn nudge at periapsis: apoapsis to 1.5 km
+burn settle at apoapsis: periapsis to 1.5 km
+"""
+
+
+def test_tiny_body_and_huge_mass_read_to_significant_digits():
+    # an invented rubble-pile-sized body; then a 1e30 kg craft that only coasts and drops
+    import re
+
+    from apsidal.compiler.render import markdown
+    from apsidal.compiler.textfmt import sig
+
+    rep = budget(run(load_text(TINY, "tiny.aps")))
+    assert "error" not in rep
+    text = screen(rep, 100)
+    for s in rep["steps"]:
+        assert 0 < s["dv_m_s"] < 0.01
+        assert sig(s["dv_m_s"]) in text and sig(s["dv_m_s"]) not in ("0", "0.0")
+    huge = budget(run(load_text(TINY.replace("dry 1 kg", "dry 1e30 kg").split("burn")[0]
+                                + "coast wait 1 rev\ndrop probe 1 kg\n", "huge.aps")))
+    assert "error" not in huge
+    huge_text = screen(huge, 100)
+    assert "1.000e30" in huge_text
+    for out in (text, markdown(rep), huge_text, markdown(huge)):
+        assert not re.search(r"\d{13,}", out.replace(",", ""))  # no 31-digit integers
+        assert "0.0 m/s" not in out
+
+
+def test_markdown_table_uses_one_number_style():
+    import re
+
+    from apsidal.compiler.render import markdown
+
+    rep = budget(run(load(str(SAMPLES[1]))))
+    rows = [ln for ln in markdown(rep).splitlines() if ln.startswith("| ") and "`" in ln]
+    for row in rows:
+        for number in re.findall(r"(?<![\w.])\d[\d,]*\.?\d*", row):
+            digits = number.replace(",", "").replace(".", "").lstrip("0")
+            if "." in number:
+                assert len(digits) <= 4, (number, row)  # four significant digits
+
+
+def test_json_has_no_negative_zero(capsys):
+    import re
+
+    for sample in SAMPLES:
+        main(["run", str(sample), "--format", "json"])
+        assert not re.search(r"-0\.0\b(?![\d])|-0(?=[,\n}])", capsys.readouterr().out)
