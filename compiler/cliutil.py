@@ -109,17 +109,26 @@ class PipeSafe:
         return getattr(self._stream, name)
 
 
+def screen_width(out) -> int | None:
+    """The width to lay tables out for: the terminal's (None: rich asks it); for a pipe
+    or a file, ``COLUMNS``, else the terminal standard error is on (`apsidal run x | head`
+    in an 80-column terminal is laid out for 80), else 100."""
+    if out.isatty():
+        return None
+    try:
+        return int(os.environ["COLUMNS"])
+    except (KeyError, ValueError):
+        pass
+    try:
+        return os.get_terminal_size(sys.__stderr__.fileno()).columns
+    except (OSError, AttributeError, ValueError):
+        return 100
+
+
 def console(stream=None) -> Console:
-    """The console of the screens: the terminal's width, or for a pipe or file ``COLUMNS``
-    (100 when unset), so what a script captures is what a 100-column terminal shows."""
+    """The console of the screens, at :func:`screen_width`."""
     out = stream or sys.stdout
-    width = None
-    if not out.isatty():
-        try:
-            width = int(os.environ.get("COLUMNS", "")) or 100
-        except ValueError:
-            width = 100
-    return Console(file=out, highlight=False, soft_wrap=False, width=width)
+    return Console(file=out, highlight=False, soft_wrap=False, width=screen_width(out))
 
 
 def write_atomic(path: str | Path, text: str) -> None:

@@ -179,3 +179,15 @@ def test_json_has_no_negative_zero(capsys):
     for sample in SAMPLES:
         main(["run", str(sample), "--format", "json"])
         assert not re.search(r"-0\.0\b(?![\d])|-0(?=[,\n}])", capsys.readouterr().out)
+
+
+def test_a_pipe_follows_columns_then_the_terminal_then_100(monkeypatch):
+    from apsidal.compiler import cliutil
+
+    pipe = io.StringIO()
+    monkeypatch.setenv("COLUMNS", "83")
+    assert cliutil.screen_width(pipe) == 83
+    monkeypatch.delenv("COLUMNS")
+    monkeypatch.setattr(cliutil.os, "get_terminal_size", lambda fd: (_ for _ in ()).throw(
+        OSError("not a terminal")))
+    assert cliutil.screen_width(pipe) == 100
