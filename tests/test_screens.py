@@ -191,3 +191,16 @@ def test_a_pipe_follows_columns_then_the_terminal_then_100(monkeypatch):
     monkeypatch.setattr(cliutil.os, "get_terminal_size", lambda fd: (_ for _ in ()).throw(
         OSError("not a terminal")))
     assert cliutil.screen_width(pipe) == 100
+
+
+def test_an_au_scale_expectation_reads_in_km_and_au():
+    # 1 au = 149 597 870.7 km exactly (IAU 2012 Resolution B2)
+    from apsidal.compiler.render import check_text
+
+    c = {"kind": "apoapsis", "comparator": "within", "expected": 227_942_466.0,
+         "tolerance": 149_598.0, "actual": 227_900_000.0, "unit": "km", "passed": True,
+         "reason": None}
+    text = check_text(c)
+    assert text == ("apoapsis 227942466 km (1.5237 au) within 149598 km: "
+                    "actual 227900000 km (1.52342 au)")
+    assert "e+" not in text
