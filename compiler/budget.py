@@ -26,7 +26,8 @@ def finite(x, digits: int | None = None):
     x = float(x)
     if not math.isfinite(x):
         return None
-    return round(x, digits) if digits is not None else x
+    x = round(x, digits) if digits is not None else x
+    return x + 0.0  # never a negative zero: -0.0 + 0.0 is 0.0
 
 
 def degrees_wrapped(x, digits: int = 9):
@@ -77,6 +78,9 @@ def _step_dict(i: int, row: Row, mu: float, radius: float) -> dict:
         "mass_after_kg": finite(row.after.mass[0], 6),
         "duration_s": finite((row.burn_time if burn else row.duration)[0], 6)
         if (row.burn_time is not None or row.duration is not None) else 0.0,
+        "burn_time_s": finite(row.burn_time[0], 6)
+        if burn and row.burn_time is not None else 0.0,
+        "coast_time_s": _coast_time(row),
         "elapsed_s": finite(row.after.t[0], 6),
         "orbit_after": orbit_dict(row.after.r, row.after.v, mu, radius),
     }
@@ -88,6 +92,11 @@ def _step_dict(i: int, row: Row, mu: float, radius: float) -> dict:
     if row.kind == "expect":
         out["checks"] = [_check_dict(c, radius) for c in row.checks]
     return out
+
+
+def _coast_time(row: Row) -> float:
+    """Time spent coasting in a step: a coast's length, or the coast to a burn's point."""
+    return finite(row.coast_time[0], 6) if row.coast_time is not None else 0.0
 
 
 UNIT_OF_CHECK = {"periapsis": "km", "apoapsis": "km", "circular": "km", "sma": "km",

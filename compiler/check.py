@@ -20,7 +20,6 @@ from apsidal.lang.errors import PlanError
 from .budget import budget
 from .evaluate import Batch, Result, run, start_batch
 from .load import load_text
-from .reorder import orientation_matters, same_orbit
 from .state import elements_from_state
 from .steps import Program
 
@@ -189,6 +188,8 @@ class Checker:
             return None
         if not self.result.ok:
             return None
+        from .reorder import orientation_matters, same_orbit  # proofs only, not `run`
+
         same = same_orbit(result.final, self.result.final, program.body.gm,
                           orientation_matters(self.program))
         if not bool(same[0]):

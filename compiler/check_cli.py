@@ -1,4 +1,8 @@
-"""The `check` and `explain` commands."""
+"""The `check` and `explain` commands.
+
+The checker and its rules are imported when a command runs, not when the command line
+is built, so `apsidal run` does not load them.
+"""
 
 from __future__ import annotations
 
@@ -7,22 +11,18 @@ import sys
 
 from apsidal.lang.errors import PlanError
 from apsidal.lang.units import to_internal
-from rich.console import Console
-from rich.markup import escape
-from rich.syntax import Syntax
 
-from .check import SEVERITIES, Finding, check_program
 from .cliutil import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_OK, UsageError, write_atomic
 from .cliutil import console as _console
-from .evaluate import run
-from .load import load
-from .rules import BY_NAME, RULES
+
+SEVERITIES = ("info", "warning", "error")  # check.SEVERITIES, without importing the checker
 
 
 def register(sub) -> None:
     chk = sub.add_parser("check", help="check expectations and look for cheaper plans")
-    chk.add_argument("plans", nargs="+", metavar="PLAN", help="plan files (.aps)")
-    chk.add_argument("--format", choices=("table", "json", "markdown"), default="table")
+    chk.add_argument("plans", nargs="+", metavar="PLAN", help="plan files (.aps); `-` reads "
+                     "standard input")
+    chk.add_argument("--format", choices=("table", "json", "markdown", "csv"), default="table")
     chk.add_argument("--fail-on", choices=SEVERITIES, default="error",
                      help="exit 1 when a finding is at least this severe (default: error)")
     chk.add_argument("--min-saving", default=None, metavar="AMOUNT",
@@ -63,7 +63,7 @@ def parse_min_saving(text: str | None) -> tuple[str, float] | None:
                      f"not `{text}`")
 
 
-def _keep(f: Finding, threshold, plan_dv_m_s: float) -> bool:
+def _keep(f, threshold, plan_dv_m_s: float) -> bool:
     if threshold is None or f.saves_m_s is None:
         return True
     dim, value = threshold
@@ -72,6 +72,10 @@ def _keep(f: Finding, threshold, plan_dv_m_s: float) -> bool:
 
 
 def cmd_check(args) -> int:
+    from .check import check_program
+    from .evaluate import run
+    from .load import load
+    from .rules import BY_NAME
 
     threshold = parse_min_saving(args.min_saving)
     rules = None
@@ -85,11 +89,12 @@ def cmd_check(args) -> int:
                              + (f"; did you mean `{guess}`?" if guess else
                                 "; `apsidal explain` lists them"))
         rules = [BY_NAME[r] for r in args.rule]
-    if args.write_suggestion and len(args.plans) != 1:
-        raise UsageError("--write-suggestion takes exactly one plan")
-    reports = []
+    if args.write_suggestion:
+        _check_suggestion_target(args)
+    if args.plans.count("-") > 1:
+        raise UsageError("standard input (`-`) can be named once")
+    reports = []  # (path, program or None, findings, PlanError or None)
     worst = -1
-    bad_input = False
     for path in args.plans:
         try:
             program = load(path)
@@ -97,61 +102,136 @@ def cmd_check(args) -> int:
             findings = check_program(program, rules, result)
         except PlanError as err:
             print(err.render(), file=sys.stderr)
-            bad_input = True
+            reports.append(("<stdin>" if path == "-" else path, None, [], err))
             continue
         dv = float(result.final.dv_margin[0]) * 1000.0
         kept = [f for f in findings if _keep(f, threshold, dv)]
-        reports.append((path, program, kept))
+        reports.append(("<stdin>" if path == "-" else path, program, kept, None))
         for f in kept:
             worst = max(worst, SEVERITIES.index(f.severity))
     if args.format == "json":
-        sys.stdout.write(json.dumps({"plans": [
-            {"plan": p.title, "source": path, "findings": [f.as_dict() for f in fs]}
-            for path, p, fs in reports]}, indent=2, allow_nan=False) + "\n")
+        sys.stdout.write(json.dumps(to_json(reports), indent=2, allow_nan=False) + "\n")
     elif args.format == "markdown":
         sys.stdout.write(markdown(reports))
+    elif args.format == "csv":
+        sys.stdout.write(to_csv(reports))
     else:
         table(reports, _console())
-    if args.write_suggestion and reports:
-        _, _, findings = reports[0]
+    if args.write_suggestion and reports[0][1] is not None:
+        findings = reports[0][2]
         best = max((f for f in findings if f.suggestion), key=lambda f: f.saves_kg or 0.0,
                    default=None)
         if best is None:
             print("apsidal: no cheaper plan found; nothing written", file=sys.stderr)
         else:
-            write_atomic(args.write_suggestion, best.suggestion)
-    if bad_input:
+            try:
+                write_atomic(args.write_suggestion, best.suggestion)
+            except OSError as err:
+                raise UsageError(f"cannot write `{args.write_suggestion}`: "
+                                 f"{err.strerror or err}") from None
+    if any(err is not None for *_, err in reports):
         return EXIT_BAD_INPUT
     if worst >= SEVERITIES.index(args.fail_on):
         return EXIT_FINDINGS
     return EXIT_OK
 
 
+def _check_suggestion_target(args) -> None:
+    """Refuse, before any work, a suggestion file that cannot be written or that is the
+    plan itself (the suggestion is a proposal to review, never a silent rewrite)."""
+    import os
+    from pathlib import Path
+
+    if len(args.plans) != 1:
+        raise UsageError("--write-suggestion takes exactly one plan")
+    out = Path(args.write_suggestion)
+    if args.plans[0] != "-" and out.exists() and Path(args.plans[0]).exists() and \
+            os.path.samefile(out, args.plans[0]):
+        raise UsageError(f"--write-suggestion `{out}` is the plan being checked; write the "
+                         "suggestion to another file and compare them (`apsidal diff`)")
+    if not out.parent.is_dir():
+        raise UsageError(f"cannot write `{out}`: the folder `{out.parent}` does not exist")
+
+
+def to_json(reports) -> dict:
+    """Every plan named, in order: its findings, or the error that stopped it."""
+    plans = []
+    for path, program, findings, err in reports:
+        entry = {"plan": program.title if program else None, "source": path,
+                 "findings": [f.as_dict() for f in findings]}
+        if err is not None:
+            entry["error"] = {"message": err.message,
+                              "line": err.span.line if err.span else None,
+                              "column": err.span.column if err.span else None,
+                              "hint": err.hint}
+        plans.append(entry)
+    from .budget import CAUTION
+
+    return {"plans": plans, "caution": CAUTION}
+
+
+CSV_COLUMNS = ["record", "source", "plan", "severity", "rule", "steps", "saves_m_s",
+               "saves_kg", "message", "line", "column"]
+
+
+def to_csv(reports) -> str:
+    """One row per finding, per plan that could not be checked (``error``), and the
+    caution; every row has every column, so a strict CSV reader loads it."""
+    from .budget import CAUTION
+    from .render import write_csv
+
+    rows = []
+    for plan in to_json(reports)["plans"]:
+        for f in plan["findings"]:
+            rows.append({"record": "finding", "source": plan["source"], "plan": plan["plan"],
+                         **f, "steps": " ".join(f.get("steps", []))})
+        if "error" in plan:
+            err = plan["error"]
+            rows.append({"record": "error", "source": plan["source"], "severity": "error",
+                         "message": err["message"] + (f" ({err['hint']})" if err["hint"]
+                                                      else ""),
+                         "line": err["line"], "column": err["column"]})
+    rows.append({"record": "caution", "message": CAUTION})
+    return write_csv(rows, CSV_COLUMNS)
+
+
 STYLE = {"error": "bold red", "warning": "yellow", "info": "cyan"}
 
 
-def _saving(f: Finding) -> str:
+def _saving(f) -> str:
     if f.saves_m_s is None:
         return ""
-    return f" (saves {f.saves_m_s:.1f} m/s, {f.saves_kg:.2f} kg)"
+    from .textfmt import sig
+
+    return f" (saves {sig(f.saves_m_s)} m/s, {sig(f.saves_kg)} kg)"
 
 
-def table(reports, console: Console) -> None:
-    for path, program, findings in reports:
-        console.print(f"[bold]{path}[/bold]: {program.title}")
+def table(reports, console) -> None:
+    from rich.markup import escape
+    from rich.padding import Padding
+    from rich.syntax import Syntax
+    from rich.text import Text
+
+    for path, program, findings, err in reports:
+        if err is not None:
+            console.print(f"[bold]{escape(path)}[/bold]: [bold red]not checked[/]: "
+                          f"{escape(err.message)}")
+            console.print()
+            continue
+        console.print(f"[bold]{escape(path)}[/bold]: {escape(program.title or '')}")
         if not findings:
             console.print("  no findings")
         for f in findings:
             steps = ", ".join(f.steps)
             console.print(f"  [{STYLE[f.severity]}]{f.severity}[/] {f.rule}"
                           f"{escape(' [' + steps + ']') if steps else ''}{_saving(f)}")
-            console.print(f"    {f.message}", highlight=False, markup=False)
-            for note in f.notes:
-                console.print(f"    note: {note}", highlight=False, markup=False)
+            console.print(Padding(Text(f.message), (0, 0, 0, 4)), highlight=False)
+            for note in f.notes:  # prose wraps under its own indent, not at column 0
+                console.print(Padding(Text(f"note: {note}"), (0, 0, 0, 4)), highlight=False)
             if f.diff:
                 console.print(Syntax(f.diff, "diff", theme="ansi_dark", background_color="default"))
         console.print()
-    n = sum(len(fs) for _, _, fs in reports)
+    n = sum(len(fs) for _, _, fs, _ in reports)
     console.print(f"{n} finding{'s' if n != 1 else ''} in {len(reports)} "
                   f"plan{'s' if len(reports) != 1 else ''}.")
     from .budget import CAUTION
@@ -163,7 +243,10 @@ def markdown(reports) -> str:
     from .budget import CAUTION
 
     out = []
-    for path, program, findings in reports:
+    for path, program, findings, err in reports:
+        if err is not None:
+            out += [f"### `{path}`: not checked", "", f"**error**: {err.message}", ""]
+            continue
         out += [f"### `{path}`: {program.title}", ""]
         if not findings:
             out += ["No findings.", ""]
@@ -182,6 +265,8 @@ def markdown(reports) -> str:
 
 def cmd_explain(args) -> int:
     import inspect
+
+    from .rules import BY_NAME, RULES
 
 
     console = _console()

@@ -10,7 +10,9 @@ from rich.console import Console
 from rich.table import Table
 
 from .budget import CAUTION
-from .render import duration
+from .render import Column, fit
+from .textfmt import duration, sig
+from .textfmt import signed as _signed
 
 # The totals, in the order and words a reviewer reads them: (key, label, unit, digits).
 TOTALS = (
@@ -34,20 +36,21 @@ STATUS_STYLE = {"added": "green", "removed": "red", "changed": "yellow", "moved"
 
 
 def signed(x, digits: int) -> str:
-    """A change with its sign; zero (at the shown precision) as a bare 0.
+    """A change with its sign, to four significant digits; a change below the totals'
+    resolution (``digits`` decimals: 0.1 m/s, 0.01 kg) as a bare 0.
 
-    >>> signed(38.24, 1), signed(-7.9, 2), signed(0.00001, 1)
-    ('+38.2', '-7.90', '0')
+    >>> signed(38.24, 1), signed(-7.9, 2), signed(0.00001, 1), signed(2562.14, 1)
+    ('+38.24', '-7.900', '0', '+2,562')
     """
     if x is None:
         return "-"
     if round(x, digits) == 0:
         return "0"
-    return f"{x:+,.{digits}f}"
+    return _signed(x)
 
 
 def _plain(x, digits: int) -> str:
-    return "-" if x is None else f"{x:,.{digits}f}"
+    return sig(x)
 
 
 def _total_cells(diff: dict, key: str, digits: int, unit: str) -> tuple[str, str, str]:
@@ -146,19 +149,35 @@ def _finding_text(f: dict) -> str:
     return f"{f['severity']} {f['rule']} [{', '.join(f['steps'])}]: {f['message']}{saving}"
 
 
+# The step table's columns for the terminal, as render.Column: each cell reads a diff
+# entry; the priorities say which give way first on a narrow terminal.
+def _cell(i: int):
+    return lambda e: _step_cells(e)[i]
+
+
+TERMINAL_COLUMNS = (
+    Column("status", "status", lambda e: e["status"], 0, right=False),
+    Column("step", "step", _step_label, 0, right=False),
+    Column("kind", "kind", lambda e: (e["new"] or e["old"])["kind"], 2, right=False),
+    Column("at", "at", _where, 3, right=False),
+    Column("dv", "Δv m/s", _cell(0), 1),
+    Column("dv_change", "Δv change m/s", _cell(1), 0),
+    Column("margin_change", "Δv+margin change m/s", _cell(2), 1),
+    Column("margin", "margin", _cell(3), 3),
+    Column("propellant", "propellant kg", _cell(4), 2),
+    Column("propellant_change", "propellant change kg", _cell(5), 0),
+)
+
+
 def table(diff: dict, console: Console, old_label: str, new_label: str) -> None:
-    console.print(f"Budget change {old_label} -> {new_label}: {headline(diff)}",
-                  style="bold", highlight=False)
-    t = Table(box=box.SIMPLE_HEAVY)
-    for col in STEP_COLUMNS:
-        t.add_column(col, justify="left" if col in ("status", "step", "where") else "right")
-    for e in diff["steps"]:
-        side = e["new"] or e["old"]
-        t.add_row(e["status"], f"{side['kind']} {_step_label(e)}", _where(e), *_step_cells(e),
-                  style=STATUS_STYLE[e["status"]])
+    console.print(f"Budget change: {headline(diff)}", style="bold", highlight=False,
+                  markup=False)
+    console.print(f"  old: {old_label}\n  new: {new_label}", highlight=False, markup=False)
+    t, _ = fit(console, None, TERMINAL_COLUMNS, diff["steps"])
     console.print(t)
-    tot = Table(box=box.SIMPLE_HEAVY)
-    for col in ("total", old_label, new_label, "change"):
+    console.print()
+    tot = Table(box=box.SIMPLE_HEAD, show_edge=False, pad_edge=False)
+    for col in ("total", "old", "new", "change"):
         tot.add_column(col, justify="left" if col == "total" else "right")
     for key, label, unit, digits in shown_totals(diff):
         tot.add_row(label, *_total_cells(diff, key, digits, unit))
@@ -233,3 +252,41 @@ def budget_text(report: dict) -> str:
         tot = report["totals"]
         lines.append(f"# the plan does not fit its load: short {tot['shortfall_kg']:.2f} kg")
     return "\n".join(lines) + "\n"
+
+
+# --- CSV: one header, one record kind per row (as the run's CSV) ----------------------
+
+DIFF_CSV = ["record", "name", "status", "renamed_from", "kind", "at_old", "at_new",
+            "quantity", "old", "new", "change", "severity", "rule", "message"]
+STEP_QUANTITIES = ("dv_m_s", "dv_with_margin_m_s", "propellant_kg", "mass_after_kg",
+                   "burn_time_s", "coast_time_s", "elapsed_s")
+
+
+def to_csv(diff: dict) -> str:
+    """A long table a strict CSV reader loads: one ``step`` row per step and quantity,
+    one ``total`` row per total, ``finding`` rows (appeared or disappeared) and the
+    ``caution``.  Columns ``old``, ``new`` and ``change`` hold the numbers."""
+    from .render import write_csv
+
+    rows = []
+    for e in diff["steps"]:
+        old, new, ch = e["old"] or {}, e["new"] or {}, e.get("change") or {}
+        base = {"record": "step", "name": e["name"], "status": e["status"],
+                "renamed_from": e.get("renamed_from"), "kind": (new or old).get("kind"),
+                "at_old": old.get("at"), "at_new": new.get("at")}
+        for q in STEP_QUANTITIES:
+            if q in old or q in new:
+                rows.append({**base, "quantity": q, "old": old.get(q), "new": new.get(q),
+                             "change": ch.get(q)})
+    for key, *_ in TOTALS:
+        rows.append({"record": "total", "name": "total", "quantity": key,
+                     "old": (diff["old"] or {}).get(key), "new": (diff["new"] or {}).get(key),
+                     "change": (diff.get("change") or {}).get(key)})
+    for how, f in _findings_lines(diff):
+        rows.append({"record": "finding", "name": ", ".join(f["steps"]), "status": how,
+                     "severity": f["severity"], "rule": f["rule"], "message": f["message"]})
+    if diff.get("error"):
+        rows.append({"record": "error", "status": diff["error"]["side"],
+                     "message": diff["error"]["message"]})
+    rows.append({"record": "caution", "message": CAUTION})
+    return write_csv(rows, DIFF_CSV)

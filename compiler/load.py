@@ -13,4 +13,9 @@ def load_text(text: str, path: str = "<plan>") -> Program:
 
 
 def load(path: str) -> Program:
+    """The lowered plan in ``path``; ``-`` reads standard input."""
+    if path == "-":
+        import sys
+
+        return lower(parse(sys.stdin.read().removeprefix("\ufeff"), "<stdin>"))
     return lower(parse_file(path))

@@ -125,12 +125,15 @@ class Lowerer:
         steps = tuple(self._step(s) for s in steps_ast)
         ceiling = None
         if self.ceiling is not None:
-            ceiling = self.ceiling.value.internal() + self.body.radius
+            given = self.ceiling.value.internal()
+            ceiling = given if self.ceiling.is_radius else given + self.body.radius
             if ceiling <= float(np.linalg.norm(r)):
-                raise _err(f"the ceiling ({self.ceiling.value.internal():g} km altitude) is "
-                           "below the start orbit", self.ceiling,
+                how = "radius" if self.ceiling.is_radius else "altitude"
+                raise _err(f"the ceiling ({given:g} km {how}) is below the start orbit",
+                           self.ceiling,
                            "the ceiling bounds the apoapsis of detours `check` suggests; give "
-                           "an altitude above the start")
+                           "one above the start: `ceiling 1000 km` is an altitude above the "
+                           "equatorial radius, `ceiling radius 7400 km` is from the centre")
         return Program(self.title, self.body, self.craft, self.margin, self.reserve, r, v,
                        steps, self.plan.source, self.plan, self.start.span, ceiling)
 
@@ -175,6 +178,13 @@ class Lowerer:
     def _around(self, st: ast.Around) -> None:
         name = st.body.text
         body = self.defined.get(name) or bodies.lookup(name)
+        later = next((d for d in self.plan.statements if isinstance(d, ast.BodyDef)
+                      and d.name.text == name and d.span.line > st.span.line), None)
+        if body is None and later is not None:
+            raise _err(f"body `{name}` is defined on line {later.span.line}, after this "
+                       "`around`", st.body,
+                       f"move `body {name} {{ ... }}` above `around {name}`: a body is "
+                       "defined before the plan goes around it")
         if body is None:
             pool = list(self.defined) + bodies.names()
             guess = did_you_mean(name, pool)

@@ -1,80 +1,29 @@
-"""Renderers of a budget dict: a rich table for the terminal, JSON, Markdown and CSV."""
+"""Renderers of a budget dict: a rich table for the terminal, JSON, Markdown and CSV.
+
+The step table is data: ``STEP_COLUMNS`` lists every column with its heading (units in
+the heading), its cell and its priority.  ``fit`` keeps the columns that fit the
+terminal, dropping the least needed first, so a row never wraps; ``--columns all``
+asks for every column whatever the width.  A new report field is one more column.
+"""
 
 from __future__ import annotations
 
-import csv
-import io
-import json
+from collections.abc import Callable
+from dataclasses import dataclass
 
-from rich import box
-from rich.console import Console
-from rich.table import Table
-from rich.text import Text
-
-from .budget import shortfall_text
-
-
-def duration(seconds: float | None) -> str:
-    """Elapsed time as a reader counts it.
-
-    >>> duration(93784.5)
-    '1 d 02:03:04.5'
-    >>> duration(61)
-    '00:01:01.0'
-    """
-    if seconds is None:
-        return "-"
-    days, rest = divmod(float(seconds), 86400.0)
-    h, rest = divmod(rest, 3600.0)
-    m, s = divmod(rest, 60.0)
-    clock = f"{int(h):02d}:{int(m):02d}:{s:04.1f}"
-    return f"{int(days)} d {clock}" if days else clock
-
-
-def _num(x, fmt: str) -> str:
-    return "-" if x is None else format(x, fmt)
-
+from .textfmt import angle_text, duration, length, short, sig
 
 WRAPPED_ANGLES = {"raan", "argp", "anomaly"}  # reported in [0, 360) deg
 
 
-def angle_text(deg: float | None, fmt: str) -> str:
-    """An angle in [0, 360) deg as text, wrapped after rounding so 359.99996 is not 360.0.
-
-    >>> angle_text(359.99996, ".1f"), angle_text(359.9999999, ".6g"), angle_text(12.25, ".1f")
-    ('0.0', '0', '12.2')
-    """
-    if deg is None:
-        return "-"
-    text = format(deg % 360.0, fmt)
-    return format(0.0, fmt) if float(text) >= 360.0 or float(text) == 0.0 else text
-
-
-def orbit_text(o: dict) -> str:
-    ap = "open" if o["apoapsis_alt_km"] is None else _num(o["apoapsis_alt_km"], ",.1f")
-    return (f"{_num(o['periapsis_alt_km'], ',.1f')} x {ap} km, "
-            f"i {_num(o['inclination_deg'], '.3f')} deg")
-
-
-def _where(step: dict) -> str:
-    return step["at"]
-
-
-def check_text(c: dict) -> str:
-    """One expectation check as a reader says it: `apoapsis 1200 km within 1 km: actual ...`."""
-    unit = f" {c['unit']}" if c["unit"] else ""
-    num = ((lambda x: angle_text(x, ".6g")) if c["kind"] in WRAPPED_ANGLES
-           else (lambda x: f"{x:.6g}"))
-    if c["comparator"] == "within":
-        cond = f"{num(c['expected'])}{unit} within {c['tolerance']:.6g}{unit}"
-    else:
-        cond = f"{c['comparator']} {num(c['expected'])}{unit}"
-    if c.get("reason"):
-        return f"{c['kind']} {cond}: {c['reason']}"
-    if c["kind"] == "circular":
-        return (f"{c['kind']} {cond}: actual {c['actual_periapsis']:.6g} x "
-                f"{c['actual_apoapsis']:.6g}{unit}")
-    return f"{c['kind']} {cond}: actual {num(c['actual'])}{unit}"
+@dataclass(frozen=True)
+class Column:
+    key: str  # the name `--columns` takes
+    heading: str  # with its unit; may wrap onto two lines at a space
+    cell: Callable[[dict], str]
+    priority: int  # 0 is kept longest; higher numbers give way first
+    right: bool = True
+    csv: bool = True  # cells of this column are also meaningful in Markdown
 
 
 def priced(step: dict) -> bool:
@@ -82,27 +31,173 @@ def priced(step: dict) -> bool:
     return step["kind"] in ("burn", "allow")
 
 
-def propellant_cell(step: dict, fmt: str) -> str:
+def _burn(key: str, digits: int = 4) -> Callable[[dict], str]:
+    return lambda s: sig(s.get(key), digits) if priced(s) else ""
+
+
+def _propellant(s: dict) -> str:
     """A step's propellant; a star where the load no longer covers it (see fit_lines)."""
-    return format(step["propellant_kg"], fmt) + ("" if step.get("covered", True) else "*")
+    if not priced(s):
+        return ""
+    return sig(s["propellant_kg"]) + ("" if s.get("covered", True) else "*")
+
+
+def orbit_text(o: dict) -> str:
+    """Orbit after a step, compactly: periapsis x apoapsis altitude in km, then incl.
+
+    >>> orbit_text({"periapsis_alt_km": 400.0, "apoapsis_alt_km": 33000.0,
+    ...             "inclination_deg": 75.0})
+    '400.0 x 33,000 i 75.00'
+    >>> orbit_text({"periapsis_alt_km": 400.0, "apoapsis_alt_km": None,
+    ...             "inclination_deg": 1.5})
+    '400.0 x open i 1.500'
+    """
+    ap = "open" if o["apoapsis_alt_km"] is None else sig(o["apoapsis_alt_km"])
+    return f"{sig(o['periapsis_alt_km'])} x {ap} i {sig(o['inclination_deg'])}"
+
+
+STEP_COLUMNS: tuple[Column, ...] = (
+    Column("index", "#", lambda s: str(s["index"]), 0),
+    Column("step", "step", lambda s: s["name"], 0, right=False),
+    Column("kind", "kind", lambda s: s["kind"], 1, right=False),
+    Column("at", "at", lambda s: s["at"], 3, right=False),
+    Column("dv", "Δv m/s", _burn("dv_m_s"), 0),
+    Column("margin", "Δv+margin m/s", _burn("dv_with_margin_m_s"), 2),
+    Column("propellant", "propellant kg", _propellant, 0),
+    Column("mass", "mass after kg", lambda s: sig(s["mass_after_kg"]), 1),
+    Column("burn", "burn time s", _burn("burn_time_s", 3), 4),
+    Column("engine", "engine", lambda s: s.get("engine", ""), 5, right=False),
+    Column("orbit", "orbit after: alt. km x km, incl. deg",
+           lambda s: orbit_text(s["orbit_after"]), 0, right=False),
+    Column("elapsed", "elapsed d hh:mm:ss", lambda s: duration(s["elapsed_s"]), 2),
+)
+COLUMN_KEYS = tuple(c.key for c in STEP_COLUMNS)
+
+
+def pick_columns(spec: str | None, columns=STEP_COLUMNS) -> tuple[tuple, bool]:
+    """The columns ``--columns`` names (``all``, or keys separated by commas; the step's
+    number and name always), and whether the table keeps them all whatever the width."""
+    if spec is None:
+        return columns, False
+    if spec == "all":
+        return columns, True
+    keys = [k.strip() for k in spec.split(",") if k.strip()]
+    by_key = {c.key: c for c in columns}
+    unknown = [k for k in keys if k not in by_key]
+    if unknown:
+        from .cliutil import UsageError
+
+        raise UsageError(f"--columns: no column `{unknown[0]}`; the columns are "
+                         f"{', '.join(by_key)} (or `all`)")
+    keys += ["index", "step"]  # a row always says which step it is
+    return tuple(c for c in columns if c.key in keys), True
+
+
+def _build(title: str | None, columns, rows: list[list[str]], widths: list[int]):
+    from rich import box
+    from rich.table import Table
+
+    t = Table(title=title, box=box.SIMPLE_HEAD, title_justify="left", pad_edge=False,
+              collapse_padding=True, show_edge=False)
+    for c, w in zip(columns, widths):
+        t.add_column(c.heading, justify="right" if c.right else "left", width=w)
+    for row in rows:
+        t.add_row(*row)
+    return t
+
+
+def _width(heading: str, cells: list[str]) -> int:
+    """A column's width: its longest cell, and its heading's longest word (a heading may
+    wrap onto a second line at a space; a cell never does)."""
+    from rich.cells import cell_len
+
+    return max([cell_len(w) for w in heading.split()] + [cell_len(c) for c in cells])
+
+
+def fit(console, title, columns, records: list[dict], keep_all: bool = False):
+    """A rich table of ``records`` under ``columns``, and the width it needs, with the
+    least needed columns dropped (highest priority number first, the rightmost of a
+    tie first) until one record is one line at the console's width."""
+    cells = [[c.cell(r) for c in columns] for r in records]
+    widths = [_width(c.heading, [row[i] for row in cells]) for i, c in enumerate(columns)]
+    keep = list(range(len(columns)))
+    while True:
+        need = sum(widths[i] for i in keep) + 2 * (len(keep) - 1)
+        droppable = [i for i in keep if columns[i].priority > 0]
+        if keep_all or need <= console.width or not droppable:
+            break
+        keep.remove(max(droppable, key=lambda i: (columns[i].priority, i)))
+    t = _build(title, [columns[i] for i in keep], [[row[i] for i in keep] for row in cells],
+               [widths[i] for i in keep])
+    return t, need
+
+
+def check_text(c: dict) -> str:
+    """One expectation check as a reader says it: `apoapsis 1200 km within 1 km: actual ...`.
+
+    Numbers as a plan writes them (no thousands separators), six significant digits;
+    an interplanetary distance with its astronomical units beside it.
+    """
+    unit = f" {c['unit']}" if c["unit"] else ""
+    if c["unit"] == "km":
+        def num(x):
+            text = length(x, sep=False)
+            return text[: -len(" km")] if x is not None and abs(x) < 1e7 else text
+    elif c["kind"] in WRAPPED_ANGLES:
+        def num(x):
+            return angle_text(x, ".6g")
+    else:
+        def num(x):
+            return short(x, sep=False)
+
+    def with_unit(x):
+        text = num(x)
+        return text if text.endswith(")") else text + unit  # `(1.52 au)` already has one
+
+    if c["comparator"] == "within":
+        cond = f"{with_unit(c['expected'])} within {with_unit(c['tolerance'])}"
+    else:
+        cond = f"{c['comparator']} {with_unit(c['expected'])}"
+    if c.get("reason"):
+        return f"{c['kind']} {cond}: {c['reason']}"
+    if c["kind"] == "circular":
+        return (f"{c['kind']} {cond}: actual {num(c['actual_periapsis'])} x "
+                f"{with_unit(c['actual_apoapsis'])}")
+    return f"{c['kind']} {cond}: actual {with_unit(c['actual'])}"
+
+
+def total_lines(tot: dict) -> list[str]:
+    reserve = "covered" if tot["reserve_met"] else "NOT covered"
+    return [
+        (f"total delta-v        {sig(tot['dv_m_s'])} m/s "
+         f"({sig(tot['dv_with_margin_m_s'])} m/s with margin)"),
+        (f"propellant used      {sig(tot['propellant_kg'])} kg, "
+         f"left {sig(tot['propellant_left_kg'])} kg"),
+        f"final mass           {sig(tot['final_mass_kg'])} kg",
+        (f"delta-v capacity     {sig(tot['dv_capacity_left_m_s'])} m/s left "
+         f"(reserve {sig(tot['reserve_m_s'])} m/s: {reserve})"),
+        f"elapsed              {duration(tot['elapsed_s'])}",
+    ]
 
 
 def fit_lines(report: dict) -> list[str]:
-    """Whether the load flies the plan, in words (empty when it does and says nothing new)."""
+    """Residual, allowances, components and whether the load flies the plan, in words."""
+    from .budget import shortfall_text
+
     tot = report["totals"]
     out = []
     if tot.get("residual_kg"):
-        out.append(f"residual             {tot['residual_kg']:,.2f} kg of the "
-                   f"{tot['load_kg']:,.2f} kg load cannot be used")
+        out.append(f"residual             {sig(tot['residual_kg'])} kg of the "
+                   f"{sig(tot['load_kg'])} kg load cannot be used")
     allow = tot.get("allowances")
     if allow:
-        out.append(f"allowances           {allow['total_m_s']:,.1f} m/s = "
-                   f"{allow['deterministic_m_s']:,.1f} deterministic + "
-                   f"{allow['statistical_rss_m_s']:,.1f} statistical (root-sum-square of "
-                   f"{allow['statistical_sum_m_s']:,.1f})")
+        out.append(f"allowances           {sig(allow['total_m_s'])} m/s = "
+                   f"{sig(allow['deterministic_m_s'])} deterministic + "
+                   f"{sig(allow['statistical_rss_m_s'])} statistical (root-sum-square of "
+                   f"{sig(allow['statistical_sum_m_s'])})")
     if "fuel_kg" in tot:
-        out.append(f"components           fuel {tot['fuel_kg']:,.2f} kg, oxidiser "
-                   f"{tot['oxidiser_kg']:,.2f} kg burnt")
+        out.append(f"components           fuel {sig(tot['fuel_kg'])} kg, oxidiser "
+                   f"{sig(tot['oxidiser_kg'])} kg burnt")
     if not report.get("feasible", True) and "error" not in report:
         out.append(f"DOES NOT FIT         {shortfall_text(report)}"
                    + (" (steps marked * are not covered, priced as if the tanks held the "
@@ -110,39 +205,24 @@ def fit_lines(report: dict) -> list[str]:
     return out
 
 
-def table(report: dict, console: Console) -> None:
+def table(report: dict, console, columns: str | None = None) -> None:
+    from rich.text import Text
+
     title = report["plan"] or report["source"]
-    t = Table(title=f"Delta-v budget: {title}", box=box.SIMPLE_HEAVY, title_justify="left")
-    for col, just in (("#", "right"), ("step", "left"), ("where", "left"),
-                      ("delta-v m/s", "right"), ("with margin", "right"),
-                      ("propellant kg", "right"), ("mass after kg", "right"),
-                      ("orbit after: periapsis x apoapsis, incl.", "left"),
-                      ("elapsed", "right")):
-        t.add_column(col, justify=just)
-    for s in report["steps"]:
-        burn = priced(s)
-        t.add_row(str(s["index"]), f"{s['kind']} {s['name']}", _where(s),
-                  f"{s['dv_m_s']:,.1f}" if burn else "",
-                  f"{s['dv_with_margin_m_s']:,.1f}" if burn else "",
-                  propellant_cell(s, ",.2f") if burn else "",
-                  f"{s['mass_after_kg']:,.2f}", orbit_text(s["orbit_after"]),
-                  duration(s["elapsed_s"]))
-    console.print(t)
-    tot = report["totals"]
-    lines = [
-        (f"total delta-v        {tot['dv_m_s']:,.1f} m/s  "
-        f"({tot['dv_with_margin_m_s']:,.1f} m/s with margin)"),
-        (f"propellant used      {tot['propellant_kg']:,.2f} kg   "
-        f"left {tot['propellant_left_kg']:,.2f} kg"),
-        f"final mass           {tot['final_mass_kg']:,.2f} kg",
-        (f"delta-v capacity     {tot['dv_capacity_left_m_s']:,.1f} m/s left "
-        f"(reserve {tot['reserve_m_s']:,.1f} m/s: "
-        f"{'covered' if tot['reserve_met'] else 'NOT covered'})"),
-        f"elapsed              {duration(tot['elapsed_s'])}",
-        *fit_lines(report),
-    ]
-    for line in lines:
-        console.print(line, highlight=False)
+    cols, keep_all = pick_columns(columns)
+    console.print(f"Delta-v budget: {title}", style="bold", highlight=False, markup=False)
+    t, need = fit(console, None, cols, report["steps"], keep_all)
+    if keep_all and need > console.width:  # asked for: lines past the terminal's edge
+        width, console.width = console.width, need
+        console.print(t)
+        console.width = width
+    else:
+        console.print(t)
+    console.print()
+    for line in total_lines(report["totals"]):
+        console.print(line, highlight=False, markup=False)
+    for line in fit_lines(report):  # sentences: rich wraps them at the terminal's width
+        console.print(Text(line), highlight=False)
     checks = [(s, c) for s in report["steps"] for c in s.get("checks", [])]
     if checks:
         console.print()
@@ -153,14 +233,19 @@ def table(report: dict, console: Console) -> None:
     if report.get("findings"):
         console.print()
         console.print("Findings", style="bold")
-        for f in report["findings"]:
-            console.print(f"  {f['severity']} {f['rule']}: {f['message']}", highlight=False,
-                          markup=False)
+        from rich.padding import Padding
+
+        for f in report["findings"]:  # prose, wrapped under its own indent
+            console.print(Padding(Text(f"{f['severity']} {f['rule']}: {f['message']}"),
+                                  (0, 0, 0, 2)), highlight=False)
     console.print()
-    console.print(f"Caution: {report['caution']}", style="italic", highlight=False)
+    console.print(f"Caution: {report['caution']}", style="italic", highlight=False,
+                  markup=False)
 
 
 def to_json(report: dict) -> str:
+    import json
+
     return json.dumps(report, indent=2, allow_nan=False)
 
 
@@ -170,28 +255,12 @@ def _md_row(cells) -> str:
 
 def markdown(report: dict) -> str:
     out = [f"## Delta-v budget: {report['plan'] or report['source']}", ""]
-    out.append(_md_row(["#", "step", "where", "delta-v (m/s)", "with margin (m/s)",
-                        "propellant (kg)", "mass after (kg)", "orbit after", "elapsed"]))
-    out.append("|" + "---|" * 9)
+    out.append(_md_row([c.heading for c in STEP_COLUMNS]))
+    out.append("|" + "".join("--:|" if c.right else "---|" for c in STEP_COLUMNS))
     for s in report["steps"]:
-        burn = priced(s)
-        out.append(_md_row([s["index"], f"{s['kind']} `{s['name']}`", s["at"],
-                            f"{s['dv_m_s']:.1f}" if burn else "",
-                            f"{s['dv_with_margin_m_s']:.1f}" if burn else "",
-                            propellant_cell(s, ".2f") if burn else "",
-                            f"{s['mass_after_kg']:.2f}", orbit_text(s["orbit_after"]),
-                            duration(s["elapsed_s"])]))
-    tot = report["totals"]
-    out += ["", _md_row(["total", "value"]), "|---|---|",
-            _md_row(["delta-v", f"{tot['dv_m_s']:.1f} m/s"]),
-            _md_row(["delta-v with margin", f"{tot['dv_with_margin_m_s']:.1f} m/s"]),
-            _md_row(["propellant used", f"{tot['propellant_kg']:.2f} kg"]),
-            _md_row(["propellant left", f"{tot['propellant_left_kg']:.2f} kg"]),
-            _md_row(["final mass", f"{tot['final_mass_kg']:.2f} kg"]),
-            _md_row(["delta-v capacity left", f"{tot['dv_capacity_left_m_s']:.1f} m/s"]),
-            _md_row(["reserve", (f"{tot['reserve_m_s']:.1f} m/s "
-                     f"({'covered' if tot['reserve_met'] else 'not covered'})")]),
-            _md_row(["elapsed", duration(tot["elapsed_s"])])]
+        out.append(_md_row([(f"`{c.cell(s)}`" if c.key == "step" else c.cell(s))
+                            for c in STEP_COLUMNS]))
+    out += [""] + [f"    {line}" for line in total_lines(report["totals"])]
     fit = fit_lines(report)
     if fit:
         out += ["", *(f"- {' '.join(line.split())}" for line in fit)]
@@ -207,27 +276,80 @@ def markdown(report: dict) -> str:
     return "\n".join(out)
 
 
-CSV_COLUMNS = ["index", "name", "kind", "at", "dv_m_s", "dv_with_margin_m_s", "along_m_s",
-               "cross_m_s", "radial_m_s", "propellant_kg", "mass_after_kg", "duration_s",
-               "elapsed_s", "periapsis_alt_km", "apoapsis_alt_km", "sma_km", "ecc",
-               "inclination_deg", "raan_deg", "argp_deg", "anomaly_deg", "period_s", "covered"]
+# --- CSV: one header, one record kind per row -------------------------------------------
+#
+# Every row has every column, so a strict reader loads the file as one table; `record`
+# says what a row is: `step`, `total`, `check` (an expectation's result), `finding`,
+# `error` (the plan cannot be flown past this point) and `caution` (the text of the
+# report's caution, in `message`).  Cells that do not apply to a record are empty.
+
+STEP_CSV = ["index", "name", "kind", "at", "engine", "dv_m_s", "dv_with_margin_m_s",
+            "along_m_s", "cross_m_s", "radial_m_s", "propellant_kg", "mass_after_kg",
+            "burn_time_s", "coast_time_s", "duration_s", "elapsed_s", "periapsis_alt_km",
+            "apoapsis_alt_km", "sma_km", "ecc", "inclination_deg", "raan_deg", "argp_deg",
+            "anomaly_deg", "period_s", "covered", "fuel_kg", "oxidiser_kg"]
+CHECK_CSV = ["check", "comparator", "expected", "tolerance", "actual", "unit", "passed"]
+MESSAGE_CSV = ["severity", "rule", "message"]
+CSV_COLUMNS = ["record", "source", *STEP_CSV, *CHECK_CSV, *MESSAGE_CSV]
+
+
+def csv_cell(x) -> str | float:
+    if x is None:
+        return ""
+    if isinstance(x, bool):
+        return "true" if x else "false"
+    return x
+
+
+def csv_records(report: dict) -> list[dict]:
+    """The rows of a run's CSV, as dicts keyed by ``CSV_COLUMNS``."""
+    src = report["source"]
+    rows = []
+    for s in report["steps"]:
+        vec = s["vector_m_s"]
+        rows.append({**s, **s["orbit_after"], "record": "step", "source": src,
+                     "along_m_s": vec["along"], "cross_m_s": vec["cross"],
+                     "radial_m_s": vec["radial"]})
+        for c in s.get("checks", []):
+            rows.append({"record": "check", "source": src, "index": s["index"],
+                         "name": s["name"], "kind": s["kind"], "check": c["kind"],
+                         "passed": c["passed"], "message": c.get("reason"),
+                         **{k: c[k] for k in ("comparator", "expected", "tolerance",
+                                              "actual", "unit")}})
+    tot = report["totals"]
+    rows.append({"record": "total", "source": src, "name": "total", "dv_m_s": tot["dv_m_s"],
+                 "dv_with_margin_m_s": tot["dv_with_margin_m_s"],
+                 "propellant_kg": tot["propellant_kg"], "mass_after_kg": tot["final_mass_kg"],
+                 "elapsed_s": tot["elapsed_s"]})
+    if not report.get("feasible", True) and "error" not in report:
+        from .budget import shortfall_text
+
+        rows.append({"record": "fit", "source": src, "severity": "error",
+                     "propellant_kg": tot.get("propellant_needed_kg"),
+                     "message": "the plan does not fit its load: " + shortfall_text(report)})
+    for f in report.get("findings", []):
+        rows.append({"record": "finding", "source": src, "name": ", ".join(f.get("steps", [])),
+                     "severity": f["severity"], "rule": f["rule"], "message": f["message"]})
+    if report.get("error"):
+        err = report["error"]
+        rows.append({"record": "error", "source": src, "severity": "error",
+                     "message": err["message"] + (f" ({err['hint']})" if err.get("hint")
+                                                  else "")})
+    rows.append({"record": "caution", "source": src, "message": report["caution"]})
+    return rows
+
+
+def write_csv(rows: list[dict], columns: list[str]) -> str:
+    import csv
+    import io
+
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(columns)
+    for r in rows:
+        w.writerow([csv_cell(r.get(c)) for c in columns])
+    return buf.getvalue()
 
 
 def to_csv(report: dict) -> str:
-    buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(CSV_COLUMNS)
-    for s in report["steps"]:
-        o, vec = s["orbit_after"], s["vector_m_s"]
-        flat = {**s, **o, "along_m_s": vec["along"], "cross_m_s": vec["cross"],
-                "radial_m_s": vec["radial"]}
-        flat.setdefault("covered", "")
-        w.writerow(["" if flat[c] is None else flat[c] for c in CSV_COLUMNS])
-    tot = report["totals"]
-    w.writerow(["", "total", "", "", tot["dv_m_s"], tot["dv_with_margin_m_s"], "", "", "",
-                tot["propellant_kg"], tot["final_mass_kg"], "", tot["elapsed_s"]]
-               + [""] * (len(CSV_COLUMNS) - 13))
-    for line in fit_lines(report):
-        buf.write(f"# {' '.join(line.split())}\n")
-    buf.write(f"# Caution: {report['caution']}\n")
-    return buf.getvalue()
+    return write_csv(csv_records(report), CSV_COLUMNS)

@@ -15,18 +15,11 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from apsidal.lang.errors import PlanError
-from apsidal.lang.format import FormatError, format_plan
 from apsidal.lang.parse import parse, parse_file
 from apsidal.lang.units import UNITS, to_internal
 
-from . import diff_render, render
-from .budget import budget
 from .cliutil import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_INTERNAL, EXIT_OK, UsageError, write_atomic
 from .cliutil import console as _console
-from .diff import diff_reports, grows_past, step_info
-from .evaluate import run
-from .gitsource import GitError, read_at, split_range
-from .lower import lower
 
 
 def register(sub) -> None:
@@ -51,10 +44,11 @@ def register(sub) -> None:
     d.add_argument("--rev", metavar="REV", help="read the old side from git at REV "
                    "(the new side is the working file), or both sides with REV_A..REV_B; "
                    "default HEAD when one plan is given")
-    d.add_argument("--format", choices=("table", "markdown", "json"), default="table")
-    d.add_argument("--fail-over", action="append", nargs="+", default=[], metavar="AMOUNT",
+    d.add_argument("--format", choices=("table", "markdown", "json", "csv"), default="table")
+    d.add_argument("--fail-over", action="append", default=[], metavar="AMOUNT",
                    help="exit 1 when delta-v with margin grows by more than a speed "
-                   "(`10m/s`) or propellant by more than a mass (`2kg`); repeatable")
+                   "(`10m/s` or `10 m/s`) or propellant by more than a mass (`2kg`); "
+                   "repeat the option for a second threshold")
     d.add_argument("--no-findings", action="store_true",
                    help="skip the `check` rules (faster); findings are not compared")
     d.add_argument("--git-textconv", metavar="FILE", help="print FILE with its budget "
@@ -76,18 +70,17 @@ class FmtReport:
 
     def summary(self, check: bool) -> str:
         def count(n: int, what: str) -> str:
-            return f"{n} file{'s' if n != 1 else ''} {what}"
+            return f"{n} plan{'s' if n != 1 else ''} {what}"
 
-        verb = "would be reformatted" if check else "reformatted"
+        verb = "not in canonical layout" if check else "rewritten in canonical layout"
         parts = [count(len(self.changed), verb)] if self.changed else []
         if self.unchanged:
-            parts.append(count(len(self.unchanged),
-                               "already formatted" if check else "left unchanged"))
+            parts.append(count(len(self.unchanged), "already canonical"))
         if self.failed:
             parts.append(count(len(self.failed), "could not be read or parsed"))
         if self.internal:
             parts.append(count(len(self.internal), "hit an internal error"))
-        return ", ".join(parts) + "."
+        return "fmt: " + ", ".join(parts) + "."
 
     def exit_code(self, check: bool) -> int:
         if self.internal:
@@ -119,6 +112,8 @@ def cmd_fmt(args) -> int:
 
 
 def _fmt_one(path: str, args, report: FmtReport, header: bool) -> None:
+    from apsidal.lang.format import FormatError, format_plan
+
     try:
         original, plan = _read_plan(path)
         formatted = format_plan(plan)
@@ -150,7 +145,7 @@ def _fmt_one(path: str, args, report: FmtReport, header: bool) -> None:
                   "is left as it was", file=sys.stderr)
             report.failed.append(path)
             return
-        print(f"reformatted {path}", file=sys.stderr)
+        print(f"rewrote {path} in canonical layout", file=sys.stderr)
     report.changed.append(path)
 
 
@@ -169,6 +164,9 @@ class Side:
 
 
 def _price(side: Side, findings: bool) -> Side:
+    from .budget import budget
+    from .evaluate import run
+
     result = run(side.program)
     side.report = budget(result)
     side.flight_error = result.error
@@ -189,6 +187,8 @@ def _findings(program) -> list[dict]:
 
 
 def _side_from_file(path: str, findings: bool) -> Side:
+    from .lower import lower
+
     try:
         program = lower(parse_file(path))
     except PlanError as err:
@@ -197,6 +197,9 @@ def _side_from_file(path: str, findings: bool) -> Side:
 
 
 def _side_from_git(path: str, rev: str, findings: bool) -> Side:
+    from .gitsource import GitError, read_at
+    from .lower import lower
+
     try:
         text, label = read_at(path, rev)
     except GitError as err:
@@ -209,6 +212,8 @@ def _side_from_git(path: str, rev: str, findings: bool) -> Side:
 
 
 def _sides(args) -> tuple[Side, Side]:
+    from .gitsource import GitError, split_range
+
     findings = not args.no_findings
     if len(args.plans) == 2:
         if args.rev:
@@ -216,8 +221,11 @@ def _sides(args) -> tuple[Side, Side]:
         return (_side_from_file(args.plans[0], findings),
                 _side_from_file(args.plans[1], findings))
     if len(args.plans) != 1:
+        amounts = [p for p in args.plans if QUANTITY.fullmatch(p) and not Path(p).exists()]
+        hint = (f"; `{amounts[0]}` looks like a threshold: give each its own --fail-over"
+                if amounts else "")
         raise UsageError("diff takes OLD.aps NEW.aps, or one plan with --rev REV "
-                         f"(got {len(args.plans)} plans)")
+                         f"(got {len(args.plans)} plans){hint}")
     path = args.plans[0]
     try:
         old_rev, new_rev = split_range(args.rev or "HEAD")
@@ -240,6 +248,8 @@ class Threshold:
     limit: float  # m/s or kg
 
     def exceeded(self, change: dict) -> bool:
+        from .diff import grows_past
+
         return grows_past(change, self.key, self.limit)
 
 
@@ -263,21 +273,6 @@ def parse_threshold(text: str) -> Threshold:
     return Threshold(text, "propellant_kg", value)
 
 
-def split_fail_over(groups: list[list[str]]) -> tuple[list[Threshold], list[str]]:
-    """The thresholds of every `--fail-over`, and the words after them that were plans.
-
-    `--fail-over` takes one word (`10m/s`) or two (`10 m/s`); argparse hands it every
-    word up to the next option, so plan files given after it are handed back.
-    """
-    thresholds, rest = [], []
-    for words in groups:
-        take = 2 if (len(words) >= 2 and QUANTITY.fullmatch(words[0]) is None
-                     and QUANTITY.fullmatch(" ".join(words[:2]))) else 1
-        thresholds.append(parse_threshold(" ".join(words[:take])))
-        rest += words[take:]
-    return thresholds, rest
-
-
 def _one_sided(good: Side, broken: Side, good_is_new: bool) -> dict:
     """The diff's JSON when one side does not parse: the other side's budget in full."""
     status = "added" if good_is_new else "removed"
@@ -292,6 +287,8 @@ def _one_sided(good: Side, broken: Side, good_is_new: bool) -> dict:
 
 
 def _emit_one_sided(args, old: Side, new: Side) -> int:
+    from . import diff_render, render
+
     broken, good = (old, new) if old.error else (new, old)
     print(broken.error.render(), file=sys.stderr)
     which = "old" if broken is old else "new"
@@ -299,6 +296,8 @@ def _emit_one_sided(args, old: Side, new: Side) -> int:
           f"{'new' if which == 'old' else 'old'} plan's budget follows", file=sys.stderr)
     if args.format == "json":
         sys.stdout.write(diff_render.to_json(_one_sided(good, broken, good is new)) + "\n")
+    elif args.format == "csv":
+        sys.stdout.write(diff_render.to_csv(_one_sided(good, broken, good is new)))
     elif args.format == "markdown":
         sys.stdout.write(f"**The {which} plan (`{broken.label}`) does not parse.** "
                          f"Budget of `{good.label}`:\n\n" + render.markdown(good.report))
@@ -308,12 +307,14 @@ def _emit_one_sided(args, old: Side, new: Side) -> int:
 
 
 def cmd_diff(args) -> int:
+    from . import diff_render
+    from .diff import diff_reports, step_info
+
     if args.git_textconv:
         if args.plans or args.rev:
             raise UsageError("--git-textconv takes only the file git hands it")
         return textconv(args.git_textconv)
-    thresholds, extra = split_fail_over(args.fail_over)
-    args.plans = list(args.plans) + extra
+    thresholds = [parse_threshold(t) for t in args.fail_over]
     old, new = _sides(args)
     if old.error and new.error:
         for side in (old, new):
@@ -325,6 +326,8 @@ def cmd_diff(args) -> int:
                           step_info(new.program), findings=not args.no_findings)
     if args.format == "json":
         sys.stdout.write(diff_render.to_json(result) + "\n")
+    elif args.format == "csv":
+        sys.stdout.write(diff_render.to_csv(result))
     elif args.format == "markdown":
         sys.stdout.write(diff_render.markdown(result, old.label, new.label))
     else:
@@ -350,6 +353,11 @@ def cmd_diff(args) -> int:
 
 def textconv(path: str) -> int:
     """The file's text with its budget appended; never fails, so `git diff` never does."""
+    from . import diff_render
+    from .budget import budget
+    from .evaluate import run
+    from .lower import lower
+
     try:
         text = Path(path).read_bytes().decode("utf-8", errors="replace")
     except OSError as err:

@@ -12,7 +12,6 @@ plan.aps:1:8: error: margin must be a ratio (%), not a mass
 
 from __future__ import annotations
 
-import difflib
 from collections.abc import Iterable
 from dataclasses import dataclass, field
 
@@ -102,5 +101,7 @@ def did_you_mean(word: str, choices: Iterable[str]) -> str | None:
     lowered = {c.lower(): c for c in pool}
     if word.lower() in lowered:
         return lowered[word.lower()]
+    import difflib  # on a mistake only: not at start-up
+
     match = difflib.get_close_matches(word.lower(), list(lowered), n=1, cutoff=0.6)
     return lowered[match[0]] if match else None

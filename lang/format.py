@@ -178,7 +178,7 @@ def _scene_line(stmt) -> str:
     if isinstance(stmt, ast.Around):
         return f"around {stmt.body.text}"
     if isinstance(stmt, ast.Setting):
-        return f"{stmt.key} {stmt.value.text()}"
+        return f"{stmt.key} {'radius ' if stmt.is_radius else ''}{stmt.value.text()}"
     if isinstance(stmt, ast.Start):
         return " ".join(["start" if stmt.form == "circular" else "start orbit",
                          *(_field(f) for f in stmt.fields)])

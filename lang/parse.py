@@ -23,7 +23,6 @@ flown is the compiler's business.
 
 from __future__ import annotations
 
-import difflib
 import math
 import re
 from collections.abc import Callable
@@ -123,8 +122,12 @@ def _keep_comment(token: Token) -> Token:
 
 @cache
 def _parser() -> Lark:
+    """The LALR parser, built once per process; the built tables are cached by lark in
+    the temporary directory, keyed by the grammar's hash, so later runs load them
+    instead of building them (an unwritable cache only costs the build)."""
     return Lark(
         GRAMMAR.read_text(encoding="utf-8"),
+        cache=True,
         parser="lalr",
         lexer="contextual",
         propagate_positions=True,
@@ -310,7 +313,10 @@ def _checked(value: ast.Quantity | ast.Distance, slot: Slot):
 def _wrong_dimension(q: ast.Quantity, slot: Slot, got: str) -> PlanError:
     need = slot.dimension
     got_text = "a plain number" if got == "number" else f"{_article(got)} {got} ({q.unit})"
-    if got == "number":
+    if got == "number" and need == "ratio" and 0 < q.value < 1:
+        hint = (f"a {slot.label} is written in percent: `{q.value * 100:g} %` for a fraction "
+                f"of {q.number}, or `{q.number} %` if you mean {q.number} percent")
+    elif got == "number":
         hint = f"add a unit, e.g. `{q.number} {PREFERRED[need]}`"
     elif need == "number":
         hint = f"{slot.label} has no unit: write `{q.number}`"
@@ -320,6 +326,8 @@ def _wrong_dimension(q: ast.Quantity, slot: Slot, got: str) -> PlanError:
 
 
 def _similarity(a: str, b: str) -> float:
+    import difflib  # on a mistake only: not at start-up
+
     return difflib.SequenceMatcher(None, a.lower(), b.lower()).ratio()
 
 
@@ -463,6 +471,10 @@ class _ToSyntax(Transformer):
     def setting(self, meta, children):
         key = str(children[0])
         return ast.Setting(key, _checked(children[1], SLOTS[f"setting.{key}"]), _span(meta))
+
+    def ceiling_radius(self, meta, children):
+        return ast.Setting("ceiling", _checked(children[-1], SLOTS["setting.ceiling"]),
+                           _span(meta), is_radius=True)
 
     def circular_field(self, meta, children):
         return ast.Field("circular", _checked(children[0], SLOTS["start.circular"]),
@@ -817,7 +829,7 @@ def _stray_unit(stack: list) -> PlanError | None:
 
 def _syntax_error(e: UnexpectedInput, source: Source) -> PlanError:
     stack = _stack(e)
-    error = _stray_unit(stack) or (
+    error = _stray_unit(stack) or _thousands(e, source) or (
         _bad_character(e, source, stack) if isinstance(e, UnexpectedCharacters)
         else _bad_token(e, source, stack))
     return error.located(_shown(source))
@@ -833,8 +845,48 @@ def _bad_character(e: UnexpectedCharacters, source: Source, stack: list) -> Plan
         return PlanError("unterminated string: the closing `\"` is missing", span,
                          hint='a title is one line in double quotes: `plan "..."`')
     shown = f"`{char}`" if char.isprintable() else f"U+{ord(char):04X}"
-    hint = _LOOKALIKES.get(char) or f"expected {_expected(_accepts(e), stack)}"
+    hint = _LOOKALIKES.get(char)
+    if hint is None and char.isalpha() and not char.isascii():
+        word = re.match(r"[\w\-]*", source.text[e.pos_in_stream:]).group(0)
+        start = source.text.rfind(" ", 0, e.pos_in_stream) + 1
+        whole = source.text[start:e.pos_in_stream] + word
+        return PlanError(f"`{whole}` has the letter {shown}, outside ASCII", span,
+                         hint="names are ASCII letters, digits, `-` and `_` (a letter or `_` "
+                         "first); spell it without accents, e.g. "
+                         f"`{_ascii_spelling(whole)}`; comments and the title may use any "
+                         "letter")
+    hint = hint or f"expected {_expected(_accepts(e), stack)}"
     return PlanError(f"unexpected character {shown}", span, hint=hint)
+
+
+def _ascii_spelling(word: str) -> str:
+    """``word`` without its accents, as a name can be written.
+
+    >>> _ascii_spelling("tätig-ö"), _ascii_spelling("grüß")
+    ('tatig-o', 'gruss')
+    """
+    import unicodedata
+
+    for letter, spelt in (("ß", "ss"), ("æ", "ae"), ("œ", "oe"), ("ø", "o"), ("ł", "l")):
+        word = word.replace(letter, spelt)
+    flat = unicodedata.normalize("NFKD", word).encode("ascii", "ignore").decode()
+    return flat or "name"
+
+
+def _thousands(e: UnexpectedInput, source: Source) -> PlanError | None:
+    """`1,000 km`, as apsidal prints numbers: a number cut at a thousands separator."""
+    token = getattr(e, "token", None)
+    if token is None or token.type not in ("NUMBER", "COMMA") or token.start_pos is None:
+        return None
+    m = re.compile(r"\d+(?:,\d{3})+(?:\.\d*)?\b").search(
+        source.text, max(token.start_pos - 40, 0))
+    while m is not None and m.end() <= token.start_pos:
+        m = re.compile(r"\d+(?:,\d{3})+(?:\.\d*)?\b").search(source.text, m.end())
+    if m is None or not m.start() < token.start_pos < m.end():
+        return None
+    digits = m.group(0)
+    return PlanError(f"`{digits}` has a thousands separator", _token_span(token),
+                     hint=f"write numbers without separators: `{digits.replace(',', '')}`")
 
 
 def _bad_token(e: UnexpectedInput, source: Source, stack: list) -> PlanError:

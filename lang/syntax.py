@@ -146,11 +146,13 @@ class CraftDef:
 
 @dataclass(frozen=True)
 class Setting:
-    """A plan-wide setting: ``margin 5 %``, ``reserve 25 m/s`` or ``ceiling 150000 km``."""
+    """A plan-wide setting: ``margin 5 %``, ``reserve 25 m/s``, ``ceiling 150000 km`` (an
+    altitude) or ``ceiling radius 156378 km`` (from the centre)."""
 
     key: str
     value: Quantity
     span: Span
+    is_radius: bool = False
 
 
 @dataclass(frozen=True)

@@ -14,7 +14,6 @@ internal unit for it (km, km/s, s, kg, N, rad, km3/s2, km2/s2, a plain fraction 
 
 from __future__ import annotations
 
-import difflib
 import math
 
 # unit -> (dimension, factor to the compiler's internal unit of that dimension)
@@ -36,6 +35,10 @@ UNITS: dict[str, tuple[str, float]] = {
     "t": ("mass", 1000.0),
     "N": ("force", 1.0),
     "kN": ("force", 1000.0),
+    "mN": ("force", 1e-3),  # electric thrusters are rated in mN
+    "uN": ("force", 1e-6),  # micronewtons, ASCII spelling
+    "µN": ("force", 1e-6),  # U+00B5 micro sign
+    "μN": ("force", 1e-6),  # U+03BC Greek mu
     "km3/s2": ("gravitational parameter", 1.0),
     "m3/s2": ("gravitational parameter", 1e-9),
     "km2/s2": ("specific energy", 1.0),
@@ -83,11 +86,15 @@ def suggest_unit(unit: str, dimension: str | None = None) -> str | None:
     'deg'
     """
     pool = units_of(dimension) if dimension else [u for u in UNITS if u]
+    if unit in pool:
+        return unit
     lowered = {u.lower(): u for u in pool}
-    if unit.lower() in lowered:
+    if unit.lower() in lowered and lowered[unit.lower()] != unit:
         return lowered[unit.lower()]
     squashed = {u.replace("/", "").lower(): u for u in pool}
     if unit.replace("/", "").lower() in squashed:
         return squashed[unit.replace("/", "").lower()]
+    import difflib  # on a mistake only: not at start-up
+
     match = difflib.get_close_matches(unit, pool, n=1, cutoff=0.5)
     return match[0] if match else None

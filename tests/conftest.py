@@ -23,6 +23,13 @@ if os.environ.get("CI"):
     settings.load_profile("ci")
 
 
+@pytest.fixture(autouse=True)
+def _screen_width(monkeypatch):
+    """Screens captured by the tests are laid out for 100 columns, whatever terminal the
+    tests run in (the CLI otherwise follows the terminal standard error is on)."""
+    monkeypatch.setenv("COLUMNS", "100")
+
+
 class Plans:
     """Plan text around a plan-defined body, and its priced chain."""
 

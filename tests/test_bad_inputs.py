@@ -306,7 +306,7 @@ CASES = [
         ("cannot be both `fixed` and `movable`",), "keep the one you mean"),
     Bad("ceiling-below-start", plan(start="ceiling 100 km\n" + START), 9, 1, "ceiling",
         ("the ceiling (100 km altitude) is below the start orbit",),
-        "give an altitude above the start"),
+        "`ceiling radius 7400 km` is from the centre"),
 ]
 
 assert len(CASES) >= 30

@@ -323,7 +323,7 @@ def test_diff_shows_reserve_and_allowances_and_a_fit_lost(tmp_path, capsys):
     assert d["change"]["allowances_m_s"] == pytest.approx(20.0)
     main(["diff", str(old), str(new), "--format", "markdown", "--no-findings"])
     out = capsys.readouterr().out
-    assert "no longer fits" in out and "reserve +1,475.0 m/s" in out
+    assert "no longer fits" in out and "reserve +1,475 m/s" in out
     assert "| reserve |" in out and "| allowances (priced) |" in out
 
 

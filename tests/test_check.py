@@ -440,7 +440,8 @@ burn raise: apoapsis to 1000 km using slow
 expect high apoapsis 1200 km within 1 km
 """).replace("engine main isp 320 s thrust 400 kN",
              "engine main isp 320 s thrust 400 kN\n    engine slow isp 320 s thrust 5 N")
-    assert cli.main(["run", write(tmp_path, text), "--format", "json"]) == 0
+    # an expectation that fails is an error finding: run exits 1, as check does
+    assert cli.main(["run", write(tmp_path, text), "--format", "json"]) == 1
     rules = {f["rule"] for f in json.loads(capsys.readouterr().out)["findings"]}
     assert rules == {"expectation-not-met", "long-burn"}
     # the reorder search is check's job, not run's

@@ -13,6 +13,7 @@ from pathlib import Path
 
 import pytest
 from apsidal.compiler.cli import main
+from apsidal.compiler.textfmt import sig
 from strictjson import strict_json
 
 SAMPLES = Path(__file__).resolve().parent.parent / "samples"
@@ -203,29 +204,51 @@ def test_step_chain_is_consistent(capsys, sample):
 
 
 def csv_rows(text: str) -> list[list[str]]:
-    lines = [ln for ln in text.splitlines() if ln.strip() and not ln.startswith("#")]
-    return list(csv.reader(io.StringIO("\n".join(lines))))
+    """A strict reader: every line is a record, every record has the header's fields."""
+    rows = list(csv.reader(io.StringIO(text), strict=True))
+    assert all(len(r) == len(rows[0]) for r in rows), "ragged CSV"
+    return rows
 
 
-def test_csv_has_header_steps_and_total(capsys, sample):
+def test_csv_has_header_steps_total_checks_and_caution(capsys, sample):
     rep = strict_json(run(capsys, "run", sample, "--format", "json")[1])
     code, out, _ = run(capsys, "run", sample, "--format", "csv")
     assert code == 0
+    assert not any(line.startswith("#") for line in out.splitlines())
     rows = csv_rows(out)
-    header, body, total = rows[0], rows[1:-1], rows[-1]
-    for key in ("index", "name", "kind", "dv_m_s", "propellant_kg", "mass_after_kg"):
+    header = rows[0]
+    for key in ("record", "index", "name", "kind", "engine", "dv_m_s", "propellant_kg",
+                "mass_after_kg", "burn_time_s", "coast_time_s", "check", "passed", "message"):
         assert key in header
-    assert len(body) == len(rep["steps"])
     col = {k: header.index(k) for k in header}
+    by = lambda kind: [r for r in rows[1:] if r[col["record"]] == kind]
+    body, (total,), (caution,) = by("step"), by("total"), by("caution")
+    assert len(body) == len(rep["steps"])
     for row, s in zip(body, rep["steps"]):
-        assert len(row) == len(header)
         assert row[col["name"]] == s["name"]
         assert float(row[col["dv_m_s"]]) == pytest.approx(s["dv_m_s"], abs=1e-6)
         assert float(row[col["mass_after_kg"]]) == pytest.approx(s["mass_after_kg"], abs=1e-6)
-    assert "total" in total
+        assert float(row[col["burn_time_s"]]) == pytest.approx(s["burn_time_s"], abs=1e-6)
+        assert float(row[col["coast_time_s"]]) == pytest.approx(s["coast_time_s"], abs=1e-6)
+        assert row[col["engine"]] == s.get("engine", "")
+    checks = [c for s in rep["steps"] for c in s.get("checks", [])]
+    assert [r[col["passed"]] for r in by("check")] == [
+        "true" if c["passed"] else "false" for c in checks]
+    assert len(by("finding")) == len(rep["findings"])
     assert float(total[col["dv_m_s"]]) == pytest.approx(rep["totals"]["dv_m_s"], abs=1e-6)
     assert float(total[col["propellant_kg"]]) == pytest.approx(
         rep["totals"]["propellant_kg"], abs=1e-6)
+    assert "impulsive two-body" in caution[col["message"]]
+
+
+def test_burn_time_and_coast_time_are_apart(capsys, sample):
+    rep = strict_json(run(capsys, "run", sample, "--format", "json")[1])
+    for s in rep["steps"]:
+        if s["kind"] == "coast":
+            assert s["burn_time_s"] == 0.0 and s["coast_time_s"] == s["duration_s"] > 0
+        if s["kind"] == "burn":
+            assert s["burn_time_s"] == s["duration_s"] > 0
+            assert s["coast_time_s"] == s["coast_before_s"]
 
 
 @pytest.mark.parametrize("fmt", ["table", "markdown"])
@@ -235,7 +258,7 @@ def test_text_formats_name_every_step_and_the_total(capsys, sample, fmt):
     assert code == 0
     for s in rep["steps"]:
         assert s["name"] in out
-    assert f"{rep['totals']['dv_m_s']:,.1f}".replace(",", "") in out.replace(",", "")
+    assert f"total delta-v        {sig(rep['totals']['dv_m_s'])} m/s" in out
     if fmt == "markdown":
         assert out.lstrip().startswith("## ")
         assert "|---|" in out
@@ -293,7 +316,11 @@ def test_a_plan_that_does_not_fit_is_priced_in_full_and_exits_1(capsys, tmp_path
                                                      - tot["load_kg"])
         assert all(s["dv_m_s"] > 0 for s in rep["steps"] if s["kind"] == "burn")
     elif fmt == "csv":
-        assert "DOES NOT FIT" in out and ",False" in out
+        rows = list(csv.DictReader(io.StringIO(out)))
+        (fit,) = [r for r in rows if r["record"] == "fit"]
+        assert "does not fit its load" in fit["message"]
+        assert [r["covered"] for r in rows if r["record"] == "step"] == [
+            "true", "", "false", "false"]
     else:
         assert "DOES NOT FIT" in out and "runs out at ring" in out
         assert re.search(r"\bring\b", out) and re.search(r"\bfar\b", out)

@@ -18,7 +18,7 @@ from pathlib import Path
 import pytest
 from apsidal.compiler.cli import main
 from apsidal.compiler.diff import diff_reports
-from apsidal.compiler.review_cli import parse_threshold, split_fail_over
+from apsidal.compiler.review_cli import parse_threshold
 
 pytestmark = pytest.mark.skipif(shutil.which("git") is None, reason="git is not installed")
 
@@ -109,8 +109,11 @@ def run_report(capsys, tmp_path: Path, text: str, name: str) -> dict:
     path = tmp_path / f"{name}.aps"
     path.write_text(text)
     code, out, err = cli(capsys, "run", path, "--format", "json")
-    assert code == 0, err
-    return json.loads(out)
+    rep = json.loads(out)
+    failed = not rep["totals"]["expectations_met"] or any(
+        f["severity"] == "error" for f in rep["findings"])
+    assert code == (1 if failed else 0), err  # run exits 1 for a failed expectation
+    return rep
 
 
 def rev_diff(capsys, history, old: str, new: str, *extra) -> dict:
@@ -401,9 +404,21 @@ def test_fail_over_mass_before_the_plan_files(capsys, tmp_path):
 def test_threshold_parsing():
     assert parse_threshold("10m/s").limit == pytest.approx(10.0)
     assert parse_threshold("2 kg").key == "propellant_kg"
-    thresholds, rest = split_fail_over([["5", "m/s", "a.aps", "b.aps"], ["1kg"]])
-    assert [t.limit for t in thresholds] == [pytest.approx(5.0), 1.0]
-    assert rest == ["a.aps", "b.aps"]
+
+
+
+def test_fail_over_after_the_plans_takes_one_amount(capsys, tmp_path):
+    old, new = tmp_path / "old.aps", tmp_path / "new.aps"
+    old.write_text(BASE)
+    new.write_text(BASE.replace("margin 5 %", "margin 8 %"))
+    code, _, err = cli(capsys, "diff", old, new, "--no-findings", "--fail-over", "2kg",
+                       "--fail-over", "20", "m/s")
+    assert code == 1 and "kg propellant" in err
+    with pytest.raises(SystemExit) as stop:  # argparse's own exit, worded by us
+        cli(capsys, "diff", old, new, "--no-findings", "--fail-over", "5kg", "20m/s")
+    err = capsys.readouterr().err
+    assert stop.value.code == 2 and err.startswith("usage: apsidal diff")
+    assert "unrecognized arguments: 20m/s" in err and "its own option" in err
 
 
 @pytest.mark.parametrize("words", [["10"], ["10", "s"], ["fast"], ["10", "km"]])
@@ -475,7 +490,7 @@ def test_a_side_that_does_not_parse_still_shows_the_other(tmp_path_factory, caps
     assert d["old"]["dv_m_s"] > 0 and {e["status"] for e in d["steps"]} == {"removed"}
     code, out, _ = cli(capsys, "diff", plan, "--rev", f"{bad}..{good}", "--format", "markdown",
                        "--no-findings")
-    assert code == 2 and out.startswith("**The old plan (") and "| burn `raise`" in out
+    assert code == 2 and out.startswith("**The old plan (") and "| `raise` | burn |" in out
 
 
 def test_a_new_side_that_no_longer_fits_says_so_and_exits_1(capsys, tmp_path):

@@ -215,7 +215,7 @@ def test_check_exits_1_with_a_unified_diff(tmp_path, capsys):
     assert code == 1
     assert out.startswith(f"--- {plan}\n+++ {plan} (formatted)\n@@")
     assert "-around   earth # where\n" in out and "+around earth  # where\n" in out
-    assert "1 file would be reformatted." in err
+    assert "fmt: 1 plan not in canonical layout." in err
     assert plan.read_text() == MESSY
 
 
@@ -224,7 +224,7 @@ def test_check_passes_on_formatted_files(tmp_path, capsys):
     plan.write_text(format_text(MESSY))
     code, out, err = fmt_cli(capsys, "--check", plan)
     assert (code, out) == (0, "")
-    assert "1 file already formatted." in err
+    assert "fmt: 1 plan already canonical." in err
 
 
 def test_write_rewrites_keeps_mode_and_then_checks_clean(tmp_path, capsys):
@@ -232,7 +232,7 @@ def test_write_rewrites_keeps_mode_and_then_checks_clean(tmp_path, capsys):
     plan.write_text(MESSY)
     plan.chmod(0o640)
     code, _, err = fmt_cli(capsys, "--write", plan)
-    assert code == 0 and f"reformatted {plan}" in err
+    assert code == 0 and f"rewrote {plan} in canonical layout" in err
     assert plan.read_text() == format_text(MESSY)
     assert stat.S_IMODE(plan.stat().st_mode) == 0o640
     assert fmt_cli(capsys, "--check", plan)[0] == 0
@@ -245,7 +245,7 @@ def test_write_leaves_formatted_files_untouched(tmp_path, capsys, monkeypatch):
     monkeypatch.setattr(review_cli, "write_atomic",
                         lambda *a: pytest.fail("wrote a file that was already formatted"))
     code, _, err = fmt_cli(capsys, "--write", plan)
-    assert code == 0 and "1 file left unchanged." in err
+    assert code == 0 and "fmt: 1 plan already canonical." in err
 
 
 def test_check_and_write_exclude_each_other(tmp_path, capsys):
@@ -264,7 +264,7 @@ def test_a_plan_that_does_not_parse_exits_2_and_is_not_written(tmp_path, capsys)
     assert "bad.aps:2:" in err and "needs `to`" in err
     assert bad.read_text() == "around earth\nburn: apoapsis 5 km\n"
     assert good.read_text() == format_text(MESSY)  # the other files are still done
-    assert "1 file reformatted, 1 file could not be read or parsed." in err
+    assert "fmt: 1 plan rewritten in canonical layout, 1 plan could not be read or parsed." in err
 
 
 def test_missing_file_is_a_clear_error(tmp_path, capsys):
@@ -284,7 +284,7 @@ def test_an_internal_error_leaves_the_file_and_exits_70(tmp_path, capsys, monkey
     def broken(p):
         raise FormatError("p.aps: the formatted plan would not mean the same plan")
 
-    monkeypatch.setattr(review_cli, "format_plan", broken)
+    monkeypatch.setattr(fmt, "format_plan", broken)
     code, _, err = fmt_cli(capsys, "--write", plan)
     assert code == 70 and "internal error" in err and "left as it is" in err
     assert plan.read_text() == MESSY
@@ -353,3 +353,11 @@ def test_fixed_movable_and_ceiling_survive_formatting():
                   "for 2 h", "5 kg", "apoapsis 400 km"):
         assert words in once
     assert once.count("movable") == 4 and once.count("fixed") == 1
+
+
+def test_summary_words_are_our_own():
+    rep = review_cli.FmtReport(changed=["a", "b"], unchanged=["c"])
+    assert rep.summary(check=True) == ("fmt: 2 plans not in canonical layout, "
+                                       "1 plan already canonical.")
+    assert rep.summary(check=False) == ("fmt: 2 plans rewritten in canonical layout, "
+                                        "1 plan already canonical.")

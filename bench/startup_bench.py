@@ -1,0 +1,53 @@
+"""Start-up of `apsidal run` against the bare import of its libraries, in one run.
+
+Times, over several rounds, a fresh interpreter that only imports numpy, lark and rich
+(the floor no command can go under) and a fresh `apsidal run` of each sample, and
+prints the medians and their ratio.  The target (`run` at most 1.5x the bare import) is
+read off this output, not asserted in a test.
+
+    .venv/bin/python bench/startup_bench.py [--rounds 15]
+"""
+
+from __future__ import annotations
+
+import argparse
+import statistics
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parent.parent
+BARE = [sys.executable, "-c", "import numpy, lark, rich"]
+
+
+def timed(cmd: list[str]) -> float:
+    t = time.perf_counter()
+    subprocess.run(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, check=False)
+    return time.perf_counter() - t
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--rounds", type=int, default=15)
+    args = ap.parse_args()
+    samples = sorted((ROOT / "samples").glob("*.aps"))
+    runs = {p.stem: [sys.executable, "-m", "apsidal.compiler.cli", "run", str(p)]
+            for p in samples}
+    for cmd in [BARE, *runs.values()]:  # warm the disk cache and lark's grammar cache
+        timed(cmd)
+    bare, each = [], {k: [] for k in runs}
+    for _ in range(args.rounds):  # interleaved, so a busy moment hits both alike
+        bare.append(timed(BARE))
+        for k, cmd in runs.items():
+            each[k].append(timed(cmd))
+    floor = statistics.median(bare)
+    print(f"{'command':34} {'median':>8} {'ratio':>7}   ({args.rounds} rounds)")
+    print(f"{'python -c import numpy, lark, rich':34} {floor:7.3f}s {1.0:6.2f}x")
+    for k, ts in each.items():
+        m = statistics.median(ts)
+        print(f"{'apsidal run ' + k:34} {m:7.3f}s {m / floor:6.2f}x")
+
+
+if __name__ == "__main__":
+    main()
