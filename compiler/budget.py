@@ -200,6 +200,8 @@ def budget(result: Result) -> dict:
     ve = p.craft.default_engine.exhaust_speed
     craft = p.craft
     mass, left = float(final.mass[0]), float(final.propellant[0])
+    if book.fuel_left_kg is not None:  # two stores: a store run dry leaves nothing
+        left = max(book.fuel_left_kg, 0.0) + max(book.oxidiser_left_kg, 0.0)
     burnable = book.burnable_at_end(craft.default_engine.mixture)
     # what the default engine can still burn: of two stores, the part left in its ratio
     fire = left if burnable is None else min(left, burnable)
