@@ -18,7 +18,7 @@ from apsidal.lang import syntax as ast
 from apsidal.lang.errors import PlanError
 
 from .budget import budget
-from .evaluate import Batch, Result, run, start_batch
+from .evaluate import Batch, Result, apply, context_for, run, start_batch
 from .load import load_text
 from .reorder import orientation_matters, same_orbit
 from .state import elements_from_state
@@ -53,6 +53,38 @@ class Finding:
         }
 
 
+DEFAULT_TIME_LIMIT = 20.0  # s: `check`'s budget for one plan unless --time-limit says
+
+
+class Budget:
+    """The time `check` may spend on one plan, and what it has spent it on.
+
+    Rules ask ``expired()`` before each search or candidate; a rule that stops early
+    adds its name to ``cut_short`` so the report can say what was left unproven.
+    ``progress`` (optional) is called with (rule name, fraction of the rules done).
+    """
+
+    def __init__(self, seconds: float | None = DEFAULT_TIME_LIMIT, progress=None):
+        import time
+
+        self._clock = time.monotonic
+        self.seconds = seconds
+        self.deadline = None if seconds is None else self._clock() + seconds
+        self.cut_short: set[str] = set()
+        self.proofs = 0
+        self.pruned = 0  # candidates a bound showed could not pay, never priced
+        self.progress = progress
+
+    def expired(self) -> bool:
+        return self.deadline is not None and self._clock() > self.deadline
+
+    def remaining(self) -> float | None:
+        return None if self.deadline is None else max(self.deadline - self._clock(), 0.0)
+
+    def cut(self, rule: str) -> None:
+        self.cut_short.add(rule)
+
+
 @dataclass
 class Proof:
     text: str
@@ -68,12 +100,24 @@ class Checker:
 
     program: Program
     result: Result
+    budget: Budget | None = None
     report: dict = field(init=False)
     statements: list = field(init=False)  # the step statements, in plan order
 
     def __post_init__(self):
         self.report = budget(self.result)
         self.statements = self.program.plan.steps()
+        self.budget = Budget() if self.budget is None else self.budget
+        # the state before each step, from the priced chain (None past a failure)
+        self._before: list[Batch | None] = [None] * (len(self.program.steps) + 1)
+        last, rows = start_batch(self.program), iter(self.result.rows)
+        row = next(rows, None)
+        for k in range(len(self._before)):
+            while row is not None and row.step < k:
+                last, row = row.after, next(rows, None)
+            self._before[k] = last
+        self._skeleton = _skeleton(self.text, self.statements)
+        self._lines = [self.statement_text(k) for k in range(len(self.statements))]
 
     @property
     def text(self) -> str:
@@ -92,8 +136,7 @@ class Checker:
 
     def state_before(self, step_index: int) -> Batch:
         """The state the plan is in just before a step (the start for the first)."""
-        rows = [r for r in self.result.rows if r.step < step_index]
-        return rows[-1].after if rows else start_batch(self.program)
+        return self._before[min(step_index, len(self._before) - 1)]
 
     def state_after(self, step_index: int) -> Batch:
         rows = self.rows_of(step_index)
@@ -178,27 +221,63 @@ class Checker:
 
     # --- proof -------------------------------------------------------------------------
 
+    def first_change(self, program: Program) -> int | None:
+        """Index of the first step a rewritten plan flies differently, or None when
+        something besides the step statements changed (then it is priced whole)."""
+        statements = program.plan.steps()
+        text = program.source.text
+        if _skeleton(text, statements) != self._skeleton:
+            return None
+        n = min(len(statements), len(self._lines))
+        for k in range(n):
+            if _statement_text(text, statements[k]) != self._lines[k]:
+                return k
+        return n
+
+    def price(self, program: Program) -> tuple[Batch, bool, list]:
+        """Price a rewritten plan from the stored state before its first changed step.
+
+        The steps before it are the plan's own, so their priced rows are reused; only the
+        rest goes through the evaluator (``apply``, the one chain code).  Returns the
+        final state, whether every step flew, and the rows of the whole rewritten plan.
+        """
+        k = self.first_change(program) if self.result.ok else None
+        if k is None:
+            result = run(program)
+            return result.final, result.ok, result.rows
+        batch = self._before[k]
+        rows = [r for r in self.result.rows if r.step < k]
+        ctx = context_for(program)
+        for i in range(k, len(program.steps)):
+            batch, step_rows, fails = apply(program.steps[i], i, batch, ctx)
+            if not fails.ok[0]:
+                return batch, False, rows
+            rows.extend(step_rows)
+        return batch, True, rows
+
     def prove(self, text: str) -> Proof | None:
         """Price a rewritten plan; a Proof only if it is a valid, cheaper equivalent."""
+        if not self.result.ok:
+            return None
         try:
             program = load_text(text, self.program.source.path)
         except PlanError:
             return None
-        result = run(program)
-        if not result.ok or not bool(result.final.expect_ok[0]):
+        self.budget.proofs += 1
+        final, ok, rows = self.price(program)
+        if not ok or not bool(final.expect_ok[0]):
             return None
-        if not self.result.ok:
-            return None
-        same = same_orbit(result.final, self.result.final, program.body.gm,
+        same = same_orbit(final, self.result.final, program.body.gm,
                           orientation_matters(self.program))
         if not bool(same[0]):
             return None
-        saves_dv = self.dv_with_margin - float(result.final.dv_margin[0]) * 1000.0
+        saves_dv = self.dv_with_margin - float(final.dv_margin[0]) * 1000.0
         saves_kg = self.propellant_used - (program.craft.propellant
-                                           - float(result.final.propellant[0]))
+                                           - float(final.propellant[0]))
         if saves_kg <= 1e-6 or saves_dv < -1e-6:
             return None
-        return Proof(text, program, result, saves_dv, saves_kg)
+        return Proof(text, program, Result(program=program, rows=rows, final=final),
+                     saves_dv, saves_kg)
 
     def best(self, texts: Iterable[str]) -> Proof | None:
         proofs = [p for p in (self.prove(t) for t in dict.fromkeys(texts)) if p]
@@ -214,6 +293,24 @@ class Checker:
             n=1))
         return Finding(rule, severity, tuple(steps), message, proof.saves_m_s, proof.saves_kg,
                        proof.text, diff, tuple(notes))
+
+
+def _statement_text(text: str, node) -> str:
+    start = text.rfind("\n", 0, node.span.start) + 1
+    end = text.find("\n", node.span.end)
+    return text[start:(len(text) if end < 0 else end)]
+
+
+def _skeleton(text: str, statements) -> str:
+    """The plan text with its step statements' lines cut out: what a rewrite keeps."""
+    pieces, cut = [], 0
+    for node in statements:
+        start = text.rfind("\n", 0, node.span.start) + 1
+        end = text.find("\n", node.span.end)
+        pieces.append(text[cut:start])
+        cut = len(text) if end < 0 else end
+    pieces.append(text[cut:])
+    return " ".join("\n".join(pieces).split())
 
 
 def with_goals(node, goals) -> object:
