@@ -101,6 +101,7 @@ class Checker:
     program: Program
     result: Result
     budget: Budget | None = None
+    min_saving_m_s: float = 0.0  # savings below this are not reported (--min-saving)
     report: dict = field(init=False)
     statements: list = field(init=False)  # the step statements, in plan order
 
@@ -173,6 +174,14 @@ class Checker:
         span = next(g for g in goals if g.kind == "inclination").span
         raan = ast.Quantity(angle_text(float(np.degrees(el.raan[0]))), "deg", span)
         return goals + [ast.Goal("raan", raan, span)]
+
+    def can_pay(self, rule: str, bound_m_s: float) -> bool:
+        """Whether a candidate whose saving is at most ``bound_m_s`` (with margin) could
+        be reported; counts the ones that could not as pruned."""
+        if bound_m_s > max(self.min_saving_m_s, 1e-9):
+            return True
+        self.budget.pruned += 1
+        return False
 
     # --- rewriting ---------------------------------------------------------------------
 

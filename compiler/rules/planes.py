@@ -8,6 +8,7 @@ from apsidal.lang import syntax as ast
 from ..check import Checker, Finding, rule, saving_text, with_goals, with_where
 from ..reorder import blocks
 from ..steps import Burn, Transfer
+from .bounds import slowest_speed
 
 PLANE_GOALS = ("inclination", "raan")
 PLACES = ("apoapsis", "node", "ascending node", "descending node", "periapsis")
@@ -49,11 +50,25 @@ def plane_change_at_speed(c: Checker) -> list[Finding]:
         plane = c.pin_plane([g for g in node.goals if g.kind in PLANE_GOALS], i)
         rest = [g for g in node.goals if g.kind not in PLANE_GOALS]
         remaining = [c.unparse(with_goals(node, rest))] if rest else []
+        speed = _speed_before(c, i)
+        mu = c.program.body.gm
+
+        def slow_enough(state, speed=speed, mu=mu) -> bool:
+            # the carrier flies on this orbit: no point of it is slower than its apoapsis
+            least = slowest_speed(mu, state.r[0], state.v[0])
+            if least is not None and least * 1000.0 >= speed * (1 - 1e-3):
+                c.budget.pruned += 1
+                return False
+            return True
+
         candidates = []  # (text, name of the burn that carries the plane change)
         for slot in block:
-            for kind in PLACES:
+            sides = [after for after, state in ((False, c.state_before(slot)),
+                                                (True, c.state_after(slot)))
+                     if slow_enough(state)]
+            for kind in PLACES if sides else ():
                 line = c.unparse(with_where(with_goals(node, plane), kind))
-                for after in (False, True):
+                for after in sides:
                     edits = {j: [c.statement_text(j)] for j in block}
                     edits[i] = remaining if slot != i else []
                     base = edits[slot] if slot != i else remaining
@@ -62,13 +77,15 @@ def plane_change_at_speed(c: Checker) -> list[Finding]:
             other = c.statements[slot]
             step = c.program.steps[slot]
             if slot != i and isinstance(step, Burn) and step.vector is None \
-                    and not step.changes_plane:
+                    and not step.changes_plane and _speed_before(c, slot) < speed * (1 - 1e-3):
                 merged = with_goals(other, list(other.goals) + plane)
                 candidates.append((c.rewrite({i: remaining, slot: [c.unparse(merged)]}),
                                    step.name))
-        speed = _speed_before(c, i)
         slower = []
         for text, carrier in dict.fromkeys(candidates):
+            if c.budget.expired():
+                c.budget.cut("plane-change-at-speed")
+                break
             proof = c.prove(text)
             if proof is None:
                 continue
