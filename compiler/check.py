@@ -355,19 +355,29 @@ def findings_for(program: Program, rules: Iterable[Rule] | None = None) -> list[
 
 
 def check_program(program: Program, rules: Iterable[Rule] | None = None,
-                  result: Result | None = None) -> list[Finding]:
-    """Every finding for one plan; ``result`` is its priced chain if already at hand."""
+                  result: Result | None = None, budget: Budget | None = None,
+                  min_saving_m_s: float = 0.0) -> list[Finding]:
+    """Every finding for one plan; ``result`` is its priced chain if already at hand.
+
+    ``budget`` bounds the time spent (``Budget(None)``: no limit; by default
+    ``DEFAULT_TIME_LIMIT``) and collects which rules were cut short; rules skip
+    candidates whose bound says they cannot save ``min_saving_m_s`` (m/s, with margin).
+    """
     from .rules import RULES
 
     result = run(program) if result is None else result
     if result.error is not None and result.failure != "propellant":
         raise result.error
-    checker = Checker(program, result)
+    budget = Budget() if budget is None else budget
+    checker = Checker(program, result, budget, min_saving_m_s)
     out: list[Finding] = []
     seen: set[str] = set()
-    for rule in (RULES if rules is None else rules):
+    chosen = list(RULES if rules is None else rules)
+    for n, rule in enumerate(chosen):
         if not result.ok and getattr(rule, "needs_flyable", True):
             continue
+        if budget.progress is not None:
+            budget.progress(rule.rule_name, n / len(chosen))
         for f in rule(checker):
             if f.suggestion is not None:
                 key = " ".join(f.suggestion.split())
