@@ -18,11 +18,11 @@ from apsidal.lang import syntax as ast
 from apsidal.lang.errors import PlanError
 
 from .budget import budget
-from .evaluate import Batch, Result, apply, context_for, run, start_batch
+from .evaluate import Batch, Result, apply, carry, context_for, run, start_batch
 from .load import load_text
 from .reorder import orientation_matters, same_orbit
 from .state import elements_from_state
-from .steps import Program
+from .steps import Expect, Program
 
 SEVERITIES = ("info", "warning", "error")
 
@@ -118,6 +118,11 @@ class Checker:
                 last, row = row.after, next(rows, None)
             self._before[k] = last
         self._skeleton = _skeleton(self.text, self.statements)
+        # past the last expectation on mass or propellant a re-converged chain is carried
+        self._mass_checked = max((i for i, st in enumerate(self.program.steps)
+                                  if isinstance(st, Expect) and any(
+                                      ch.kind in ("mass", "propellant") for ch in st.checks)),
+                                 default=-1)
         self._lines = [self.statement_text(k) for k in range(len(self.statements))]
 
     @property
@@ -257,12 +262,36 @@ class Checker:
         batch = self._before[k]
         rows = [r for r in self.result.rows if r.step < k]
         ctx = context_for(program)
-        for i in range(k, len(program.steps)):
+        n_new, n_old = len(program.steps), len(self.program.steps)
+        suffix = self._same_suffix(program, k)
+        for i in range(k, n_new):
             batch, step_rows, fails = apply(program.steps[i], i, batch, ctx)
             if not fails.ok[0]:
                 return batch, False, rows
             rows.extend(step_rows)
+            j = i + n_old - n_new  # the same point of the plan as written
+            if i >= n_new - suffix - 1 and j > self._mass_checked and j < n_old - 1 \
+                    and self._converged(batch, j + 1):
+                tail = [r for r in self.result.rows if r.step > j]
+                final, ok = carry(batch, tail, float(self._before[j + 1].mass[0]))
+                return final, bool(ok[0]), rows + tail
         return batch, True, rows
+
+    def _same_suffix(self, program: Program, k: int) -> int:
+        """How many trailing step statements a rewrite shares with the plan (after k)."""
+        new = program.plan.steps()
+        text = program.source.text
+        n = 0
+        while n < len(new) - k and n < len(self._lines) - k and \
+                _statement_text(text, new[-1 - n]) == self._lines[-1 - n]:
+            n += 1
+        return n
+
+    def _converged(self, batch: Batch, k: int) -> bool:
+        """Whether a rewritten chain is back in the plan's own orbit state before step k."""
+        ref = self._before[k]
+        return bool(np.allclose(batch.r, ref.r, rtol=1e-10, atol=1e-9)
+                    and np.allclose(batch.v, ref.v, rtol=1e-10, atol=1e-12))
 
     def prove(self, text: str) -> Proof | None:
         """Price a rewritten plan; a Proof only if it is a valid, cheaper equivalent."""

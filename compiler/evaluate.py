@@ -295,6 +295,47 @@ def burn_outcome(step: Burn, r, v, ctx: Context, normal=None) -> BurnOutcome:
     return _burn_at(step, step.place, r, v, ctx, normal)
 
 
+def propellant_for(mass, dv_margin, exhaust_speed):
+    """Propellant (kg) a burn of ``dv_margin`` km/s takes from ``mass`` kg: the rocket
+    equation, m (1 - exp(-dv / ve))."""
+    return mass * -np.expm1(-dv_margin / exhaust_speed)
+
+
+def carry(batch: Batch, rows: list[Row], mass_before: float) -> tuple[Batch, np.ndarray]:
+    """Steps already priced, flown again from the same orbit state at another mass.
+
+    The orbit part of a step does not depend on the mass, so a rewritten plan that is
+    back in the state the plan was in (``batch``, same r and v as the state the plan had
+    before ``rows``, whose mass was ``mass_before`` kg) flies ``rows`` with the same
+    delta-v; only the propellant of each burn follows the new mass (the rocket equation
+    of ``_price``, with the same check of what is left) and each drop takes the same
+    mass.  Returns the final state and where the propellant lasted.  Expectations on
+    the orbit pass as they did; those on mass or propellant are the caller's to rerun.
+    """
+    mass, left = batch.mass.copy(), batch.propellant.copy()
+    dv, dvm = batch.dv.copy(), batch.dv_margin.copy()
+    ok = np.ones(batch.size, dtype=bool)
+    expect_ok = batch.expect_ok.copy()
+    prev = mass_before
+    last = batch
+    for row in rows:
+        if row.kind == "burn":
+            need = propellant_for(mass, row.dv_margin, row.engine.exhaust_speed)
+            ok &= ~(need > left * (1 + 1e-12) + 1e-12)
+            used = np.minimum(need, left)
+            mass, left = mass - used, left - used
+            dv, dvm = dv + row.dv, dvm + row.dv_margin
+        elif row.kind == "drop":
+            mass = mass - (prev - float(row.after.mass[0]))
+        elif row.kind == "expect":
+            for check in row.checks:
+                expect_ok &= check.passed
+        prev = float(row.after.mass[0])
+        last = row.after
+    return replace(last, mass=mass, propellant=left, dv=dv, dv_margin=dvm,
+                   expect_ok=expect_ok), ok
+
+
 def _price(batch: Batch, out: BurnOutcome, engine: EngineSpec, margin: float, ctx: Context,
            fails: Failures, name: str):
     """Rocket equation, propellant check and burn time; returns (batch, row parts)."""
@@ -305,7 +346,7 @@ def _price(batch: Batch, out: BurnOutcome, engine: EngineSpec, margin: float, ct
     dv = norm(dv_inertial)
     dvm = dv * (1.0 + margin)
     ve = engine.exhaust_speed
-    need = batch.mass * -np.expm1(-dvm / ve)
+    need = propellant_for(batch.mass, dvm, ve)
     left = batch.propellant
     short = need > left * (1 + 1e-12) + 1e-12
     capacity = ve * np.log(batch.mass / np.maximum(batch.mass - left, 1e-300))
