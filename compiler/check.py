@@ -10,6 +10,7 @@ costs less.  The saving in the finding is the difference of the two priced plans
 from __future__ import annotations
 
 import difflib
+import re
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field, replace
 
@@ -72,6 +73,7 @@ class Budget:
         self.deadline = None if seconds is None else self._clock() + seconds
         self.cut_short: set[str] = set()
         self.proofs = 0
+        self.silenced: list = []  # findings left out by --ignore or a marker comment
         self.pruned = 0  # candidates a bound showed could not pay, never priced
         self.progress = progress
 
@@ -385,12 +387,14 @@ def findings_for(program: Program, rules: Iterable[Rule] | None = None) -> list[
 
 def check_program(program: Program, rules: Iterable[Rule] | None = None,
                   result: Result | None = None, budget: Budget | None = None,
-                  min_saving_m_s: float = 0.0) -> list[Finding]:
+                  min_saving_m_s: float = 0.0, ignore: Iterable[str] = ()) -> list[Finding]:
     """Every finding for one plan; ``result`` is its priced chain if already at hand.
 
     ``budget`` bounds the time spent (``Budget(None)``: no limit; by default
     ``DEFAULT_TIME_LIMIT``) and collects which rules were cut short; rules skip
     candidates whose bound says they cannot save ``min_saving_m_s`` (m/s, with margin).
+    Findings of the rules in ``ignore``, and of a rule a step's line silences with
+    ``# apsidal: allow RULE``, are left out and kept in ``budget.silenced``.
     """
     from .rules import RULES
 
@@ -414,9 +418,51 @@ def check_program(program: Program, rules: Iterable[Rule] | None = None,
                     continue  # another rule already proved the same rewrite
                 seen.add(key)
             out.append(f)
+    if budget.cut_short:
+        limit = f"{budget.seconds:g} s" if budget.seconds is not None else "the"
+        out.append(Finding(
+            "time-limit", "info", (),
+            f"the time limit of {limit} was reached: {', '.join(sorted(budget.cut_short))} "
+            "reported only what was proven by then (raise --time-limit to search further)"))
+    out = _apply_silencing(program, checker, out, ignore or (), budget)
     order = {s: i for i, s in enumerate(SEVERITIES)}
     out.sort(key=lambda f: (-order[f.severity], -(f.saves_kg or 0.0)))
     return out
+
+
+ALLOW = re.compile(r"#\s*apsidal:\s*allow\s+([a-z0-9-]+(?:\s*,\s*[a-z0-9-]+)*)")
+
+
+def allowed_rules(line: str) -> set[str]:
+    """Rules a plan line silences with our marker comment.
+
+    >>> sorted(allowed_rules("burn spiral: apoapsis to 900 km  # apsidal: allow long-burn"))
+    ['long-burn']
+    >>> sorted(allowed_rules("burn b: along 1 m/s # apsidal: allow long-burn, merge-burns"))
+    ['long-burn', 'merge-burns']
+    >>> allowed_rules("burn b: along 1 m/s  # allow long-burn")
+    set()
+    """
+    return {name.strip() for m in ALLOW.finditer(line) for name in m.group(1).split(",")}
+
+
+def _apply_silencing(program: Program, checker: Checker, findings: list[Finding],
+                     ignore: Iterable[str], budget: Budget) -> list[Finding]:
+    """Findings not silenced; the silenced ones go to ``budget.silenced``."""
+    ignore = set(ignore)
+    allow = {}
+    for k, step in enumerate(program.steps):
+        rules = allowed_rules(checker.statement_text(k))
+        if rules:
+            allow[step.name] = rules
+    kept = []
+    for f in findings:
+        names = {s.split("/")[0] for s in f.steps}
+        if f.rule in ignore or any(f.rule in allow.get(n, ()) for n in names):
+            budget.silenced.append(f)
+        else:
+            kept.append(f)
+    return kept
 
 
 def rule(name: str, needs_flyable: bool = True):

@@ -11,7 +11,7 @@ from rich.console import Console
 from rich.markup import escape
 from rich.syntax import Syntax
 
-from .check import SEVERITIES, Finding, check_program
+from .check import DEFAULT_TIME_LIMIT, SEVERITIES, Budget, Finding, check_program
 from .cliutil import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_OK, UsageError, write_atomic
 from .cliutil import console as _console
 from .evaluate import run
@@ -30,6 +30,11 @@ def register(sub) -> None:
                           "the plan's delta-v with margin (e.g. 1%%)")
     chk.add_argument("--rule", action="append", default=None, metavar="NAME",
                      help="run only this rule (repeatable); see `apsidal explain`")
+    chk.add_argument("--ignore", action="append", default=[], metavar="RULE",
+                     help="leave this rule's findings out (repeatable; counted as silenced)")
+    chk.add_argument("--time-limit", default=str(DEFAULT_TIME_LIMIT), metavar="SECONDS",
+                     help=f"stop searching each plan after this long and report what is "
+                          f"proven (default {DEFAULT_TIME_LIMIT:g}; 0 or `none`: no limit)")
     chk.add_argument("--write-suggestion", metavar="OUT.aps", default=None,
                      help="write the cheapest rewritten plan to this file")
     chk.set_defaults(func=cmd_check)
@@ -71,9 +76,43 @@ def _keep(f: Finding, threshold, plan_dv_m_s: float) -> bool:
     return f.saves_m_s >= limit
 
 
+def parse_time_limit(text: str) -> float | None:
+    """Seconds for --time-limit; None for no limit.
+
+    >>> parse_time_limit("30"), parse_time_limit("none"), parse_time_limit("0")
+    (30.0, None, None)
+    """
+    if text.strip().lower() in ("none", "off"):
+        return None
+    try:
+        value = float(text)
+    except ValueError:
+        value = -1.0
+    if not value >= 0 or value == float("inf"):
+        raise UsageError(f"--time-limit takes a number of seconds such as `20`, or `none`, "
+                         f"not `{text}`")
+    return value or None
+
+
+def _progress(path: str):
+    """A one-line progress report on stderr, only when stderr is a terminal."""
+    if not sys.stderr.isatty():
+        return None
+
+    def show(rule: str, done: float) -> None:
+        bar = "#" * int(done * 20)
+        sys.stderr.write(f"\r{path}: [{bar:<20}] {rule:<28}")
+        sys.stderr.flush()
+    return show
+
+
 def cmd_check(args) -> int:
 
     threshold = parse_min_saving(args.min_saving)
+    seconds = parse_time_limit(args.time_limit)
+    for name in args.ignore:
+        if name not in BY_NAME:
+            raise UsageError(f"--ignore: no rule named `{name}`; `apsidal explain` lists them")
     rules = None
     if args.rule:
         unknown = [r for r in args.rule if r not in BY_NAME]
@@ -88,13 +127,24 @@ def cmd_check(args) -> int:
     if args.write_suggestion and len(args.plans) != 1:
         raise UsageError("--write-suggestion takes exactly one plan")
     reports = []
+    silenced: dict[str, int] = {}
     worst = -1
     bad_input = False
     for path in args.plans:
         try:
             program = load(path)
             result = run(program)
-            findings = check_program(program, rules, result)
+            dv = float(result.final.dv_margin[0]) * 1000.0
+            floor = 0.0
+            if threshold is not None:
+                floor = threshold[1] * (1000.0 if threshold[0] == "speed" else dv)
+            budget = Budget(seconds, _progress(path))
+            try:
+                findings = check_program(program, rules, result, budget, floor, args.ignore)
+            finally:
+                if budget.progress is not None:
+                    sys.stderr.write("\r" + " " * 60 + "\r")
+            silenced[path] = len(budget.silenced)
         except PlanError as err:
             print(err.render(), file=sys.stderr)
             bad_input = True
@@ -111,7 +161,7 @@ def cmd_check(args) -> int:
     elif args.format == "markdown":
         sys.stdout.write(markdown(reports))
     else:
-        table(reports, _console())
+        table(reports, _console(), silenced)
     if args.write_suggestion and reports:
         _, _, findings = reports[0]
         best = max((f for f in findings if f.suggestion), key=lambda f: f.saves_kg or 0.0,
@@ -136,7 +186,7 @@ def _saving(f: Finding) -> str:
     return f" (saves {f.saves_m_s:.1f} m/s, {f.saves_kg:.2f} kg)"
 
 
-def table(reports, console: Console) -> None:
+def table(reports, console: Console, silenced: dict | None = None) -> None:
     for path, program, findings in reports:
         console.print(f"[bold]{path}[/bold]: {program.title}")
         if not findings:
@@ -152,8 +202,10 @@ def table(reports, console: Console) -> None:
                 console.print(Syntax(f.diff, "diff", theme="ansi_dark", background_color="default"))
         console.print()
     n = sum(len(fs) for _, _, fs in reports)
+    quiet = sum((silenced or {}).values())
     console.print(f"{n} finding{'s' if n != 1 else ''} in {len(reports)} "
-                  f"plan{'s' if len(reports) != 1 else ''}.")
+                  f"plan{'s' if len(reports) != 1 else ''}"
+                  + (f" ({quiet} silenced)" if quiet else "") + ".")
     from .budget import CAUTION
 
     console.print(f"Caution: {CAUTION}", style="italic", highlight=False)
