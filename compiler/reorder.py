@@ -7,12 +7,14 @@ transfers and coasts to a place may be flown in any order, and each ordering is 
 the evaluator.  The orderings form a prefix tree: all orderings that start with the same
 steps share those steps' state, so each level of the tree is one batched ``apply`` per
 step.  Orderings that fail (an unreachable goal, propellant exhausted) are pruned where
-they fail.  Up to ``EXHAUSTIVE_NODES`` tree nodes the search is exhaustive; beyond that
-it keeps the cheapest ``beam`` prefixes at each level and says so.
+they fail, prefixes that cannot beat the plan's own order are pruned (branch and bound,
+``_bnb``), and partial orders are stored as parent index and choice per level.  Past
+``WORK_LIMIT`` steps priced, or past ``WINDOW`` steps in a block, the search is bounded
+and says so.
 
-An ordering counts only if, run to the end of the plan, it reaches the same final orbit
-as the plan (size, shape and plane; also orientation when an expectation names raan or
-argp) and meets every expectation.
+An ordering counts only if it ends the block in the orbit the plan's own order ends it
+in (size, shape, plane and apse line), so that the rest of the plan flies the same; the
+rule then proves the best by pricing the whole rewritten plan.
 """
 
 from __future__ import annotations

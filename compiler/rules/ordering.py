@@ -44,9 +44,14 @@ def cheaper_order(c: Checker) -> list[Finding]:
     Between barriers (`drop`, `expect`, explicit-vector burns, timed coasts) the goal
     burns, transfers and coasts to a place may be flown in any order.  Every order is
     priced by the evaluator, sharing the state of common prefixes; it counts only if it
-    reaches the same final orbit and meets every expectation.  Up to a work limit the
-    search is exhaustive; beyond it a bounded (beam) search keeps the cheapest prefixes
-    at each step and the finding says so.  Typical catch: a plane change flown in a low
+    ends the block in the plan's own orbit and meets every expectation.  The search is
+    a branch and bound: a partial order that has already used as much propellant as
+    the plan's order uses for the whole block is dropped, and of partial orders in the
+    same state the lighter is dropped.  Up to 12 steps and a work limit the result is a
+    proven optimum; past the work limit, past 12 steps (searched in half-overlapping
+    windows of 8) or past the time limit the finding says the search was bounded or cut
+    short, and a bounded search that finds nothing says so too.  Typical catch: a plane
+    change flown in a low
     orbit before the apoapsis is raised, where the craft is fastest.
     """
     out = []
