@@ -116,6 +116,9 @@ def costlier_node(c: Checker) -> list[Finding]:
     for i, step in enumerate(c.program.steps):
         if not isinstance(step, (Burn, Transfer)) or step.place.kind not in other:
             continue
+        if c.budget.expired():
+            c.budget.cut("costlier-node")
+            break
         node = c.statements[i]
         moved = with_where(with_goals(node, c.pin_plane(node.goals, i)), other[step.place.kind])
         text = c.rewrite({i: [c.unparse(moved)]})
@@ -144,6 +147,9 @@ def shared_plane_change(c: Checker) -> list[Finding]:
     for i, step in enumerate(steps):
         if not (isinstance(step, Transfer) and step.form == "hohmann"):
             continue
+        if c.budget.expired():
+            c.budget.cut("shared-plane-change")
+            return out
         for j in (i - 1, i + 1):
             if not 0 <= j < len(steps):
                 continue
@@ -175,6 +181,9 @@ def _burn_pairs(c: Checker) -> list[Finding]:
     out = []
     steps = c.program.steps
     for i in range(len(steps) - 1):
+        if c.budget.expired():
+            c.budget.cut("shared-plane-change")
+            break
         a, b = steps[i], steps[i + 1]
         if not (isinstance(a, Burn) and isinstance(b, Burn)
                 and a.vector is None and b.vector is None):

@@ -37,7 +37,8 @@ def apoapsis_bound(c: Checker) -> tuple[float, str]:
     return bound, why
 
 
-def best_apoapsis(c: Checker, build, low: float, high: float) -> Proof | None:
+def best_apoapsis(c: Checker, build, low: float, high: float,
+                  rule_name: str = "") -> Proof | None:
     """The cheapest proven plan over apoapsis radii in [low, high] (km).
 
     ``build(alt_km)`` gives the plan text for an apoapsis altitude.  A geometric grid
@@ -51,6 +52,9 @@ def best_apoapsis(c: Checker, build, low: float, high: float) -> Proof | None:
 
     def price(log_r: float):
         alt = round(math.exp(log_r) - radius)
+        if alt not in cache and c.budget.expired():
+            c.budget.cut(rule_name)
+            return math.inf, None
         if alt not in cache:
             cache[alt] = c.prove(build(alt))
         p = cache[alt]
@@ -115,7 +119,7 @@ def bi_elliptic_cheaper(c: Checker) -> list[Finding]:
         low = 1.05 * step.radius
         proof = best_apoapsis(
             c, lambda alt, i=i, node=node: c.rewrite({i: [c.unparse(_with_via(node, alt))]}),
-            low, bound)
+            low, bound, "bi-elliptic-cheaper")
         if proof is None:
             continue
         extra = float(proof.result.final.t[0] - c.result.final.t[0])
@@ -191,7 +195,7 @@ def three_burn_plane_change(c: Checker) -> list[Finding]:
                              node.options, node.span)
             return c.rewrite({i: [c.unparse(t)]})
 
-        proof = best_apoapsis(c, build, 1.1 * r, bound)
+        proof = best_apoapsis(c, build, 1.1 * r, bound, "three-burn-plane-change")
         if proof is None:
             continue
         out.append(c.finding(
