@@ -28,7 +28,7 @@ from .evaluate import Batch, Context, apply, context_for, start_batch
 from .state import dot, elements_from_state, frame, norm
 from .steps import Burn, Coast, Drop, Expect, Program
 
-WORK_LIMIT = 300_000  # steps priced (one step on one partial order) per block
+WORK_LIMIT = 500_000  # steps priced (one step on one partial order) per block
 WINDOW = 12  # blocks up to this many steps are searched whole
 LONG_WINDOW = 8  # a longer block is searched in windows of this many, half overlapping
 CUT_WIDTH = 16  # partial orders kept per level once the time budget has run out
