@@ -147,6 +147,9 @@ def search_block(program: Program, block: list[int], limit: int | None = None,
     state = start
     width = LONG_WINDOW
     for w0 in range(0, len(block), width // 2):
+        if budget is not None and budget.expired() and total is not None:
+            total = replace(total, status="cut short")
+            break
         part = order[w0:w0 + width]
         if len(part) < 2:
             break
