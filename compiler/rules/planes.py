@@ -63,15 +63,16 @@ def plane_change_at_speed(c: Checker) -> list[Finding]:
 
         candidates = []  # (text, name of the burn that carries the plane change)
         for slot in block:
+            if c.budget.expired():
+                break
             sides = [after for after, state in ((False, c.state_before(slot)),
                                                 (True, c.state_after(slot)))
                      if slow_enough(state)]
             for kind in PLACES if sides else ():
                 line = c.unparse(with_where(with_goals(node, plane), kind))
                 for after in sides:
-                    edits = {j: [c.statement_text(j)] for j in block}
-                    edits[i] = remaining if slot != i else []
-                    base = edits[slot] if slot != i else remaining
+                    edits = {i: remaining if slot != i else []}
+                    base = [c.statement_text(slot)] if slot != i else remaining
                     edits[slot] = (base + [line]) if after else ([line] + base)
                     candidates.append((c.rewrite(edits), name))
             other = c.statements[slot]
