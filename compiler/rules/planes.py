@@ -64,6 +64,7 @@ def plane_change_at_speed(c: Checker) -> list[Finding]:
         candidates = []  # (text, name of the burn that carries the plane change)
         for slot in block:
             if c.budget.expired():
+                c.budget.cut("plane-change-at-speed")
                 break
             sides = [after for after, state in ((False, c.state_before(slot)),
                                                 (True, c.state_after(slot)))
