@@ -10,6 +10,7 @@ costs less.  The saving in the finding is the difference of the two priced plans
 from __future__ import annotations
 
 import difflib
+import re
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field, replace
 
@@ -18,10 +19,10 @@ from apsidal.lang import syntax as ast
 from apsidal.lang.errors import PlanError
 
 from .budget import budget
-from .evaluate import Batch, Result, run, start_batch
+from .evaluate import Batch, Result, apply, carry, context_for, run, start_batch
 from .load import load_text
 from .state import elements_from_state
-from .steps import Program
+from .steps import Expect, Program
 
 SEVERITIES = ("info", "warning", "error")
 
@@ -52,6 +53,39 @@ class Finding:
         }
 
 
+DEFAULT_TIME_LIMIT = 20.0  # s: `check`'s budget for one plan unless --time-limit says
+
+
+class Budget:
+    """The time `check` may spend on one plan, and what it has spent it on.
+
+    Rules ask ``expired()`` before each search or candidate; a rule that stops early
+    adds its name to ``cut_short`` so the report can say what was left unproven.
+    ``progress`` (optional) is called with (rule name, fraction of the rules done).
+    """
+
+    def __init__(self, seconds: float | None = DEFAULT_TIME_LIMIT, progress=None):
+        import time
+
+        self._clock = time.monotonic
+        self.seconds = seconds
+        self.deadline = None if seconds is None else self._clock() + seconds
+        self.cut_short: set[str] = set()
+        self.proofs = 0
+        self.silenced: list = []  # findings left out by --ignore or a marker comment
+        self.pruned = 0  # candidates a bound showed could not pay, never priced
+        self.progress = progress
+
+    def expired(self) -> bool:
+        return self.deadline is not None and self._clock() > self.deadline
+
+    def remaining(self) -> float | None:
+        return None if self.deadline is None else max(self.deadline - self._clock(), 0.0)
+
+    def cut(self, rule: str) -> None:
+        self.cut_short.add(rule)
+
+
 @dataclass
 class Proof:
     text: str
@@ -67,12 +101,30 @@ class Checker:
 
     program: Program
     result: Result
+    budget: Budget | None = None
+    min_saving_m_s: float = 0.0  # savings below this are not reported (--min-saving)
     report: dict = field(init=False)
     statements: list = field(init=False)  # the step statements, in plan order
 
     def __post_init__(self):
         self.report = budget(self.result)
         self.statements = self.program.plan.steps()
+        self.budget = Budget() if self.budget is None else self.budget
+        # the state before each step, from the priced chain (None past a failure)
+        self._before: list[Batch | None] = [None] * (len(self.program.steps) + 1)
+        last, rows = start_batch(self.program), iter(self.result.rows)
+        row = next(rows, None)
+        for k in range(len(self._before)):
+            while row is not None and row.step < k:
+                last, row = row.after, next(rows, None)
+            self._before[k] = last
+        self._skeleton = _skeleton(self.text, self.statements)
+        # past the last expectation on mass or propellant a re-converged chain is carried
+        self._mass_checked = max((i for i, st in enumerate(self.program.steps)
+                                  if isinstance(st, Expect) and any(
+                                      ch.kind in ("mass", "propellant") for ch in st.checks)),
+                                 default=-1)
+        self._lines = [self.statement_text(k) for k in range(len(self.statements))]
 
     @property
     def text(self) -> str:
@@ -91,8 +143,7 @@ class Checker:
 
     def state_before(self, step_index: int) -> Batch:
         """The state the plan is in just before a step (the start for the first)."""
-        rows = [r for r in self.result.rows if r.step < step_index]
-        return rows[-1].after if rows else start_batch(self.program)
+        return self._before[min(step_index, len(self._before) - 1)]
 
     def state_after(self, step_index: int) -> Batch:
         rows = self.rows_of(step_index)
@@ -129,6 +180,14 @@ class Checker:
         span = next(g for g in goals if g.kind == "inclination").span
         raan = ast.Quantity(angle_text(float(np.degrees(el.raan[0]))), "deg", span)
         return goals + [ast.Goal("raan", raan, span)]
+
+    def can_pay(self, rule: str, bound_m_s: float) -> bool:
+        """Whether a candidate whose saving is at most ``bound_m_s`` (with margin) could
+        be reported; counts the ones that could not as pruned."""
+        if bound_m_s > max(self.min_saving_m_s, 1e-9):
+            return True
+        self.budget.pruned += 1
+        return False
 
     # --- rewriting ---------------------------------------------------------------------
 
@@ -177,29 +236,89 @@ class Checker:
 
     # --- proof -------------------------------------------------------------------------
 
+    def first_change(self, program: Program) -> int | None:
+        """Index of the first step a rewritten plan flies differently, or None when
+        something besides the step statements changed (then it is priced whole)."""
+        statements = program.plan.steps()
+        text = program.source.text
+        if _skeleton(text, statements) != self._skeleton:
+            return None
+        n = min(len(statements), len(self._lines))
+        for k in range(n):
+            if _statement_text(text, statements[k]) != self._lines[k]:
+                return k
+        return n
+
+    def price(self, program: Program) -> tuple[Batch, bool, list]:
+        """Price a rewritten plan from the stored state before its first changed step.
+
+        The steps before it are the plan's own, so their priced rows are reused; only the
+        rest goes through the evaluator (``apply``, the one chain code).  Returns the
+        final state, whether every step flew, and the rows of the whole rewritten plan.
+        """
+        k = self.first_change(program) if self.result.ok else None
+        if k is None:
+            result = run(program)
+            return result.final, result.ok, result.rows
+        batch = self._before[k]
+        rows = [r for r in self.result.rows if r.step < k]
+        ctx = context_for(program)
+        n_new, n_old = len(program.steps), len(self.program.steps)
+        suffix = self._same_suffix(program, k)
+        for i in range(k, n_new):
+            batch, step_rows, fails = apply(program.steps[i], i, batch, ctx)
+            if not fails.ok[0]:
+                return batch, False, rows
+            rows.extend(step_rows)
+            j = i + n_old - n_new  # the same point of the plan as written
+            if i >= n_new - suffix - 1 and j > self._mass_checked and j < n_old - 1 \
+                    and self._converged(batch, j + 1):
+                tail = [r for r in self.result.rows if r.step > j]
+                final, ok = carry(batch, tail, float(self._before[j + 1].mass[0]))
+                return final, bool(ok[0]), rows + tail
+        return batch, True, rows
+
+    def _same_suffix(self, program: Program, k: int) -> int:
+        """How many trailing step statements a rewrite shares with the plan (after k)."""
+        new = program.plan.steps()
+        text = program.source.text
+        n = 0
+        while n < len(new) - k and n < len(self._lines) - k and \
+                _statement_text(text, new[-1 - n]) == self._lines[-1 - n]:
+            n += 1
+        return n
+
+    def _converged(self, batch: Batch, k: int) -> bool:
+        """Whether a rewritten chain is back in the plan's own orbit state before step k."""
+        ref = self._before[k]
+        return bool(np.allclose(batch.r, ref.r, rtol=1e-10, atol=1e-9)
+                    and np.allclose(batch.v, ref.v, rtol=1e-10, atol=1e-12))
+
     def prove(self, text: str) -> Proof | None:
         """Price a rewritten plan; a Proof only if it is a valid, cheaper equivalent."""
+        if not self.result.ok:
+            return None
         try:
             program = load_text(text, self.program.source.path)
         except PlanError:
             return None
-        result = run(program)
-        if not result.ok or not bool(result.final.expect_ok[0]):
-            return None
-        if not self.result.ok:
+        self.budget.proofs += 1
+        final, ok, rows = self.price(program)
+        if not ok or not bool(final.expect_ok[0]):
             return None
         from .reorder import orientation_matters, same_orbit  # proofs only, not `run`
 
-        same = same_orbit(result.final, self.result.final, program.body.gm,
+        same = same_orbit(final, self.result.final, program.body.gm,
                           orientation_matters(self.program))
         if not bool(same[0]):
             return None
-        saves_dv = self.dv_with_margin - float(result.final.dv_margin[0]) * 1000.0
+        saves_dv = self.dv_with_margin - float(final.dv_margin[0]) * 1000.0
         saves_kg = self.propellant_used - (program.craft.propellant
-                                           - float(result.final.propellant[0]))
+                                           - float(final.propellant[0]))
         if saves_kg <= 1e-6 or saves_dv < -1e-6:
             return None
-        return Proof(text, program, result, saves_dv, saves_kg)
+        return Proof(text, program, Result(program=program, rows=rows, final=final),
+                     saves_dv, saves_kg)
 
     def best(self, texts: Iterable[str]) -> Proof | None:
         proofs = [p for p in (self.prove(t) for t in dict.fromkeys(texts)) if p]
@@ -209,7 +328,8 @@ class Checker:
                 notes: Iterable[str] = ()) -> Finding:
         if proof is None:
             return Finding(rule, severity, tuple(steps), message, notes=tuple(notes))
-        if not self.report["feasible"] and budget(proof.result)["feasible"]:
+        if not self.report["feasible"] and budget(run(proof.program))["feasible"]:
+            # (priced in full again: a proof carries the plan's own rows past the rewrite)
             notes = (*notes, "with this rewrite the plan fits its load")
         diff = "".join(difflib.unified_diff(
             self.text.splitlines(keepends=True), proof.text.splitlines(keepends=True),
@@ -217,6 +337,24 @@ class Checker:
             n=1))
         return Finding(rule, severity, tuple(steps), message, proof.saves_m_s, proof.saves_kg,
                        proof.text, diff, tuple(notes))
+
+
+def _statement_text(text: str, node) -> str:
+    start = text.rfind("\n", 0, node.span.start) + 1
+    end = text.find("\n", node.span.end)
+    return text[start:(len(text) if end < 0 else end)]
+
+
+def _skeleton(text: str, statements) -> str:
+    """The plan text with its step statements' lines cut out: what a rewrite keeps."""
+    pieces, cut = [], 0
+    for node in statements:
+        start = text.rfind("\n", 0, node.span.start) + 1
+        end = text.find("\n", node.span.end)
+        pieces.append(text[cut:start])
+        cut = len(text) if end < 0 else end
+    pieces.append(text[cut:])
+    return " ".join("\n".join(pieces).split())
 
 
 def with_goals(node, goals) -> object:
@@ -252,14 +390,23 @@ def findings_for(program: Program, rules: Iterable[Rule] | None = None) -> list[
 
 
 def check_program(program: Program, rules: Iterable[Rule] | None = None,
-                  result: Result | None = None) -> list[Finding]:
-    """Every finding for one plan; ``result`` is its priced chain if already at hand."""
+                  result: Result | None = None, budget: Budget | None = None,
+                  min_saving_m_s: float = 0.0, ignore: Iterable[str] = ()) -> list[Finding]:
+    """Every finding for one plan; ``result`` is its priced chain if already at hand.
+
+    ``budget`` bounds the time spent (``Budget(None)``: no limit; by default
+    ``DEFAULT_TIME_LIMIT``) and collects which rules were cut short; rules skip
+    candidates whose bound says they cannot save ``min_saving_m_s`` (m/s, with margin).
+    Findings of the rules in ``ignore``, and of a rule a step's line silences with
+    ``# apsidal: allow RULE``, are left out and kept in ``budget.silenced``.
+    """
     from .rules import RULES
 
     result = run(program) if result is None else result
     if result.error is not None and result.failure != "propellant":
         raise result.error
-    checker = Checker(program, result)
+    budget = Budget() if budget is None else budget
+    checker = Checker(program, result, budget, min_saving_m_s)
     out: list[Finding] = []
     seen: set[str] = set()
     chosen = list(RULES if rules is None else rules)
@@ -267,9 +414,11 @@ def check_program(program: Program, rules: Iterable[Rule] | None = None,
     for always in (reserve_not_covered, propellant_exhausted):  # never clean if it does not fit
         if always not in chosen:
             chosen.insert(0, always)
-    for rule in chosen:
+    for n, rule in enumerate(chosen):
         if not result.ok and getattr(rule, "needs_flyable", True):
             continue
+        if budget.progress is not None:
+            budget.progress(rule.rule_name, n / len(chosen))
         for f in rule(checker):
             if f.suggestion is not None:
                 key = " ".join(f.suggestion.split())
@@ -277,9 +426,51 @@ def check_program(program: Program, rules: Iterable[Rule] | None = None,
                     continue  # another rule already proved the same rewrite
                 seen.add(key)
             out.append(f)
+    if budget.cut_short:
+        limit = f"{budget.seconds:g} s" if budget.seconds is not None else "the"
+        out.append(Finding(
+            "time-limit", "info", (),
+            f"the time limit of {limit} was reached: {', '.join(sorted(budget.cut_short))} "
+            "reported only what was proven by then (raise --time-limit to search further)"))
+    out = _apply_silencing(program, checker, out, ignore or (), budget)
     order = {s: i for i, s in enumerate(SEVERITIES)}
     out.sort(key=lambda f: (-order[f.severity], -(f.saves_kg or 0.0)))
     return out
+
+
+ALLOW = re.compile(r"#\s*apsidal:\s*allow\s+([a-z0-9-]+(?:\s*,\s*[a-z0-9-]+)*)")
+
+
+def allowed_rules(line: str) -> set[str]:
+    """Rules a plan line silences with our marker comment.
+
+    >>> sorted(allowed_rules("burn spiral: apoapsis to 900 km  # apsidal: allow long-burn"))
+    ['long-burn']
+    >>> sorted(allowed_rules("burn b: along 1 m/s # apsidal: allow long-burn, merge-burns"))
+    ['long-burn', 'merge-burns']
+    >>> allowed_rules("burn b: along 1 m/s  # allow long-burn")
+    set()
+    """
+    return {name.strip() for m in ALLOW.finditer(line) for name in m.group(1).split(",")}
+
+
+def _apply_silencing(program: Program, checker: Checker, findings: list[Finding],
+                     ignore: Iterable[str], budget: Budget) -> list[Finding]:
+    """Findings not silenced; the silenced ones go to ``budget.silenced``."""
+    ignore = set(ignore)
+    allow = {}
+    for k, step in enumerate(program.steps):
+        rules = allowed_rules(checker.statement_text(k))
+        if rules:
+            allow[step.name] = rules
+    kept = []
+    for f in findings:
+        names = {s.split("/")[0] for s in f.steps}
+        if f.rule in ignore or any(f.rule in allow.get(n, ()) for n in names):
+            budget.silenced.append(f)
+        else:
+            kept.append(f)
+    return kept
 
 
 def rule(name: str, needs_flyable: bool = True):

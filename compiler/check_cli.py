@@ -16,6 +16,7 @@ from .cliutil import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_OK, UsageError, write_a
 from .cliutil import console as _console
 
 SEVERITIES = ("info", "warning", "error")  # check.SEVERITIES, without importing the checker
+DEFAULT_TIME_LIMIT = 20.0  # s: check.DEFAULT_TIME_LIMIT, likewise (a test keeps them equal)
 
 
 def register(sub) -> None:
@@ -30,6 +31,11 @@ def register(sub) -> None:
                           "the plan's delta-v with margin (e.g. 1%%)")
     chk.add_argument("--rule", action="append", default=None, metavar="NAME",
                      help="run only this rule (repeatable); see `apsidal explain`")
+    chk.add_argument("--ignore", action="append", default=[], metavar="RULE",
+                     help="leave this rule's findings out (repeatable; counted as silenced)")
+    chk.add_argument("--time-limit", default=str(DEFAULT_TIME_LIMIT), metavar="SECONDS",
+                     help=f"stop searching each plan after this long and report what is "
+                          f"proven (default {DEFAULT_TIME_LIMIT:g}; 0 or `none`: no limit)")
     chk.add_argument("--write-suggestion", metavar="OUT.aps", default=None,
                      help="write the cheapest rewritten plan to this file")
     chk.set_defaults(func=cmd_check)
@@ -71,13 +77,47 @@ def _keep(f, threshold, plan_dv_m_s: float) -> bool:
     return f.saves_m_s >= limit
 
 
+def parse_time_limit(text: str) -> float | None:
+    """Seconds for --time-limit; None for no limit.
+
+    >>> parse_time_limit("30"), parse_time_limit("none"), parse_time_limit("0")
+    (30.0, None, None)
+    """
+    if text.strip().lower() in ("none", "off"):
+        return None
+    try:
+        value = float(text)
+    except ValueError:
+        value = -1.0
+    if not value >= 0 or value == float("inf"):
+        raise UsageError(f"--time-limit takes a number of seconds such as `20`, or `none`, "
+                         f"not `{text}`")
+    return value or None
+
+
+def _progress(path: str):
+    """A one-line progress report on stderr, only when stderr is a terminal."""
+    if not sys.stderr.isatty():
+        return None
+
+    def show(rule: str, done: float) -> None:
+        bar = "#" * int(done * 20)
+        sys.stderr.write(f"\r{path}: [{bar:<20}] {rule:<28}")
+        sys.stderr.flush()
+    return show
+
+
 def cmd_check(args) -> int:
-    from .check import check_program
+    from .check import Budget, check_program
     from .evaluate import run
     from .load import load
     from .rules import BY_NAME
 
     threshold = parse_min_saving(args.min_saving)
+    seconds = parse_time_limit(args.time_limit)
+    for name in args.ignore:
+        if name not in BY_NAME:
+            raise UsageError(f"--ignore: no rule named `{name}`; `apsidal explain` lists them")
     rules = None
     if args.rule:
         unknown = [r for r in args.rule if r not in BY_NAME]
@@ -94,12 +134,23 @@ def cmd_check(args) -> int:
     if args.plans.count("-") > 1:
         raise UsageError("standard input (`-`) can be named once")
     reports = []  # (path, program or None, findings, PlanError or None)
+    silenced: dict[str, int] = {}
     worst = -1
     for path in args.plans:
         try:
             program = load(path)
             result = run(program)
-            findings = check_program(program, rules, result)
+            dv = float(result.final.dv_margin[0]) * 1000.0
+            floor = 0.0
+            if threshold is not None:
+                floor = threshold[1] * (1000.0 if threshold[0] == "speed" else dv)
+            budget = Budget(seconds, _progress(path))
+            try:
+                findings = check_program(program, rules, result, budget, floor, args.ignore)
+            finally:
+                if budget.progress is not None:
+                    sys.stderr.write("\r" + " " * 60 + "\r")
+            silenced[path] = len(budget.silenced)
         except PlanError as err:
             print(err.render(), file=sys.stderr)
             reports.append(("<stdin>" if path == "-" else path, None, [], err))
@@ -116,7 +167,7 @@ def cmd_check(args) -> int:
     elif args.format == "csv":
         sys.stdout.write(to_csv(reports))
     else:
-        table(reports, _console())
+        table(reports, _console(), silenced)
     if args.write_suggestion and reports[0][1] is not None:
         findings = reports[0][2]
         best = max((f for f in findings if f.suggestion), key=lambda f: f.saves_kg or 0.0,
@@ -206,7 +257,7 @@ def _saving(f) -> str:
     return f" (saves {sig(f.saves_m_s)} m/s, {sig(f.saves_kg)} kg)"
 
 
-def table(reports, console) -> None:
+def table(reports, console, silenced: dict | None = None) -> None:
     from rich.markup import escape
     from rich.padding import Padding
     from rich.syntax import Syntax
@@ -232,8 +283,10 @@ def table(reports, console) -> None:
                 console.print(Syntax(f.diff, "diff", theme="ansi_dark", background_color="default"))
         console.print()
     n = sum(len(fs) for _, _, fs, _ in reports)
+    quiet = sum((silenced or {}).values())
     console.print(f"{n} finding{'s' if n != 1 else ''} in {len(reports)} "
-                  f"plan{'s' if len(reports) != 1 else ''}.")
+                  f"plan{'s' if len(reports) != 1 else ''}"
+                  + (f" ({quiet} silenced)" if quiet else "") + ".")
     from .budget import CAUTION
 
     console.print(f"Caution: {CAUTION}", style="italic", highlight=False)

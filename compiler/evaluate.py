@@ -308,6 +308,46 @@ def burn_outcome(step: Burn, r, v, ctx: Context, normal=None) -> BurnOutcome:
     return _burn_at(step, step.place, r, v, ctx, normal)
 
 
+def propellant_for(mass, dv_margin, exhaust_speed):
+    """Propellant (kg) a burn of ``dv_margin`` km/s takes from ``mass`` kg: the rocket
+    equation, m (1 - exp(-dv / ve))."""
+    return mass * -np.expm1(-dv_margin / exhaust_speed)
+
+
+def carry(batch: Batch, rows: list[Row], mass_before: float) -> tuple[Batch, np.ndarray]:
+    """Steps already priced, flown again from the same orbit state at another mass.
+
+    The orbit part of a step does not depend on the mass, so a rewritten plan that is
+    back in the state the plan was in (``batch``, same r and v as the state the plan had
+    before ``rows``, whose mass was ``mass_before`` kg) flies ``rows`` with the same
+    delta-v; only the propellant of each burn follows the new mass (the rocket equation
+    of ``_price``; the load never stops the chain, it may run negative) and each drop
+    takes the same mass.  Returns the final state and whether every step flew (always,
+    here: the orbit part is the plan's own).  Expectations on the orbit pass as they
+    did; those on mass or propellant are the caller's to rerun.
+    """
+    mass, left = batch.mass.copy(), batch.propellant.copy()
+    dv, dvm = batch.dv.copy(), batch.dv_margin.copy()
+    ok = np.ones(batch.size, dtype=bool)
+    expect_ok = batch.expect_ok.copy()
+    prev = mass_before
+    last = batch
+    for row in rows:
+        if row.kind in ("burn", "allow"):
+            used = propellant_for(mass, row.dv_margin, row.engine.exhaust_speed)
+            mass, left = mass - used, left - used
+            dv, dvm = dv + row.dv, dvm + row.dv_margin
+        elif row.kind == "drop":
+            mass = mass - (prev - float(row.after.mass[0]))
+        elif row.kind == "expect":
+            for check in row.checks:
+                expect_ok &= check.passed
+        prev = float(row.after.mass[0])
+        last = row.after
+    return replace(last, mass=mass, propellant=left, dv=dv, dv_margin=dvm,
+                   expect_ok=expect_ok), ok
+
+
 def _price(batch: Batch, out: BurnOutcome, engine: EngineSpec, margin: float, ctx: Context,
            fails: Failures, name: str):
     """Rocket equation, propellant check and burn time; returns (batch, row parts)."""
@@ -346,7 +386,7 @@ def _propellant(batch: Batch, dvm, engine: EngineSpec):
     ``size``.
     """
     ve = engine.exhaust_speed
-    need = batch.mass * -np.expm1(-dvm / ve)
+    need = propellant_for(batch.mass, dvm, ve)
     covered = batch.propellant - need >= -1e-9 * np.maximum(need, 1.0)
     return need, covered, need * ve * 1000.0 / engine.thrust
 
@@ -503,33 +543,45 @@ def _split_normals(r, v, target, share):
     return [first, target]
 
 
+SPLIT_GRID = 33  # shares priced at once per refinement round of the split search
+SPLIT_ROUNDS = 8  # each round narrows the bracket 16-fold: 16**-8 ~ 2e-10 of the share
+
+
 def _best_split(phases, up, batch: Batch, ctx: Context, r0, v0, target, sweep=None):
     """Share of the plane change at the first burn that minimises the total delta-v.
 
-    Golden-section search on [0, 1] over the whole batch at once; the total is convex
-    in the share for a two-burn transfer, so the bracket holds.
+    A grid of ``SPLIT_GRID`` shares for every element is priced as one batch, the
+    bracket around the cheapest is gridded again, ``SPLIT_ROUNDS`` times; the total is
+    convex in the share for a two-burn transfer, so the bracket holds.  Each round is
+    one batched pass through the transfer's burns (rather than one pass per step of a
+    sequential search), which is what a plan of one element pays for.
     """
+    n, g = batch.size, SPLIT_GRID
+    rep = np.repeat(np.arange(n), g)
+    big = batch.take(rep)
+    r_g, v_g, t_g = r0[rep], v0[rep], target[rep]
+    up_g = None if up is None else up[rep]
+    sweep_g = None if sweep is None else sweep[rep]
+
     def total(share):
-        b = batch
-        cost = np.zeros(batch.size)
-        normals = _split_normals(r0, v0, target, share)
+        b = big
+        cost = np.zeros(big.size)
+        normals = _split_normals(r_g, v_g, t_g, share)
         for k, ((b_up, b_down), normal) in enumerate(zip(phases, normals)):
-            b, row = _either(b_up, b_down, up, 0, b, ctx, Failures(b.size), normal,
-                             sweep if k == 0 else None)
+            b, row = _either(b_up, b_down, up_g, 0, b, ctx, Failures(b.size), normal,
+                             sweep_g if k == 0 else None)
             cost += row.dv
         return cost
-    lo, hi = np.zeros(batch.size), np.ones(batch.size)
-    g = (np.sqrt(5.0) - 1.0) / 2.0
-    x1, x2 = hi - g * (hi - lo), lo + g * (hi - lo)
-    f1, f2 = total(x1), total(x2)
-    for _ in range(48):
-        left = f1 < f2  # the minimum lies in [lo, x2]
-        hi = np.where(left, x2, hi)
-        lo = np.where(left, lo, x1)
-        x_new = np.where(left, hi - g * (hi - lo), lo + g * (hi - lo))
-        f_new = total(x_new)
-        x1, x2, f1, f2 = (np.where(left, x_new, x2), np.where(left, x1, x_new),
-                          np.where(left, f_new, f2), np.where(left, f1, f_new))
+
+    lo, hi = np.zeros(n), np.ones(n)
+    steps = np.linspace(0.0, 1.0, g)
+    for _ in range(SPLIT_ROUNDS):
+        shares = (lo[:, None] + (hi - lo)[:, None] * steps[None, :]).reshape(-1)
+        cost = total(shares).reshape(n, g)
+        k = np.argmin(cost, axis=1)
+        width = (hi - lo) / (g - 1)
+        centre = lo + k * width
+        lo, hi = np.maximum(centre - width, 0.0), np.minimum(centre + width, 1.0)
     return 0.5 * (lo + hi)
 
 

@@ -7,18 +7,20 @@ transfers and coasts to a place may be flown in any order, and each ordering is 
 the evaluator.  The orderings form a prefix tree: all orderings that start with the same
 steps share those steps' state, so each level of the tree is one batched ``apply`` per
 step.  Orderings that fail (an unreachable goal, propellant exhausted) are pruned where
-they fail.  Up to ``EXHAUSTIVE_NODES`` tree nodes the search is exhaustive; beyond that
-it keeps the cheapest ``beam`` prefixes at each level and says so.
+they fail, prefixes that cannot beat the plan's own order are pruned (branch and bound,
+``_bnb``), and partial orders are stored as parent index and choice per level.  Past
+``WORK_LIMIT`` steps priced, or past ``WINDOW`` steps in a block, the search is bounded
+and says so.
 
-An ordering counts only if, run to the end of the plan, it reaches the same final orbit
-as the plan (size, shape and plane; also orientation when an expectation names raan or
-argp) and meets every expectation.
+An ordering counts only if it ends the block in the orbit the plan's own order ends it
+in (size, shape, plane and apse line), so that the rest of the plan flies the same; the
+rule then proves the best by pricing the whole rewritten plan.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -26,8 +28,11 @@ from .evaluate import Batch, Context, apply, context_for, start_batch
 from .state import dot, elements_from_state, frame, norm
 from .steps import Allow, Burn, Coast, Drop, Expect, Program
 
-EXHAUSTIVE_NODES = 200_000  # tree nodes priced before the search turns to a beam
-BEAM = 4096
+WORK_LIMIT = 500_000  # steps priced (one step on one partial order) per block
+WINDOW = 12  # blocks up to this many steps are searched whole
+LONG_WINDOW = 8  # a longer block is searched in windows of this many, half overlapping
+CUT_WIDTH = 16  # partial orders kept per level once the time budget has run out
+EXHAUSTIVE_NODES = WORK_LIMIT  # kept for the older benchmark
 
 
 def is_barrier(step) -> bool:
@@ -95,8 +100,8 @@ def same_orbit(a: Batch, ref: Batch, mu: float, orientation: bool) -> np.ndarray
 @dataclass
 class Ordering:
     order: tuple[int, ...]  # step indices in the new order
-    dv: float  # km/s with margin, whole plan
-    propellant: float  # kg, whole plan
+    dv: float  # km/s with margin, whole plan up to the end of the block
+    propellant: float  # kg, whole plan up to the end of the block
 
 
 @dataclass
@@ -104,33 +109,141 @@ class BlockResult:
     block: list[int]
     original: Ordering
     best: Ordering
-    priced: int  # tree nodes priced
+    priced: int  # tree nodes priced (one step applied to one partial order)
     orderings: int  # complete orderings reached
-    valid: int  # of them, those reaching the same orbit and meeting every expectation
-    exhaustive: bool
+    valid: int  # of them, those ending the block in the same orbit as the plan
+    exhaustive: bool  # True: the best is a proven optimum (nothing cut by a work limit)
+    considered: int = 0  # partial orders generated
+    pruned: int = 0  # of them, dropped by the bound or by a cheaper equal state
+    status: str = "proven"  # proven | bounded | cut short
+    windows: int = 0  # > 0: a long block searched in windows of this many steps
 
 
-def search_block(program: Program, block: list[int], limit: int = EXHAUSTIVE_NODES,
-                 beam: int = BEAM) -> BlockResult | None:
-    """Best ordering of one block, the rest of the plan as written."""
+def search_block(program: Program, block: list[int], limit: int | None = None,
+                 start: Batch | None = None, end: Batch | None = None,
+                 budget=None) -> BlockResult | None:
+    """Cheapest order of one block by branch and bound, the rest of the plan as written.
+
+    ``start`` is the state before the block and ``end`` the state after it as the plan
+    flies it (both computed when not given).  A block longer than ``WINDOW`` steps is
+    searched in windows of ``LONG_WINDOW`` steps, each overlapping the last by half (each
+    window's best kept for the next), and the result says so: a step then moves at most
+    a window's length.
+    """
     ctx = context_for(program)
-    head, tail = list(range(block[0])), list(range(block[-1] + 1, len(program.steps)))
-    start, ok = advance(program, start_batch(program), ctx, head)
-    if not ok[0]:
-        return None
-    k = len(block)
-    exhaustive = tree_nodes(k) <= limit
-    perms = np.zeros((1, 0), dtype=np.int64)
-    used = np.zeros((1, k), dtype=bool)
-    batch = start
-    priced = 0
-    for level in range(k):
-        parent_idx, choice = np.nonzero(~used)
-        if parent_idx.size == 0:
+    limit = WORK_LIMIT if limit is None else limit
+    if start is None:
+        start, ok = advance(program, start_batch(program), ctx, range(block[0]))
+        if not ok[0]:
             return None
+    if end is None:
+        end, ok = advance(program, start, ctx, block)
+        if not ok[0]:
+            return None
+    if len(block) <= WINDOW:
+        return _bnb(program, ctx, block, start, end, limit, budget)
+    order = list(block)
+    total = None
+    state = start
+    width = LONG_WINDOW
+    for w0 in range(0, len(block), width // 2):
+        if budget is not None and budget.expired() and total is not None:
+            total = replace(total, status="cut short")
+            break
+        part = order[w0:w0 + width]
+        if len(part) < 2:
+            break
+        sub = program.with_steps([program.steps[i] for i in order]) if order != block \
+            else program
+        slots = block[w0:w0 + len(part)]
+        part_end, ok = advance(sub, state, ctx, slots)
+        if not ok[0]:
+            return None
+        res = _bnb(sub, ctx, slots, state, part_end, max(limit // 8, 1000), budget)
+        if res is None:
+            return None
+        chosen = [order[w0 + (j - slots[0])] for j in res.best.order]
+        order[w0:w0 + len(part)] = chosen
+        total = res if total is None else _add(total, res)
+        # the state before the next window: this window's first half flown in its best order
+        sub = program.with_steps([program.steps[i] for i in order])
+        step_n = min(width // 2, len(part))
+        state, ok = advance(sub, state, ctx, block[w0:w0 + step_n])
+        if not ok[0]:
+            return None
+        if w0 + width >= len(block):
+            break
+    final = program.with_steps([program.steps[i] for i in order])
+    fin, ok = advance(final, start, ctx, block)
+    original = _ordering(program, tuple(block), end)
+    if not ok[0] or not bool(same_orbit(fin, end, ctx.mu, True)[0]) or \
+            not fin.propellant[0] > end.propellant[0] + 1e-9:
+        best = original
+    else:
+        best = _ordering(program, tuple(order), fin)
+    return BlockResult(block, original, best, total.priced, total.orderings, total.valid,
+                       False, total.considered, total.pruned,
+                       "cut short" if total.status == "cut short" else "bounded", width)
+
+
+def _add(a: BlockResult, b: BlockResult) -> BlockResult:
+    status = "cut short" if "cut short" in (a.status, b.status) else a.status
+    return replace(a, priced=a.priced + b.priced, orderings=a.orderings + b.orderings,
+                   valid=a.valid + b.valid, considered=a.considered + b.considered,
+                   pruned=a.pruned + b.pruned, status=status)
+
+
+def _ordering(program: Program, order, state: Batch, i: int = 0) -> Ordering:
+    return Ordering(tuple(order), float(state.dv_margin[i]),
+                    float(program.craft.propellant - state.propellant[i]))
+
+
+def _bits(used: np.ndarray, k: int) -> np.ndarray:
+    return ((used[:, None] >> np.arange(k, dtype=np.int64)) & 1).astype(bool)
+
+
+def _bnb(program: Program, ctx: Context, block: list[int], start: Batch, end: Batch,
+         limit: int, budget) -> BlockResult:
+    """Branch and bound over the orders of one block (at most ``WINDOW`` steps).
+
+    Level by level every partial order is extended by each step it has not flown, one
+    batched ``apply`` per step.  A partial order is pruned when it has already used at
+    least as much propellant as the plan's own order uses for the whole block (the
+    steps left cost no less than nothing), or when another partial order of the same
+    steps stands in the same state with more propellant left (whatever follows costs
+    the same delta-v, so the heavier craft ends heavier).  Partial orders are stored as
+    a parent index and the step chosen, per level; the frontier carries a bitmask of
+    the steps flown.  When the work left (``limit`` steps priced) cannot extend the
+    whole frontier, the cheapest partial orders that fit are kept and the result says
+    the search was bounded; when the time budget runs out, the search narrows to the
+    cheapest few and says it was cut short.
+    """
+    k = len(block)
+    original = _ordering(program, tuple(block), end)
+    incumbent = float(end.propellant[0])  # propellant left after the block, plan's order
+    batch, used = start, np.zeros(1, dtype=np.int64)
+    parents: list[np.ndarray] = []
+    choices: list[np.ndarray] = []
+    priced = considered = pruned = 0
+    status = "proven"
+    for level in range(k):
+        left = k - level
+        if budget is not None and budget.expired() and batch.size > CUT_WIDTH:
+            keep = np.argsort(-batch.propellant, kind="stable")[:CUT_WIDTH]
+            batch, used, status = batch.take(keep), used[keep], "cut short"
+            parents[-1] = parents[-1][keep]
+            choices[-1] = choices[-1][keep]
+        allowance = (limit - priced) // max(sum(range(1, left + 1)), 1)
+        if batch.size > max(allowance, 1):
+            keep = np.argsort(-batch.propellant, kind="stable")[:max(allowance, 1)]
+            batch, used = batch.take(keep), used[keep]
+            parents[-1] = parents[-1][keep]
+            choices[-1] = choices[-1][keep]
+            status = "bounded" if status == "proven" else status
+        parent_idx, choice = np.nonzero(~_bits(used, k))
+        considered += parent_idx.size
         child = batch.take(parent_idx)
-        keep = np.zeros(parent_idx.size, dtype=bool)
-        parts: list[Batch | None] = [None] * k
+        parts: list = [None] * k
         for j in range(k):
             sel = np.nonzero(choice == j)[0]
             if sel.size == 0:
@@ -139,40 +252,67 @@ def search_block(program: Program, block: list[int], limit: int = EXHAUSTIVE_NOD
             priced += sel.size
             parts[j] = (sel, sub, fails.ok)
         child = _scatter(child, parts)
+        keep = np.zeros(parent_idx.size, dtype=bool)
         for part in parts:
             if part is not None:
                 keep[part[0]] = part[2]
-        perms = np.concatenate([perms[parent_idx], choice[:, None]], axis=1)[keep]
-        used = used[parent_idx]
-        used[np.arange(used.shape[0]), choice] = True
-        used = used[keep]
-        batch = child.take(np.nonzero(keep)[0])
-        if not exhaustive and batch.size > beam:
-            cheapest = np.argsort(batch.propellant * -1.0, kind="stable")[:beam]
-            perms, used, batch = perms[cheapest], used[cheapest], batch.take(cheapest)
-    if batch.size == 0:
-        return None
-    final, ok = advance(program, batch, ctx, tail)
-    reference, ref_ok = advance(program, start, ctx, block + tail)
-    if not ref_ok[0]:
-        return None
-    valid = ok & final.expect_ok & same_orbit(final, reference, ctx.mu,
-                                              orientation_matters(program))
-    identity = np.all(perms == np.arange(k), axis=1)
-    original = Ordering(tuple(block), float(reference.dv_margin[0]),
-                        float(program.craft.propellant - reference.propellant[0]))
-    if not valid.any():
-        return BlockResult(block, original, original, priced, int(batch.size), 0, exhaustive)
-    used_prop = program.craft.propellant - final.propellant
-    cost = np.where(valid, used_prop, np.inf)
-    # prefer the original order on ties, then fewer moved steps
-    moved = np.sum(perms != np.arange(k), axis=1)
-    order = np.lexsort((moved, ~identity, np.round(cost, 9)))
-    best_i = order[0]
-    best = Ordering(tuple(block[j] for j in perms[best_i]), float(final.dv_margin[best_i]),
-                    float(used_prop[best_i]))
-    return BlockResult(block, original, best, priced, int(batch.size), int(valid.sum()),
-                       exhaustive)
+        new_used = used[parent_idx] | (np.int64(1) << choice.astype(np.int64))
+        # the bound: more propellant already used than the plan's order uses in all
+        over = child.propellant < incumbent - 1e-9 * max(abs(incumbent), 1.0)
+        dropped = keep & over
+        keep &= ~over
+        pruned += int(dropped.sum())
+        idx = np.nonzero(keep)[0]
+        idx, dup = _dominant(child, new_used, idx)
+        pruned += dup
+        parents.append(parent_idx[idx].astype(np.int32))
+        choices.append(choice[idx].astype(np.int16))
+        batch, used = child.take(idx), new_used[idx]
+        if batch.size == 0:
+            break
+    complete = batch.size if len(parents) == k else 0
+    valid = np.zeros(0, dtype=bool)
+    best = original
+    if complete:
+        valid = same_orbit(batch, end, ctx.mu, True) & batch.expect_ok
+        if valid.any():
+            cand = np.nonzero(valid)[0]
+            orders = _orders(parents, choices, cand)
+            moved = np.sum(orders != np.arange(k), axis=1)
+            rank = np.lexsort((moved, -np.round(batch.propellant[cand], 9)))
+            top = cand[rank[0]]
+            if batch.propellant[top] > incumbent + 1e-9:
+                best = _ordering(program, tuple(block[j] for j in orders[rank[0]]), batch, top)
+    return BlockResult(block, original, best, priced, int(complete), int(valid.sum()),
+                       status == "proven", considered, pruned, status)
+
+
+def _dominant(batch: Batch, used: np.ndarray, idx: np.ndarray) -> tuple[np.ndarray, int]:
+    """Of partial orders with the same steps flown and the same state, the one with the
+    most propellant left; returns (indices kept, how many dropped)."""
+    if idx.size < 2:
+        return idx, 0
+    scale = np.maximum(np.abs(batch.r[idx]).max(), 1.0)
+    key = np.concatenate([used[idx, None].astype(np.float64),
+                          np.round(batch.r[idx] / scale, 12),
+                          np.round(batch.v[idx], 12)], axis=1)
+    order = np.lexsort((-batch.propellant[idx],) + tuple(key.T[::-1]))
+    sk = key[order]
+    first = np.ones(idx.size, dtype=bool)
+    first[1:] = np.any(sk[1:] != sk[:-1], axis=1)
+    kept = np.sort(idx[order[first]])
+    return kept, int(idx.size - kept.size)
+
+
+def _orders(parents, choices, leaves: np.ndarray) -> np.ndarray:
+    """The full orders (as block positions) of the given leaves, walking parents back."""
+    k = len(parents)
+    out = np.empty((leaves.size, k), dtype=np.int64)
+    at = leaves
+    for level in range(k - 1, -1, -1):
+        out[:, level] = choices[level][at]
+        at = parents[level][at]
+    return out
 
 
 def _scatter(template: Batch, parts) -> Batch:

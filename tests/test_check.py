@@ -220,21 +220,33 @@ transfer geo: circular 35786 km via apoapsis 90000 km
     assert f.saves_m_s == pytest.approx(old - hohmann, abs=0.01)
 
 
-def test_large_block_search_is_bounded_and_says_so():
+def _burns(n: int) -> str:
+    return "\n".join(
+        f"burn up{k} at periapsis: apoapsis to {3000 + 1000 * k} km" if k % 2 else
+        f"burn tilt{k} at node: inclination to {30 - k} deg" for k in range(n))
+
+
+def test_ten_step_block_is_solved_to_a_proven_optimum_and_a_work_limit_says_bounded():
     from apsidal.compiler.reorder import blocks, search_block
 
-    burns = "\n".join(
-        f"burn up{k} at periapsis: apoapsis to {3000 + 1000 * k} km" if k % 2 else
-        f"burn tilt{k} at node: inclination to {30 - k} deg" for k in range(10))
-    program = load_text(plan("start circular 400 km inclination 30 deg\n" + burns + "\n"),
-                        "big.aps")
+    program = load_text(plan("start circular 400 km inclination 30 deg\n" + _burns(10)
+                             + "\n"), "big.aps")
     [block] = blocks(program)
     res = search_block(program, block)
-    assert len(block) == 10 and not res.exhaustive
+    assert len(block) == 10 and res.exhaustive and res.status == "proven"
     assert res.best.propellant <= res.original.propellant + 1e-9
-    text = plan("start circular 400 km inclination 30 deg\n" + burns + "\n")
+    tight = search_block(program, block, limit=2000)
+    assert not tight.exhaustive and tight.status == "bounded"
+    assert tight.priced <= 2000 + len(block)
+    # the bounded search never claims better than the proven optimum
+    assert tight.best.propellant >= res.best.propellant - 1e-9
+
+
+def test_long_block_search_is_bounded_and_says_so():
+    text = plan("start circular 400 km inclination 30 deg\n" + _burns(14) + "\n")
     notes = [n for f in findings(text, "cheaper-order") for n in f.notes]
-    assert any("bounded search" in n for n in notes)
+    assert notes and all("bounded search" in n for n in notes)
+    assert any("windows of" in n for n in notes)
 
 
 # --- the other rules ----------------------------------------------------------------------
@@ -578,3 +590,11 @@ def test_every_rule_is_documented():
     doc = (Path(__file__).parent.parent / "docs" / "check.md").read_text()
     for r in RULES:
         assert f"### `{r.rule_name}`" in doc
+
+
+def test_the_command_line_keeps_the_checkers_constants():
+    """check_cli repeats two of the checker's constants so `run` need not import it."""
+    from apsidal.compiler import check, check_cli
+
+    assert check_cli.DEFAULT_TIME_LIMIT == check.DEFAULT_TIME_LIMIT
+    assert check_cli.SEVERITIES == check.SEVERITIES

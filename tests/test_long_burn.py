@@ -126,3 +126,20 @@ burn nudge: along 0.1 m/s
     arc, ok = burn_arc(row.after.r, row.v_before, row.v_before, mu,
                        np.array([2.5 * period]))
     assert bool(ok[0]) and math.degrees(float(arc[0])) == pytest.approx(900.0, abs=1e-6)
+
+
+def test_a_marker_comment_silences_long_burn_for_its_step_and_is_counted():
+    from apsidal.compiler.check import Budget, check_program
+    from apsidal.compiler.load import load_text
+    from apsidal.compiler.rules import BY_NAME
+
+    text = capture("200 N").replace(
+        "burn capture at periapsis: apoapsis to 33000 km",
+        "burn capture at periapsis: apoapsis to 33000 km  # apsidal: allow long-burn")
+    budget = Budget(None)
+    kept = check_program(load_text(text, "c.aps"), [BY_NAME["long-burn"]], budget=budget)
+    assert kept == [] and [f.rule for f in budget.silenced] == ["long-burn"]
+    budget = Budget(None)
+    kept = check_program(load_text(capture("200 N"), "c.aps"), [BY_NAME["long-burn"]],
+                         budget=budget, ignore=["long-burn"])
+    assert kept == [] and len(budget.silenced) == 1

@@ -39,6 +39,9 @@ def merge_burns(c: Checker) -> list[Finding]:
     for i, a, b in _same_point_pairs(c):
         if a.vector is not None or b.vector is not None:
             continue
+        if c.budget.expired():
+            c.budget.cut("merge-burns")
+            break
         if (a.engine or c.program.craft.default_engine) != (b.engine or
                                                             c.program.craft.default_engine):
             continue

@@ -7,9 +7,9 @@ import math
 from apsidal.lang.errors import PlanError
 
 from ..check import Checker, Finding, rule, saving_text, with_goals
-from ..evaluate import run
+from ..evaluate import Result
 from ..load import load_text
-from ..reorder import BEAM, blocks, search_block
+from ..reorder import blocks, search_block
 from ..steps import Burn, Transfer
 
 
@@ -31,8 +31,10 @@ def _pinned(c: Checker, block: list[int]) -> Checker:
         program = load_text(c.rewrite(edits), c.program.source.path)
     except PlanError:
         return c
-    result = run(program)
-    return Checker(program, result) if result.ok else c
+    final, ok, rows = c.price(program)
+    if not ok:
+        return c
+    return Checker(program, Result(program=program, rows=rows, final=final), c.budget)
 
 
 @rule("cheaper-order")
@@ -42,30 +44,64 @@ def cheaper_order(c: Checker) -> list[Finding]:
     Between barriers (`drop`, `expect`, explicit-vector burns, timed coasts) the goal
     burns, transfers and coasts to a place may be flown in any order.  Every order is
     priced by the evaluator, sharing the state of common prefixes; it counts only if it
-    reaches the same final orbit and meets every expectation.  Up to a work limit the
-    search is exhaustive; beyond it a bounded (beam) search keeps the cheapest prefixes
-    at each step and the finding says so.  Typical catch: a plane change flown in a low
+    ends the block in the plan's own orbit and meets every expectation.  The search is
+    a branch and bound: a partial order that has already used as much propellant as
+    the plan's order uses for the whole block is dropped, and of partial orders in the
+    same state the lighter is dropped.  Up to 12 steps and a work limit the result is a
+    proven optimum; past the work limit, past 12 steps (searched in half-overlapping
+    windows of 8) or past the time limit the finding says the search was bounded or cut
+    short, and a bounded search that finds nothing says so too.  Typical catch: a plane
+    change flown in a low
     orbit before the apoapsis is raised, where the craft is fastest.
     """
     out = []
     for block in blocks(c.program):
+        if c.budget.expired():
+            c.budget.cut("cheaper-order")
+            break
         pinned = _pinned(c, block)
-        res = search_block(pinned.program, block)
-        if res is None or res.best.order == tuple(block):
+        res = search_block(pinned.program, block, start=pinned.state_before(block[0]),
+                           end=pinned.state_after(block[-1]), budget=c.budget)
+        if res is None:
+            continue
+        if res.status == "cut short":
+            c.budget.cut("cheaper-order")
+        names = [c.program.steps[i].name for i in block]
+        scope = _scope(res)
+        if res.best.order == tuple(block):
+            if res.status != "proven":  # say that a better order was not ruled out
+                out.append(c.finding(
+                    "cheaper-order", "info", names,
+                    f"no cheaper order of {', '.join(names[:4])}"
+                    f"{', ...' if len(names) > 4 else ''} ({len(block)} steps) found", None,
+                    notes=(scope,)))
             continue
         proof = c.prove(pinned.reorder(block, res.best.order))
         if proof is None:
             continue
-        names = [c.program.steps[i].name for i in block]
         new = [c.program.steps[i].name for i in res.best.order]
-        total = math.factorial(len(block))
-        scope = (f"exhaustive: all {total} orderings of {len(block)} steps priced; "
-                 f"{total - res.orderings} cannot be flown, {res.valid} reach the same orbit"
-                 if res.exhaustive else
-                 f"bounded search: the {BEAM} cheapest partial orders were kept at each "
-                 f"step ({res.priced} step evaluations); a cheaper order may exist")
         out.append(c.finding(
             "cheaper-order", "warning", names,
             f"flying {', '.join(names)} as {', '.join(new)} saves {saving_text(proof)}",
             proof, notes=(scope,)))
     return out
+
+
+def _scope(res) -> str:
+    """How far the search went, in words."""
+    k = len(res.block)
+    counts = (f"{res.considered} partial orders considered, {res.pruned} pruned by the "
+              f"bound or a cheaper equal state, {res.priced} step evaluations")
+    if res.windows:
+        return (f"bounded search: {k} steps searched in windows of {res.windows} "
+                f"consecutive steps ({counts}); an order moving a step further may be "
+                f"cheaper" + ("; cut short by the time limit" if res.status == "cut short"
+                              else ""))
+    if res.status == "cut short":
+        return (f"cut short by the time limit after {counts}; a cheaper order may exist")
+    if res.status == "bounded":
+        return (f"bounded search: the work limit kept only the cheapest partial orders "
+                f"({counts}); a cheaper order may exist")
+    return (f"branch and bound over all {math.factorial(k)} orders of {k} steps: proven "
+            f"cheapest ({counts}; {res.valid} complete orders end the block in the "
+            f"plan's orbit)")

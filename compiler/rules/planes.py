@@ -8,6 +8,7 @@ from apsidal.lang import syntax as ast
 from ..check import Checker, Finding, rule, saving_text, with_goals, with_where
 from ..reorder import blocks
 from ..steps import Burn, Transfer
+from .bounds import slowest_speed
 
 PLANE_GOALS = ("inclination", "raan")
 PLACES = ("apoapsis", "node", "ascending node", "descending node", "periapsis")
@@ -49,26 +50,44 @@ def plane_change_at_speed(c: Checker) -> list[Finding]:
         plane = c.pin_plane([g for g in node.goals if g.kind in PLANE_GOALS], i)
         rest = [g for g in node.goals if g.kind not in PLANE_GOALS]
         remaining = [c.unparse(with_goals(node, rest))] if rest else []
+        speed = _speed_before(c, i)
+        mu = c.program.body.gm
+
+        def slow_enough(state, speed=speed, mu=mu) -> bool:
+            # the carrier flies on this orbit: no point of it is slower than its apoapsis
+            least = slowest_speed(mu, state.r[0], state.v[0])
+            if least is not None and least * 1000.0 >= speed * (1 - 1e-3):
+                c.budget.pruned += 1
+                return False
+            return True
+
         candidates = []  # (text, name of the burn that carries the plane change)
         for slot in block:
-            for kind in PLACES:
+            if c.budget.expired():
+                c.budget.cut("plane-change-at-speed")
+                break
+            sides = [after for after, state in ((False, c.state_before(slot)),
+                                                (True, c.state_after(slot)))
+                     if slow_enough(state)]
+            for kind in PLACES if sides else ():
                 line = c.unparse(with_where(with_goals(node, plane), kind))
-                for after in (False, True):
-                    edits = {j: [c.statement_text(j)] for j in block}
-                    edits[i] = remaining if slot != i else []
-                    base = edits[slot] if slot != i else remaining
+                for after in sides:
+                    edits = {i: remaining if slot != i else []}
+                    base = [c.statement_text(slot)] if slot != i else remaining
                     edits[slot] = (base + [line]) if after else ([line] + base)
                     candidates.append((c.rewrite(edits), name))
             other = c.statements[slot]
             step = c.program.steps[slot]
             if slot != i and isinstance(step, Burn) and step.vector is None \
-                    and not step.changes_plane:
+                    and not step.changes_plane and _speed_before(c, slot) < speed * (1 - 1e-3):
                 merged = with_goals(other, list(other.goals) + plane)
                 candidates.append((c.rewrite({i: remaining, slot: [c.unparse(merged)]}),
                                    step.name))
-        speed = _speed_before(c, i)
         slower = []
         for text, carrier in dict.fromkeys(candidates):
+            if c.budget.expired():
+                c.budget.cut("plane-change-at-speed")
+                break
             proof = c.prove(text)
             if proof is None:
                 continue
@@ -99,6 +118,9 @@ def costlier_node(c: Checker) -> list[Finding]:
     for i, step in enumerate(c.program.steps):
         if not isinstance(step, (Burn, Transfer)) or step.place.kind not in other:
             continue
+        if c.budget.expired():
+            c.budget.cut("costlier-node")
+            break
         node = c.statements[i]
         moved = with_where(with_goals(node, c.pin_plane(node.goals, i)), other[step.place.kind])
         text = c.rewrite({i: [c.unparse(moved)]})
@@ -127,6 +149,9 @@ def shared_plane_change(c: Checker) -> list[Finding]:
     for i, step in enumerate(steps):
         if not (isinstance(step, Transfer) and step.form == "hohmann"):
             continue
+        if c.budget.expired():
+            c.budget.cut("shared-plane-change")
+            return out
         for j in (i - 1, i + 1):
             if not 0 <= j < len(steps):
                 continue
@@ -158,6 +183,9 @@ def _burn_pairs(c: Checker) -> list[Finding]:
     out = []
     steps = c.program.steps
     for i in range(len(steps) - 1):
+        if c.budget.expired():
+            c.budget.cut("shared-plane-change")
+            break
         a, b = steps[i], steps[i + 1]
         if not (isinstance(a, Burn) and isinstance(b, Burn)
                 and a.vector is None and b.vector is None):

@@ -10,7 +10,9 @@ from apsidal.lang import syntax as ast
 from apsidal.lang.errors import Span
 
 from ..check import Checker, Finding, Proof, rule, saving_text, with_goals
+from ..state import elements_from_state
 from ..steps import Burn, Transfer
+from .bounds import BI_ELLIPTIC_RATIO, detour_lower_bound, plane_angle
 
 GRID = 10  # apoapsis candidates tried across the allowed range, before refining
 REFINE = 14  # golden-section steps on the logarithm of the apoapsis
@@ -35,7 +37,8 @@ def apoapsis_bound(c: Checker) -> tuple[float, str]:
     return bound, why
 
 
-def best_apoapsis(c: Checker, build, low: float, high: float) -> Proof | None:
+def best_apoapsis(c: Checker, build, low: float, high: float,
+                  rule_name: str = "") -> Proof | None:
     """The cheapest proven plan over apoapsis radii in [low, high] (km).
 
     ``build(alt_km)`` gives the plan text for an apoapsis altitude.  A geometric grid
@@ -49,6 +52,9 @@ def best_apoapsis(c: Checker, build, low: float, high: float) -> Proof | None:
 
     def price(log_r: float):
         alt = round(math.exp(log_r) - radius)
+        if alt not in cache and c.budget.expired():
+            c.budget.cut(rule_name)
+            return math.inf, None
         if alt not in cache:
             cache[alt] = c.prove(build(alt))
         p = cache[alt]
@@ -76,6 +82,17 @@ def best_apoapsis(c: Checker, build, low: float, high: float) -> Proof | None:
     return max(proofs, key=lambda p: p.saves_kg, default=None)
 
 
+def _never_pays(c: Checker, i: int, target: float) -> bool:
+    """From a circular orbit to a circular one in the same plane, a bi-elliptic transfer
+    never beats Hohmann's below a radius ratio of 11.94, whatever its apoapsis."""
+    before = c.state_before(i)
+    el = elements_from_state(before.r, before.v, c.program.body.gm)
+    if not el.ecc[0] < 1e-6:
+        return False
+    r0 = float(np.linalg.norm(before.r[0]))
+    return max(r0, target) / min(r0, target) < BI_ELLIPTIC_RATIO
+
+
 @rule("bi-elliptic-cheaper")
 def bi_elliptic_cheaper(c: Checker) -> list[Finding]:
     """A Hohmann transfer that a bi-elliptic one beats.
@@ -92,11 +109,17 @@ def bi_elliptic_cheaper(c: Checker) -> list[Finding]:
     for i, step in enumerate(c.program.steps):
         if not (isinstance(step, Transfer) and step.form == "hohmann"):
             continue
+        if not step.changes_plane and _never_pays(c, i, step.radius):
+            c.budget.pruned += 1
+            continue
+        if c.budget.expired():
+            c.budget.cut("bi-elliptic-cheaper")
+            break
         node = with_goals(c.statements[i], c.pin_plane(c.statements[i].goals, i))
         low = 1.05 * step.radius
         proof = best_apoapsis(
             c, lambda alt, i=i, node=node: c.rewrite({i: [c.unparse(_with_via(node, alt))]}),
-            low, bound)
+            low, bound, "bi-elliptic-cheaper")
         if proof is None:
             continue
         extra = float(proof.result.final.t[0] - c.result.final.t[0])
@@ -155,6 +178,15 @@ def three_burn_plane_change(c: Checker) -> list[Finding]:
         node = c.statements[i]
         row = c.rows_of(i)[0]
         r = float(np.linalg.norm(row.after.r[0]))
+        theta = plane_angle(row.after.r[0], row.v_before[0], row.after.v[0])
+        speed = float(np.linalg.norm(row.v_before[0]))
+        least = detour_lower_bound(c.program.body.gm, r, speed, theta, 1.1 * r, bound)
+        if not c.can_pay("three-burn-plane-change",
+                         (float(row.dv[0]) - least) * (1.0 + row.margin) * 1000.0):
+            continue  # below the break-even angle here: no apoapsis makes it pay
+        if c.budget.expired():
+            c.budget.cut("three-burn-plane-change")
+            break
         plane = tuple(c.pin_plane([g for g in node.goals if g.kind in ("inclination", "raan")],
                                   i))
 
@@ -163,7 +195,7 @@ def three_burn_plane_change(c: Checker) -> list[Finding]:
                              node.options, node.span)
             return c.rewrite({i: [c.unparse(t)]})
 
-        proof = best_apoapsis(c, build, 1.1 * r, bound)
+        proof = best_apoapsis(c, build, 1.1 * r, bound, "three-burn-plane-change")
         if proof is None:
             continue
         out.append(c.finding(
