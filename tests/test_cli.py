@@ -278,7 +278,7 @@ def test_bodies_prints_the_catalogue(capsys):
     assert not NON_FINITE.search(out)
 
 
-# --- a plan that cannot be flown ----------------------------------------------------------
+# --- a plan that does not fit its load ---------------------------------------------------
 
 STARVED = """\
 plan "Short of propellant"
