@@ -29,6 +29,7 @@ from .state import (
     CIRCULAR_ECC,
     EQUATORIAL_RAD,
     TWO_PI,
+    cross,
     dot,
     elements_from_state,
     frame,
@@ -236,9 +237,9 @@ def _solve_burn(step: Burn, r, v, ctx: Context, fails: Failures, normal=None):
     """Velocity after the burn at the current position."""
     mu = ctx.mu
     if step.vector is not None:
-        along, cross, radial = local_frame(r, v)
+        along, normal, radial = local_frame(r, v)
         a, c, rd = step.vector
-        return v + a * along + c * cross + rd * radial
+        return v + a * along + c * normal + rd * radial
     rmag = norm(r)
     if step.circular:
         if step.circular_radius is not None:
@@ -352,8 +353,8 @@ def _price(batch: Batch, out: BurnOutcome, engine: EngineSpec, margin: float, ct
            fails: Failures, name: str):
     """Rocket equation, propellant check and burn time; returns (batch, row parts)."""
     dv_inertial = out.v_after - out.v_before
-    along, cross, radial = local_frame(out.r, out.v_before)
-    vec = np.stack([dot(dv_inertial, along), dot(dv_inertial, cross),
+    along, normal, radial = local_frame(out.r, out.v_before)
+    vec = np.stack([dot(dv_inertial, along), dot(dv_inertial, normal),
                     dot(dv_inertial, radial)], axis=-1)
     dv = norm(dv_inertial)
     dvm = dv * (1.0 + margin)
@@ -517,7 +518,7 @@ def _transfer_from(step: Transfer, index: int, batch: Batch, ctx: Context, fails
         fails.merge(~tmp.ok, tmp)
         if step.form == "hohmann":
             share = (np.full(batch.size, step.split) if step.split is not None
-                     else _best_split(phases, up, batch, ctx, r0, v0, target, sweep))
+                     else _best_split(r0, v0, target, step.radius, ctx.mu))
             normals = _split_normals(r0, v0, target, share)
         else:
             normals = [None, target, None]  # all of it at the bi-elliptic's far apoapsis
@@ -534,55 +535,60 @@ def _transfer_from(step: Transfer, index: int, batch: Batch, ctx: Context, fails
 
 def _split_normals(r, v, target, share):
     """Plane normals after each burn of a two-burn transfer that turns ``share`` first."""
-    h0 = unit(np.cross(r, v))
-    axis = unit(np.cross(h0, target))
-    small = norm(np.cross(h0, target)) < 1e-15
+    h0 = unit(cross(r, v))
+    axis = unit(cross(h0, target))
+    small = norm(cross(h0, target)) < 1e-15
     axis = np.where(small[:, None], unit(r), axis)
-    total = np.arctan2(norm(np.cross(h0, target)), dot(h0, target))
+    total = np.arctan2(norm(cross(h0, target)), dot(h0, target))
     first = rotate_about(h0, axis, share * total)
     return [first, target]
 
 
-SPLIT_GRID = 33  # shares priced at once per refinement round of the split search
-SPLIT_ROUNDS = 8  # each round narrows the bracket 16-fold: 16**-8 ~ 2e-10 of the share
-
-
-def _best_split(phases, up, batch: Batch, ctx: Context, r0, v0, target, sweep=None):
+def _best_split(r0, v0, target, radius: float, mu: float) -> np.ndarray:
     """Share of the plane change at the first burn that minimises the total delta-v.
 
-    A grid of ``SPLIT_GRID`` shares for every element is priced as one batch, the
-    bracket around the cheapest is gridded again, ``SPLIT_ROUNDS`` times; the total is
-    convex in the share for a two-burn transfer, so the bracket holds.  Each round is
-    one batched pass through the transfer's burns (rather than one pass per step of a
-    sequential search), which is what a plan of one element pays for.
+    The burns of the transfer are known in closed form: the first turns the transverse
+    velocity about the radius vector by an angle t and sets the speed v1 of the
+    transfer orbit at this apsis (taking out the radial speed), the second, at the
+    opposite apsis, turns the rest, D - t, while setting the circular speed there.  By
+    the cosine rule the total is
+
+        sqrt(vr0^2 + vt0^2 + v1^2 - 2 vt0 v1 cos t) + sqrt(va^2 + vc^2 - 2 va vc cos(D - t))
+
+    (va = v1 r0 / R by the angular momentum, vc = sqrt(mu / R)), and its derivative
+    is increasing on [0, D]: bisection on the derivative finds the minimum to rounding,
+    for the whole batch at once, with no pass through the burns.  The evaluator then
+    prices the burns themselves at that share (the tests check the two agree).
     """
-    n, g = batch.size, SPLIT_GRID
-    rep = np.repeat(np.arange(n), g)
-    big = batch.take(rep)
-    r_g, v_g, t_g = r0[rep], v0[rep], target[rep]
-    up_g = None if up is None else up[rep]
-    sweep_g = None if sweep is None else sweep[rep]
+    rmag = norm(r0)
+    rhat = unit(r0)
+    vr0 = dot(v0, rhat)
+    vt0 = norm(v0 - vr0[:, None] * rhat)
+    v1 = np.sqrt(2.0 * mu * radius / (rmag * (rmag + radius)))
+    va, vc = v1 * rmag / radius, np.sqrt(mu / radius)
+    h0 = unit(cross(r0, v0))
+    turn = np.arctan2(norm(cross(h0, target)), dot(h0, target))
+    A, B = vr0**2 + vt0**2 + v1**2, 2.0 * vt0 * v1
+    C, D = va**2 + vc**2, 2.0 * va * vc
 
-    def total(share):
-        b = big
-        cost = np.zeros(big.size)
-        normals = _split_normals(r_g, v_g, t_g, share)
-        for k, ((b_up, b_down), normal) in enumerate(zip(phases, normals)):
-            b, row = _either(b_up, b_down, up_g, 0, b, ctx, Failures(b.size), normal,
-                             sweep_g if k == 0 else None)
-            cost += row.dv
-        return cost
+    def cost(t):
+        return (np.sqrt(np.maximum(A - B * np.cos(t), 0.0))
+                + np.sqrt(np.maximum(C - D * np.cos(turn - t), 0.0)))
 
-    lo, hi = np.zeros(n), np.ones(n)
-    steps = np.linspace(0.0, 1.0, g)
-    for _ in range(SPLIT_ROUNDS):
-        shares = (lo[:, None] + (hi - lo)[:, None] * steps[None, :]).reshape(-1)
-        cost = total(shares).reshape(n, g)
-        k = np.argmin(cost, axis=1)
-        width = (hi - lo) / (g - 1)
-        centre = lo + k * width
-        lo, hi = np.maximum(centre - width, 0.0), np.minimum(centre + width, 1.0)
-    return 0.5 * (lo + hi)
+    def slope(t):
+        one = np.sqrt(np.maximum(A - B * np.cos(t), 1e-300))
+        two = np.sqrt(np.maximum(C - D * np.cos(turn - t), 1e-300))
+        return B * np.sin(t) / one - D * np.sin(turn - t) / two
+
+    lo, hi = np.zeros_like(turn), turn.copy()
+    for _ in range(64):
+        mid = 0.5 * (lo + hi)
+        rising = slope(mid) > 0
+        hi, lo = np.where(rising, mid, hi), np.where(rising, lo, mid)
+    best = 0.5 * (lo + hi)
+    for edge in (np.zeros_like(turn), turn):  # a minimum at an end of the range
+        best = np.where(cost(edge) < cost(best), edge, best)
+    return np.where(turn > 0, best / np.where(turn > 0, turn, 1.0), 0.0)
 
 
 def _three_burn_plane_change(step: Transfer, index, batch: Batch, ctx: Context, fails,

@@ -45,7 +45,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .state import TWO_PI, dot, frame, norm, signed_angle, unit
+from .state import TWO_PI, cross, dot, frame, norm, signed_angle, unit
 
 SERIES_Z = 1.0  # |z| below this: Stumpff's functions by their power series
 _SERIES_TERMS = 12  # the last term is z^11 / 25!: far below double precision for |z| < 1
@@ -107,7 +107,7 @@ def _elements(r: np.ndarray, v: np.ndarray, mu: float):
     sqmu = np.sqrt(mu)
     sigma0 = dot(r, v) / sqmu
     alpha = 2.0 / r0 - dot(v, v) / mu
-    hmag = norm(np.cross(r, v))
+    hmag = norm(cross(r, v))
     return r0, sigma0, alpha, hmag, hmag**2 / mu, sqmu
 
 
@@ -205,7 +205,7 @@ def propagate(r: np.ndarray, v: np.ndarray, mu: float, dt: np.ndarray):
 def sweep_for_time(r: np.ndarray, v: np.ndarray, mu: float, dt: np.ndarray):
     """The angle swept in time ``dt`` (s, >= 0) from (r, v), in [0, 2 pi); (dtheta, ok)."""
     r1, _, ok = propagate(r, v, mu, dt)
-    swept = signed_angle(r, r1, unit(np.cross(r, v)))
+    swept = signed_angle(r, r1, unit(cross(r, v)))
     # rounding can leave a zero sweep just below a full turn: that is no sweep
     swept = np.where(swept > TWO_PI - 1e-12, 0.0, swept)
     return np.where(ok, swept, 0.0), ok
@@ -217,10 +217,10 @@ def sweep_for_time(r: np.ndarray, v: np.ndarray, mu: float, dt: np.ndarray):
 def _sweep(r: np.ndarray, v: np.ndarray, mu: float, dtheta: np.ndarray):
     """Unit vectors and radius after sweeping ``dtheta``, and where that is possible."""
     f = frame(r, v, mu)
-    hmag = norm(np.cross(r, v))
+    hmag = norm(cross(r, v))
     p = hmag**2 / mu
     r0hat = unit(r)
-    t0hat = np.cross(f.h, r0hat)
+    t0hat = cross(f.h, r0hat)
     c = np.cos(dtheta)[..., None]
     s = np.sin(dtheta)[..., None]
     r1hat = c * r0hat + s * t0hat

@@ -36,6 +36,7 @@ import numpy as np
 from .state import (
     EQUATORIAL_RAD,
     TWO_PI,
+    cross,
     dot,
     elements_from_state,
     frame,
@@ -279,8 +280,8 @@ def crossings(r, v, target):
 
     Where the planes coincide every point is a crossing: both angles are zero.
     """
-    h0 = unit(np.cross(r, v))
-    line = np.cross(h0, target)
+    h0 = unit(cross(r, v))
+    line = cross(h0, target)
     same = norm(line) < 1e-12
     line = unit(np.where(same[:, None], r, line))
     a1 = signed_angle(r, line, h0)
@@ -298,7 +299,7 @@ def normal_for(r, v, inclination, raan, failures: Failures):
     position; the error names the two places where it does.
     """
     rhat = unit(r)
-    h0 = unit(np.cross(r, v))
+    h0 = unit(cross(r, v))
     n = rhat.shape[0]
     if raan is not None:
         if inclination is None:
@@ -344,7 +345,7 @@ def normal_for(r, v, inclination, raan, failures: Failures):
     pole = zlen < 1e-12  # over a pole only polar planes pass; keep the current one
     safe = np.where(pole, 1.0, zlen)
     u = zp / safe[:, None]
-    w = np.cross(rhat, u)
+    w = cross(rhat, u)
     a = ci / safe
     b = np.sqrt(np.maximum(slack, 0.0)) / safe
     b = np.where(dot(h0, w) < 0, -b, b)
@@ -365,8 +366,8 @@ def _crossing_hint(r, v, target) -> str:
 def new_velocity(r, v, mu, shape: Shape, normal, failures: Failures, body_radius=0.0):
     """The velocity just after a burn with ``shape`` and plane ``normal`` (or None)."""
     rhat = unit(r)
-    h = unit(np.cross(r, v)) if normal is None else normal
-    that = np.cross(h, rhat)
+    h = unit(cross(r, v)) if normal is None else normal
+    that = cross(h, rhat)
     vr0 = dot(v, rhat)
     vt0 = norm(v - vr0[:, None] * rhat)
     vr, vt = in_plane_speeds(norm(r), vr0, vt0, dot(v, that), mu, shape, body_radius, failures)
@@ -377,4 +378,4 @@ def rotate_about(vec: np.ndarray, axis: np.ndarray, angle: np.ndarray) -> np.nda
     """Rodrigues rotation of ``vec`` about unit ``axis`` by ``angle`` (batched)."""
     c = np.cos(angle)[:, None]
     s = np.sin(angle)[:, None]
-    return vec * c + np.cross(axis, vec) * s + axis * dot(axis, vec)[:, None] * (1 - c)
+    return vec * c + cross(axis, vec) * s + axis * dot(axis, vec)[:, None] * (1 - c)

@@ -483,3 +483,35 @@ def test_a_plane_near_the_equator_keeps_its_node_at_the_crossing():
         fly(plan("start circular 300 km inclination 28.5 deg",
                  "burn b at anomaly 0.001 deg: inclination to 0.0039 deg, raan to 0.0004 deg"))
     assert "at crossing" in err.value.hint
+
+
+@pytest.mark.parametrize("start, goal", [
+    (ECC, "transfer t at ascending node: circular 20000 km, inclination to 20 deg"),
+    ("start circular 300 km inclination 28.5 deg",
+     "transfer t at node: circular 35786 km, inclination to 0 deg"),
+    ("start circular 30000 km inclination 10 deg",
+     "transfer t at node: circular 7000 km, inclination to 60 deg"),  # lowering
+])
+def test_the_split_found_in_closed_form_is_the_cheapest_the_evaluator_prices(start, goal):
+    """The split share comes from the cosine rule; priced by the evaluator at nearby
+    fixed shares (and at the ends) the transfer never costs less."""
+    from dataclasses import replace as dc_replace
+
+    program = load_text(plan(start, goal))
+    best = run(program, strict=True)
+    cost = lambda res: sum(dv_of(r) for r in burn_rows(res))
+    base = cost(best)
+    (transfer,) = program.steps
+    t = transfer if transfer.place.kind != "node" else dc_replace(
+        transfer, place=type(transfer.place)(best.rows[0].at))
+    b1 = burn_rows(best)[0]
+    h0 = coe(b1.after.r[0], b1.v_before[0])["h"]
+    h1, h2 = coe(b1.after.r[0], b1.after.v[0])["h"], final(best)["h"]
+    angle = lambda a, b: math.atan2(np.linalg.norm(np.cross(a, b)), a @ b)
+    found = angle(h0, h1) / angle(h0, h2)
+    shares = []
+    for share in (0.0, 0.02, 0.1, 0.3, 0.5, 0.9, 1.0, max(found - 1e-3, 0.0),
+                  min(found + 1e-3, 1.0)):
+        res = run(program.with_steps([dc_replace(t, split=share)]), strict=True)
+        shares.append(cost(res))
+    assert base <= min(shares) * (1 + 1e-12)

@@ -18,6 +18,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..state import cross
+
 BI_ELLIPTIC_RATIO = 11.9387654  # final/initial radius below which bi-elliptic never pays
 GRID = 400  # intervals of the apoapsis range the detour bound is taken over
 
@@ -50,8 +52,8 @@ def detour_lower_bound(mu: float, r: float, v: float, theta: float, ra_lo: float
 
 def plane_angle(r, v_before, v_after) -> float:
     """Angle (rad) between the orbit planes before and after a burn at ``r``."""
-    h0, h1 = np.cross(r, v_before), np.cross(r, v_after)
-    return float(np.arctan2(np.linalg.norm(np.cross(h0, h1)), np.dot(h0, h1)))
+    h0, h1 = cross(r, v_before), cross(r, v_after)
+    return float(np.arctan2(np.linalg.norm(cross(h0, h1)), np.dot(h0, h1)))
 
 
 def slowest_speed(mu: float, r, v) -> float | None:
@@ -60,7 +62,7 @@ def slowest_speed(mu: float, r, v) -> float | None:
     It is also the least horizontal speed, h / r_apoapsis: a plane change anywhere on
     the orbit turns at least this much horizontal velocity.
     """
-    h = float(np.linalg.norm(np.cross(r, v)))
+    h = float(np.linalg.norm(cross(r, v)))
     energy = 0.5 * float(np.dot(v, v)) - mu / float(np.linalg.norm(r))
     if energy >= 0:
         return None
