@@ -41,10 +41,15 @@ def cross(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     >>> cross(np.array([[1.0, 0, 0]]), np.array([[0, 1.0, 0]])).tolist()
     [[0.0, 0.0, 1.0]]
     """
-    a, b = np.broadcast_arrays(a, b)
+    if a.shape != b.shape:
+        a, b = np.broadcast_arrays(a, b)
     a0, a1, a2 = a[..., 0], a[..., 1], a[..., 2]
     b0, b1, b2 = b[..., 0], b[..., 1], b[..., 2]
-    return np.stack([a1 * b2 - a2 * b1, a2 * b0 - a0 * b2, a0 * b1 - a1 * b0], axis=-1)
+    out = np.empty(a.shape, dtype=np.result_type(a, b))
+    out[..., 0] = a1 * b2 - a2 * b1
+    out[..., 1] = a2 * b0 - a0 * b2
+    out[..., 2] = a0 * b1 - a1 * b0
+    return out
 
 
 def norm(a: np.ndarray) -> np.ndarray:
