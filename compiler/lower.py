@@ -32,6 +32,9 @@ from .steps import (
 )
 
 YEAR_S = 365.25 * 86400.0  # the Julian year, s
+ALTITUDE_HINT = ("altitudes (`periapsis`, `apoapsis`, `circular`, `via apoapsis`, `ceiling`) are "
+                 "above the equatorial radius; after the keyword, `radius X` gives a radius "
+                 "from the centre")
 
 # Tolerance of `expect ... ` without `within`, by what is checked (internal units).
 DEFAULT_TOLERANCE = {
@@ -170,7 +173,8 @@ class Lowerer:
         soi = f["soi"].value.internal() if "soi" in f else None
         if soi is not None and soi <= radius:
             raise _err(f"the sphere of influence ({soi:g} km) must be larger than the "
-                       f"radius ({radius:g} km)", f["soi"])
+                       f"radius ({radius:g} km)", f["soi"],
+                       "`soi` and `radius` are measured from the body's centre (not altitudes)")
         j2 = f["j2"].value.value if "j2" in f else None
         self.defined[st.name.text] = bodies.Body(st.name.text, gm, radius, j2, soi, None,
                                                  f"defined in the plan, line {st.span.line}")
@@ -281,7 +285,7 @@ class Lowerer:
         if not rp > self.body.radius:
             raise _err(f"the start orbit's periapsis ({rp - self.body.radius:.3f} km altitude) "
                        "is under the surface", shape_node,
-                       "altitudes are above the equatorial radius; `radius X` gives a radius")
+                       ALTITUDE_HINT)
         get = lambda k: f[k].value.internal() if k in f else 0.0
         inc, raan, argp, nu = get("inclination"), get("raan"), get("argp"), get("anomaly")
         if not 0.0 <= inc <= np.pi + 1e-12:
@@ -532,11 +536,14 @@ class Lowerer:
                            "e.g. `transfer geo: circular 35786 km`")
             radius = self._radius(goals["circular"].value)
             if radius <= self.body.radius:
-                raise _err("the transfer's target is under the surface", goals["circular"])
+                raise _err("the transfer's target is under the surface", goals["circular"],
+                           ALTITUDE_HINT)
             if via is not None and via < radius:
                 raise _err("a bi-elliptic transfer's `via apoapsis` must lie beyond the "
                            "target orbit", node.via,
-                           f"give an apoapsis above {radius - self.body.radius:g} km")
+                           f"give an apoapsis above {radius - self.body.radius:g} km altitude "
+                           "(altitudes are above the equatorial radius; `via apoapsis radius X` "
+                           "gives a radius)")
             form = "bielliptic" if via is not None else "hohmann"
             return Transfer(name, place, form, radius, via, inc, raan, None, engine, margin,
                             node.span, fixed)
