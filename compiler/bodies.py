@@ -50,6 +50,7 @@ class Body:
     soi: float | None  # km, Laplace sphere of influence around ``parent``
     parent: str | None  # catalogue key of the body it orbits
     source: str  # the published source of each value
+    orbit_sma: float | None = None  # km, the semi-major axis of its orbit around ``parent``
 
 
 def laplace_soi(sma_km: float, gm_body: float, gm_parent: float) -> float:
@@ -131,4 +132,12 @@ def _body(key: str, entry: Mapping[str, Any]) -> Body:
         soi=soi,
         parent=None if parent is None else str(parent).lower(),
         source=source,
+        orbit_sma=number("orbit_sma_km") if "orbit_sma_km" in entry else None,
     )
+
+
+def moons_within(body: Body, radius_km: float) -> list[Body]:
+    """Catalogue bodies that orbit ``body`` inside ``radius_km`` of its centre: what a
+    trajectory reaching that far passes (and is pulled by, beyond the two-body model)."""
+    return [b for b in _table().values() if b.parent == body.name.lower()
+            and b.orbit_sma is not None and b.orbit_sma < radius_km]

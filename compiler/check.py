@@ -426,6 +426,10 @@ def check_program(program: Program, rules: Iterable[Rule] | None = None,
                     continue  # another rule already proved the same rewrite
                 seen.add(key)
             out.append(f)
+    if not budget.expired():
+        combined = combined_rewrites(checker, out)
+        if combined is not None:
+            out.append(combined)
     if budget.cut_short:
         limit = f"{budget.seconds:g} s" if budget.seconds is not None else "the"
         out.append(Finding(
@@ -436,6 +440,50 @@ def check_program(program: Program, rules: Iterable[Rule] | None = None,
     order = {s: i for i, s in enumerate(SEVERITIES)}
     out.sort(key=lambda f: (-order[f.severity], -(f.saves_kg or 0.0)))
     return out
+
+
+def _edits(base: list[str], text: str) -> list[tuple[int, int, list[str]]]:
+    """The line edits that turn ``base`` into ``text``: (first, end, new lines)."""
+    new = text.splitlines(keepends=True)
+    ops = difflib.SequenceMatcher(None, base, new, autojunk=False).get_opcodes()
+    return [(i1, i2, new[j1:j2]) for tag, i1, i2, j1, j2 in ops if tag != "equal"]
+
+
+def combined_rewrites(c: Checker, findings: list[Finding]) -> Finding | None:
+    """The rewrites of ``findings`` that touch lines apart from each other, applied
+    together and proven like any other (``Checker.prove``); None when fewer than two
+    are compatible or the combined plan is not a valid, cheaper equivalent.
+
+    Savings do not add in general (a step moved by one rewrite changes the mass another
+    one flies at), so the combined plan is priced as a whole.
+    """
+    base = c.text.splitlines(keepends=True)
+    taken: list[tuple[Finding, list]] = []
+    spans: list[tuple[int, int]] = []
+    for f in sorted((f for f in findings if f.suggestion), key=lambda f: -(f.saves_kg or 0)):
+        edits = _edits(base, f.suggestion)
+        mine = [(i1, max(i1, i2 - 1)) for i1, i2, _ in edits]
+        # a line apart from every other rewrite's lines (touching lines may interact)
+        if any(a0 <= b1 + 1 and b0 <= a1 + 1 for a0, a1 in mine for b0, b1 in spans):
+            continue
+        taken.append((f, edits))
+        spans += mine
+    if len(taken) < 2:
+        return None
+    lines = list(base)
+    for i1, i2, new in sorted((e for _, es in taken for e in es), key=lambda e: -e[0]):
+        lines[i1:i2] = new
+    text = "".join(lines)
+    proof = c.prove(text)
+    best = max(f.saves_kg or 0.0 for f, _ in taken)
+    if proof is None or proof.saves_kg <= best + 1e-9:
+        return None
+    steps = tuple(dict.fromkeys(s for f, _ in taken for s in f.steps))
+    return c.finding(
+        "combined-rewrites", "info", steps,
+        f"all {len(taken)} compatible rewrites together save {saving_text(proof)}; the "
+        "single savings above do not add up to this, each was priced alone", proof,
+        notes=tuple(f"includes {f.rule} [{', '.join(f.steps)}]" for f, _ in taken))
 
 
 ALLOW = re.compile(r"#\s*apsidal:\s*allow\s+([a-z0-9-]+(?:\s*,\s*[a-z0-9-]+)*)")

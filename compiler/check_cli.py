@@ -316,6 +316,22 @@ def markdown(reports) -> str:
     return "\n".join(out)
 
 
+# Findings `check` adds itself, outside the rules: what `explain` says of them.
+SUMMARY_FINDINGS = {
+    "combined-rewrites": (
+        "Every rewrite that touches lines apart from the others, applied together.\n\n"
+        "Each finding's saving is proven by pricing its rewrite alone; savings do not add in "
+        "general (a step moved by one rewrite changes the mass the next one flies at). When "
+        "two or more rewrites edit separate lines, `check` applies them together, prices "
+        "the combined plan with the same proof (same final orbit, every expectation met) "
+        "and reports what it saves, if more than the best single rewrite."),
+    "time-limit": (
+        "The search ran out of its time (`--time-limit`, 20 s unless set).\n\n"
+        "The finding names the rules whose search was cut short; what they report was "
+        "proven, but a cheaper plan may exist among the candidates they did not price."),
+}
+
+
 def cmd_explain(args) -> int:
     import inspect
 
@@ -327,6 +343,12 @@ def cmd_explain(args) -> int:
         for r in RULES:
             first = inspect.getdoc(r).splitlines()[0]
             console.print(f"{r.rule_name:26} {first}", highlight=False)
+        for name, text in SUMMARY_FINDINGS.items():
+            console.print(f"{name:26} {text.splitlines()[0]}", highlight=False)
+        return 0
+    if args.rule in SUMMARY_FINDINGS:
+        console.print(f"[bold]{args.rule}[/bold]")
+        console.print(SUMMARY_FINDINGS[args.rule], highlight=False, markup=False)
         return 0
     if args.rule not in BY_NAME:
         from apsidal.lang.errors import did_you_mean

@@ -598,3 +598,48 @@ def test_the_command_line_keeps_the_checkers_constants():
 
     assert check_cli.DEFAULT_TIME_LIMIT == check.DEFAULT_TIME_LIMIT
     assert check_cli.SEVERITIES == check.SEVERITIES
+
+
+TWO_BLOCKS = plan("""start circular 300 km inclination 28.5 deg
+burn plane at node: inclination to 0 deg
+burn raise at periapsis: apoapsis to 35786 km
+burn circ at apoapsis: circular
+coast hold for 1 h
+burn tilt at node: inclination to 10 deg
+burn lift at periapsis: apoapsis to 60000 km
+burn top at apoapsis: circular
+""")
+
+
+def test_compatible_rewrites_are_combined_and_proven(tmp_path, capsys):
+    """Two blocks a barrier apart, one rewrite in each: together they save the sum of their delta-v
+    (no step's delta-v depends on the mass) and more propellant than either alone; the
+    combined plan is re-parsed and re-priced like every other suggestion."""
+    found = findings(TWO_BLOCKS)
+    (both,) = [f for f in found if f.rule == "combined-rewrites"]
+    parts = {n.removeprefix("includes ") for n in both.notes}
+    singles = [f for f in found if f"{f.rule} [{', '.join(f.steps)}]" in parts]
+    assert len(singles) == len(parts) == 2
+    assert {s for f in singles for s in f.steps} & {"plane"} and \
+        {s for f in singles for s in f.steps} & {"tilt"}  # one in each block
+    assert both.saves_m_s == pytest.approx(sum(f.saves_m_s for f in singles), abs=1e-6)
+    assert both.saves_kg > max(f.saves_kg for f in singles)
+    before, after = reprice(TWO_BLOCKS)["totals"], reprice(both.suggestion)["totals"]
+    assert before["dv_with_margin_m_s"] - after["dv_with_margin_m_s"] == pytest.approx(
+        both.saves_m_s, abs=1e-6)
+    assert "do not add up" in both.message
+    assert cli.main(["explain", "combined-rewrites"]) == 0
+    assert "savings do not add in general" in " ".join(capsys.readouterr().out.split())
+
+
+def test_a_far_detour_says_its_flight_time_and_what_it_passes():
+    """A 90 deg turn from a low circle pays through an apoapsis beyond the Moon's orbit
+    (384,400 km, the catalogue's value); the finding says so, and how long it adds."""
+    text = plan("start circular 400 km\nburn tilt at node: inclination to 90 deg\n")
+    (f,) = [f for f in findings(text) if f.rule == "three-burn-plane-change"]
+    assert "more in flight" in f.message
+    (far,) = [n for n in f.notes if n.startswith("the detour reaches")]
+    reach = float(far.split(" km")[0].split()[-1].replace(",", ""))
+    assert reach > 384400.0 and "passes the orbit of the Moon" in far
+    earth_soi = float(far.split("sphere of influence (")[1].split(" km")[0].replace(",", ""))
+    assert f"{100 * reach / earth_soi:.0f} %" in far

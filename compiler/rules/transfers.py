@@ -9,9 +9,11 @@ import numpy as np
 from apsidal.lang import syntax as ast
 from apsidal.lang.errors import Span
 
+from ..bodies import moons_within
 from ..check import Checker, Finding, Proof, rule, saving_text, with_goals
-from ..state import elements_from_state
+from ..state import elements_from_state, norm
 from ..steps import Burn, Transfer
+from ..textfmt import duration
 from .bounds import BI_ELLIPTIC_RATIO, detour_lower_bound, plane_angle
 
 GRID = 10  # apoapsis candidates tried across the allowed range, before refining
@@ -127,8 +129,31 @@ def bi_elliptic_cheaper(c: Checker) -> list[Finding]:
             "bi-elliptic-cheaper", "warning", (step.name,),
             f"{step.name} as a bi-elliptic transfer saves {saving_text(proof)}, "
             f"for {extra / 86400:.1f} more days in flight", proof,
-            notes=(f"intermediate apoapsis searched up to {why}",)))
+            notes=(f"intermediate apoapsis searched up to {why}",
+                   far_note(c, proof, step.name))))
     return out
+
+
+def _extra_time(c: Checker, proof: Proof) -> str:
+    return duration(max(float(proof.result.final.t[0] - c.result.final.t[0]), 0.0))
+
+
+def far_note(c: Checker, proof: Proof, name: str) -> str:
+    """How far a rewritten transfer's burns reach, against the sphere of influence and
+    the orbits of the body's moons (which the two-body estimate leaves out)."""
+    far = max(float(norm(r.after.r)[0]) for r in proof.result.rows
+              if r.name.startswith(f"{name}/"))
+    body = c.program.body
+    text = f"the detour reaches {far:,.0f} km from {body.name}'s centre"
+    if body.soi is not None:
+        text += f", {100 * far / body.soi:.0f} % of its sphere of influence ({body.soi:,.0f} km)"
+    moons = moons_within(body, far)
+    if moons:
+        text += ("; it passes the orbit of " + " and ".join(
+            f"{'the ' if m.name == 'Moon' else ''}{m.name} ({m.orbit_sma:,.0f} km)"
+            for m in moons)
+            + ", whose pull the impulsive two-body estimate leaves out")
+    return text
 
 
 @rule("hohmann-cheaper")
@@ -201,7 +226,7 @@ def three_burn_plane_change(c: Checker) -> list[Finding]:
         out.append(c.finding(
             "three-burn-plane-change", "warning", (step.name,),
             f"{step.name} as a three-burn plane change through a raised apoapsis saves "
-            f"{saving_text(proof)}", proof,
-            notes=(f"apoapsis searched up to {why}",
+            f"{saving_text(proof)}, for {_extra_time(c, proof)} more in flight", proof,
+            notes=(f"apoapsis searched up to {why}", far_note(c, proof, step.name),
                    f"the detour's burns are reported as {step.name}/1 to {step.name}/3")))
     return out
