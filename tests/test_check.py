@@ -643,3 +643,15 @@ def test_a_far_detour_says_its_flight_time_and_what_it_passes():
     assert reach > 384400.0 and "passes the orbit of the Moon" in far
     earth_soi = float(far.split("sphere of influence (")[1].split(" km")[0].replace(",", ""))
     assert f"{100 * reach / earth_soi:.0f} %" in far
+
+
+def test_two_vector_burns_at_one_point_merge_into_their_summed_vector():
+    """A prograde 100 m/s on a circle leaves the velocity horizontal, so the radial
+    100 m/s after it is at right angles to it: one burn of the sum costs 100 sqrt(2) and
+    saves 200 - 100 sqrt(2) = 58.58 m/s (the triangle inequality; closed form)."""
+    text = plan("start circular 400 km\nburn a: along 100 m/s\nburn b: radial 100 m/s\n")
+    (f,) = [f for f in findings(text) if f.rule == "merge-burns"]
+    assert f.saves_m_s == pytest.approx(200 - 100 * math.sqrt(2), abs=1e-6)
+    before, after = reprice(text)["totals"], reprice(f.suggestion)["totals"]
+    assert before["dv_m_s"] - after["dv_m_s"] == pytest.approx(f.saves_m_s, abs=1e-6)
+    assert "along" in f.suggestion and "radial" in f.suggestion

@@ -3,12 +3,13 @@
 from __future__ import annotations
 
 import numpy as np
+from apsidal.lang import syntax as ast
 
 from .. import kepler
 from ..check import Checker, Finding, rule, saving_text, with_goals
 from ..evaluate import start_batch
 from ..reorder import same_orbit
-from ..state import elements_from_state
+from ..state import elements_from_state, local_frame
 from ..steps import Burn
 
 SHAPE = {"apoapsis", "periapsis", "circular"}
@@ -37,11 +38,16 @@ def merge_burns(c: Checker) -> list[Finding]:
     """
     out = []
     for i, a, b in _same_point_pairs(c):
-        if a.vector is not None or b.vector is not None:
-            continue
+        if (a.vector is None) != (b.vector is None):
+            continue  # a goal and a vector: the goal's burn depends on where the vector left it
         if c.budget.expired():
             c.budget.cut("merge-burns")
             break
+        if a.vector is not None:
+            finding = _merge_vectors(c, i, a, b)
+            if finding is not None:
+                out.append(finding)
+            continue
         if (a.engine or c.program.craft.default_engine) != (b.engine or
                                                             c.program.craft.default_engine):
             continue
@@ -58,6 +64,29 @@ def merge_burns(c: Checker) -> list[Finding]:
                 f"{a.name} and {b.name} burn at the same point; one burn with both goals "
                 f"saves {saving_text(proof)}", proof))
     return out
+
+
+def _merge_vectors(c: Checker, i: int, a, b) -> Finding | None:
+    """Two explicit-vector burns at one point as one: the inertial sum of the two changes,
+    in the frame before the first (components to a nanometre per second)."""
+    default = c.program.craft.default_engine
+    if (a.engine or default) != (b.engine or default) or a.margin != b.margin:
+        return None
+    first, second = c.rows_of(i)[0], c.rows_of(i + 1)[0]
+    total = second.after.v[0] - first.v_before[0]
+    along, normal, radial = local_frame(first.after.r, first.v_before)
+    parts = [float(total @ axis[0]) * 1000.0 for axis in (along, normal, radial)]
+    node = c.statements[i]
+    span = node.span
+    goals = [ast.Goal(k, ast.Quantity(f"{x:.9f}", "m/s", span), span)
+             for k, x in zip(("along", "cross", "radial"), parts)]
+    proof = c.prove(c.rewrite({i: [c.unparse(with_goals(node, goals))], i + 1: []}))
+    if proof is None:
+        return None
+    return c.finding(
+        "merge-burns", "warning", (a.name, b.name),
+        f"{a.name} and {b.name} burn at the same point; one burn of their summed vector "
+        f"saves {saving_text(proof)}", proof)
 
 
 @rule("cancelling-burns")
