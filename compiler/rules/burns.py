@@ -168,15 +168,19 @@ def long_burn(c: Checker) -> list[Finding]:
     """
     out = []
     mu = c.program.body.gm
-    for row in c.result.rows:
-        if row.kind != "burn" or row.burn_time is None or row.v_before is None:
-            continue
+    rows = [row for row in c.result.rows
+            if row.kind == "burn" and row.burn_time is not None and row.v_before is not None
+            and float(row.burn_time[0]) > 0]
+    if not rows:
+        return out
+    stack = lambda get: np.concatenate([get(row) for row in rows])
+    # every burn of the plan in one batch: one pass through Kepler's equation
+    arcs, oks = burn_arc(stack(lambda w: w.after.r), stack(lambda w: w.v_before),
+                         stack(lambda w: w.after.v), mu, stack(lambda w: w.burn_time))
+    for row, arc_rad, ok in zip(rows, arcs, oks):
         burn_time = float(row.burn_time[0])
-        if not burn_time > 0:
-            continue
-        arcs, ok = burn_arc(row.after.r, row.v_before, row.after.v, mu, row.burn_time)
-        arc = float(np.degrees(arcs[0]))
-        if not bool(ok[0]) or arc < LONG_WARNING_DEG:
+        arc = float(np.degrees(arc_rad))
+        if not bool(ok) or arc < LONG_WARNING_DEG:
             continue
         severity = "error" if arc >= LONG_ERROR_DEG else "warning"
         out.append(Finding(
