@@ -11,7 +11,7 @@ import math
 
 import numpy as np
 
-from .evaluate import Result, Row
+from .evaluate import PRICED_KINDS, Result, Row
 from .state import elements_from_state
 
 CAUTION = ("Preliminary-design estimates under the impulsive two-body approximation; "
@@ -62,7 +62,7 @@ def orbit_dict(r, v, mu: float, radius: float) -> dict:
 
 
 def _step_dict(i: int, row: Row, mu: float, radius: float) -> dict:
-    burn = row.kind in ("burn", "allow")  # an allowance is priced like a burn
+    burn = row.kind in PRICED_KINDS  # an allowance is priced like a burn
     ms = lambda x: finite(x[0] * 1000.0, 6) if x is not None else 0.0
     vec = row.dv_vec[0] * 1000.0 if burn else np.zeros(3)
     out = {

@@ -403,7 +403,7 @@ def check_program(program: Program, rules: Iterable[Rule] | None = None,
     from .rules import RULES
 
     result = run(program) if result is None else result
-    if result.error is not None and result.failure != "propellant":
+    if result.error is not None:  # geometry that cannot be flown (the load never stops it)
         raise result.error
     budget = Budget() if budget is None else budget
     checker = Checker(program, result, budget, min_saving_m_s)

@@ -23,7 +23,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, replace
 
-from .evaluate import Result, run
+from .evaluate import PRICED_KINDS, Result, run
 
 TOL = 1e-9  # kg
 
@@ -71,7 +71,7 @@ def ledger(result: Result) -> Ledger:
         fuel_usable, ox_usable = usable_components(craft)
     exhausted = stranded = None
     for k, row in enumerate(result.rows):
-        if row.kind not in ("burn", "allow"):
+        if row.kind not in PRICED_KINDS:
             continue
         mixture = row.engine.mixture
         if mixture is None and not stores:
@@ -107,7 +107,7 @@ def components_needed(result: Result, load: float) -> tuple[float, float]:
     book = ledger(sized)
     fuel, ox = book.fuel_kg, book.oxidiser_kg
     for k, row in enumerate(sized.rows):  # single-store engines at this load: all fuel
-        if row.kind in ("burn", "allow") and book.per_row.get(k) is None:
+        if row.kind in PRICED_KINDS and book.per_row.get(k) is None:
             fuel += float(row.propellant[0])
     left = float(sized.final.propellant[0])  # the reserve's usable propellant
     f, o = split(left, craft.default_engine.mixture)

@@ -10,7 +10,7 @@ from rich.console import Console
 from rich.table import Table
 
 from .budget import CAUTION
-from .render import Column, fit
+from .render import Column, fit, priced
 from .textfmt import duration, sig
 from .textfmt import signed as _signed
 
@@ -113,7 +113,7 @@ def _where(entry: dict) -> str:
 def _step_cells(entry: dict) -> list[str]:
     side = entry["new"] or entry["old"]
     ch = entry["change"]
-    burn = side["kind"] in ("burn", "allow")
+    burn = priced(side)
     if not burn and not (entry["old"] and entry["old"]["kind"] == "burn"):
         return ["", "", "", "", "", ""]
     now = entry["new"] or {}
@@ -233,7 +233,7 @@ def budget_text(report: dict) -> str:
     """
     lines = ["", "# ---- budget computed by apsidal (not part of the file) ----"]
     for s in report["steps"]:
-        if s["kind"] in ("burn", "allow"):
+        if priced(s):
             facts = (f"{s['dv_m_s']:.1f} m/s, {s['dv_with_margin_m_s']:.1f} m/s with margin, "
                      f"{s['propellant_kg']:.2f} kg, engine {s.get('engine', '-')}")
         elif s["kind"] == "expect":

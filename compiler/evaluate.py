@@ -52,6 +52,7 @@ from .steps import (
 )
 
 HERE_TOL = 1e-9  # rad: a place this close ahead is "here"
+PRICED_KINDS = ("burn", "allow")  # rows that carry delta-v and propellant
 
 
 @dataclass(frozen=True)
@@ -334,7 +335,7 @@ def carry(batch: Batch, rows: list[Row], mass_before: float) -> tuple[Batch, np.
     prev = mass_before
     last = batch
     for row in rows:
-        if row.kind in ("burn", "allow"):
+        if row.kind in PRICED_KINDS:
             used = propellant_for(mass, row.dv_margin, row.engine.exhaust_speed)
             mass, left = mass - used, left - used
             dv, dvm = dv + row.dv, dvm + row.dv_margin
@@ -778,7 +779,7 @@ class Result:
     final: Batch
     error: PlanError | None = None
     failed_step: int | None = None  # index of the step that could not be flown
-    failure: str | None = None  # its kind: "propellant", "infeasible", or None
+    failure: str | None = None  # its kind ("infeasible": geometry), or None
 
     @property
     def ok(self) -> bool:

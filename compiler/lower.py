@@ -224,8 +224,6 @@ class Lowerer:
         dry = f["dry"].value.internal()
         if not dry > 0:
             raise _err("the dry mass must be positive", f["dry"])
-        if prop < 0:  # the slots refuse negative masses; kept for a load built here
-            raise _err("the propellant mass cannot be negative", st)
         if not st.engines:
             raise _err(f"craft `{st.name.text}` has no engine", st,
                        "add `engine main isp 300 s thrust 400 N` inside the braces")

@@ -11,6 +11,7 @@ from __future__ import annotations
 from collections.abc import Callable
 from dataclasses import dataclass
 
+from .evaluate import PRICED_KINDS
 from .textfmt import angle_text, duration, length, short, sig
 
 WRAPPED_ANGLES = {"raan", "argp", "anomaly"}  # reported in [0, 360) deg
@@ -28,7 +29,7 @@ class Column:
 
 def priced(step: dict) -> bool:
     """Burns and allowances carry delta-v and propellant."""
-    return step["kind"] in ("burn", "allow")
+    return step["kind"] in PRICED_KINDS
 
 
 def _burn(key: str, digits: int = 4) -> Callable[[dict], str]:

@@ -24,7 +24,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from .evaluate import Result
+from .evaluate import PRICED_KINDS, Result
 
 
 @dataclass(frozen=True)
@@ -39,7 +39,7 @@ def _chain(result: Result):
     steps = result.program.steps
     out = []
     for row in result.rows:
-        if row.kind in ("burn", "allow"):
+        if row.kind in PRICED_KINDS:
             out.append(("burn", float(row.dv_margin[0]), row.engine.exhaust_speed))
         elif row.kind == "drop":
             out.append(("drop", steps[row.step].mass, 0.0))

@@ -21,7 +21,8 @@ def sizing_report(result) -> dict:
     craft = p.craft
     s = size(result)
     needed = s.load
-    tot = budget(result)["totals"]
+    report = budget(result)
+    tot = report["totals"]
     parts = {k: tot[k] for k in ("fuel_needed_kg", "oxidiser_needed_kg", "fuel_load_kg",
                                  "oxidiser_load_kg", "fuel_shortfall_kg",
                                  "oxidiser_shortfall_kg") if k in tot}
@@ -36,7 +37,7 @@ def sizing_report(result) -> dict:
         "dry_max_kg": s.dry_max,
         "residual_kg_at_needed_load": (None if needed is None else craft.residual_of(needed)),
         "reserve_m_s": p.reserve * 1000.0,
-        "feasible": budget(result)["feasible"],
+        "feasible": report["feasible"],
         "why": s.why,
         "caution": CAUTION,
     }

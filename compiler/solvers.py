@@ -52,8 +52,9 @@ RADIUS_TOL = 1e-9  # relative: a target this close to the current radius is "her
 class Failures:
     """Which batch elements can no longer be flown, and why (worded on demand).
 
-    ``code`` sorts failures for callers that act on the kind (``check`` reports
-    ``propellant`` as a finding); everything else is ``infeasible``.
+    ``code`` sorts failures for callers that act on the kind; today every failure is
+    geometry (``infeasible``): running out of propellant is not a failure, the chain
+    prices on and marks the burns the load no longer covers.
     """
 
     def __init__(self, n: int):
