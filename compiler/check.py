@@ -398,7 +398,7 @@ def check_program(program: Program, rules: Iterable[Rule] | None = None,
     ``DEFAULT_TIME_LIMIT``) and collects which rules were cut short; rules skip
     candidates whose bound says they cannot save ``min_saving_m_s`` (m/s, with margin).
     Findings of the rules in ``ignore``, and of a rule a step's line silences with
-    ``# apsidal: allow RULE``, are left out and kept in ``budget.silenced``.
+    ``# apsidal: waive RULE``, are left out and kept in ``budget.silenced``.
     """
     from .rules import RULES
 
@@ -486,20 +486,20 @@ def combined_rewrites(c: Checker, findings: list[Finding]) -> Finding | None:
         notes=tuple(f"includes {f.rule} [{', '.join(f.steps)}]" for f, _ in taken))
 
 
-ALLOW = re.compile(r"#\s*apsidal:\s*allow\s+([a-z0-9-]+(?:\s*,\s*[a-z0-9-]+)*)")
+WAIVER = re.compile(r"#\s*apsidal:\s*waive\s+([a-z0-9-]+(?:\s*,\s*[a-z0-9-]+)*)")
 
 
-def allowed_rules(line: str) -> set[str]:
+def waived_rules(line: str) -> set[str]:
     """Rules a plan line silences with our marker comment.
 
-    >>> sorted(allowed_rules("burn spiral: apoapsis to 900 km  # apsidal: allow long-burn"))
+    >>> sorted(waived_rules("burn spiral: apoapsis to 900 km  # apsidal: waive long-burn"))
     ['long-burn']
-    >>> sorted(allowed_rules("burn b: along 1 m/s # apsidal: allow long-burn, merge-burns"))
+    >>> sorted(waived_rules("burn b: along 1 m/s # apsidal: waive long-burn, merge-burns"))
     ['long-burn', 'merge-burns']
-    >>> allowed_rules("burn b: along 1 m/s  # allow long-burn")
+    >>> waived_rules("burn b: along 1 m/s  # waive long-burn")
     set()
     """
-    return {name.strip() for m in ALLOW.finditer(line) for name in m.group(1).split(",")}
+    return {name.strip() for m in WAIVER.finditer(line) for name in m.group(1).split(",")}
 
 
 def _apply_silencing(program: Program, checker: Checker, findings: list[Finding],
@@ -508,7 +508,7 @@ def _apply_silencing(program: Program, checker: Checker, findings: list[Finding]
     ignore = set(ignore)
     allow = {}
     for k, step in enumerate(program.steps):
-        rules = allowed_rules(checker.statement_text(k))
+        rules = waived_rules(checker.statement_text(k))
         if rules:
             allow[step.name] = rules
     kept = []

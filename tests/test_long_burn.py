@@ -135,7 +135,7 @@ def test_a_marker_comment_silences_long_burn_for_its_step_and_is_counted():
 
     text = capture("200 N").replace(
         "burn capture at periapsis: apoapsis to 33000 km",
-        "burn capture at periapsis: apoapsis to 33000 km  # apsidal: allow long-burn")
+        "burn capture at periapsis: apoapsis to 33000 km  # apsidal: waive long-burn")
     budget = Budget(None)
     kept = check_program(load_text(text, "c.aps"), [BY_NAME["long-burn"]], budget=budget)
     assert kept == [] and [f.rule for f in budget.silenced] == ["long-burn"]
