@@ -362,7 +362,7 @@ def test_expectations_on_an_open_orbit_fail_with_a_reason(tmp_path, capsys, fmt)
     code = main(["run", str(path), "--format", fmt])
     out, err = capsys.readouterr()
     assert "Traceback" not in err and "internal error" not in err
-    assert code in (0, 1)
+    assert code == 1  # a failed expectation is a finding at error: exit 1
     if fmt == "json":
         checks = [c for s in json.loads(out)["steps"] for c in s.get("checks", [])]
         assert [c["passed"] for c in checks] == [False, False]
