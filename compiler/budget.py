@@ -166,21 +166,43 @@ def shortfall_text(report: dict) -> str:
 def allowance_summary(program) -> dict | None:
     """Deterministic lines add, statistical (3-sigma) lines combine by root-sum-square
     (common practice in delta-v budgets); the total is what the chain prices."""
-    lines = [s for s in program.steps if getattr(s, "kind", "") == "allow"]
-    if not lines:
+    sums = program.allowance_sums()
+    if sums is None:
         return None
-    det = sum(s.dv for s in lines if not s.statistical)
-    stat = [s.dv for s in lines if s.statistical]
-    rss = math.sqrt(sum(x * x for x in stat))
+    det, rss, stat = sums
     return {"deterministic_m_s": finite(det * 1000.0, 6),
             "statistical_rss_m_s": finite(rss * 1000.0, 6),
-            "statistical_sum_m_s": finite(sum(stat) * 1000.0, 6),
+            "statistical_sum_m_s": finite(stat * 1000.0, 6),
             "total_m_s": finite((det + rss) * 1000.0, 6)}
+
+
+def _component_totals(totals: dict, result: Result, book, needed, feasible: bool,
+                      fire: float) -> None:
+    """The totals of a craft that loads fuel and oxidiser apart (into ``totals``)."""
+    from .components import components_needed
+
+    craft = result.program.craft
+    totals["fuel_load_kg"], totals["oxidiser_load_kg"] = craft.fuel, craft.oxidiser
+    totals["fuel_left_kg"] = finite(max(book.fuel_left_kg, 0.0), 6)
+    totals["oxidiser_left_kg"] = finite(max(book.oxidiser_left_kg, 0.0), 6)
+    totals["burnable_left_kg"] = finite(max(fire, 0.0), 6)
+    totals["exhausted_component"] = book.exhausted
+    totals["stranded_kg"] = (finite(book.stranded_kg, 6)
+                             if book.stranded_kg is not None else None)
+    if needed is None:
+        return
+    f_need, o_need = components_needed(result, needed)
+    totals["fuel_needed_kg"], totals["oxidiser_needed_kg"] = finite(f_need, 6), finite(o_need, 6)
+    f_short, o_short = max(f_need - craft.fuel, 0.0), max(o_need - craft.oxidiser, 0.0)
+    totals["fuel_shortfall_kg"] = 0.0 if feasible else finite(f_short, 6)
+    totals["oxidiser_shortfall_kg"] = 0.0 if feasible else finite(o_short, 6)
+    if not feasible:
+        totals["shortfall_kg"] = finite(max(f_short + o_short, totals["shortfall_kg"] or 0.0), 6)
 
 
 def budget(result: Result) -> dict:
     """The whole report of one priced plan, as the JSON contract lays it out."""
-    from .components import components_needed, ledger
+    from .components import ledger
     from .size import size
 
     p = result.program
@@ -243,24 +265,7 @@ def budget(result: Result) -> dict:
         totals["fuel_kg"] = finite(book.fuel_kg, 6)
         totals["oxidiser_kg"] = finite(book.oxidiser_kg, 6)
     if craft.components:
-        totals["fuel_load_kg"], totals["oxidiser_load_kg"] = craft.fuel, craft.oxidiser
-        totals["fuel_left_kg"] = finite(max(book.fuel_left_kg, 0.0), 6)
-        totals["oxidiser_left_kg"] = finite(max(book.oxidiser_left_kg, 0.0), 6)
-        totals["burnable_left_kg"] = finite(max(fire, 0.0), 6)
-        totals["exhausted_component"] = book.exhausted
-        totals["stranded_kg"] = (finite(book.stranded_kg, 6)
-                                 if book.stranded_kg is not None else None)
-        if needed is not None:
-            f_need, o_need = components_needed(result, needed)
-            totals["fuel_needed_kg"], totals["oxidiser_needed_kg"] = (finite(f_need, 6),
-                                                                      finite(o_need, 6))
-            f_short = max(f_need - craft.fuel, 0.0)
-            o_short = max(o_need - craft.oxidiser, 0.0)
-            totals["fuel_shortfall_kg"] = 0.0 if feasible else finite(f_short, 6)
-            totals["oxidiser_shortfall_kg"] = 0.0 if feasible else finite(o_short, 6)
-            if not feasible:
-                totals["shortfall_kg"] = finite(max(f_short + o_short,
-                                                    totals["shortfall_kg"] or 0.0), 6)
+        _component_totals(totals, result, book, needed, feasible, fire)
     out = {
         "plan": p.title,
         "source": p.source.path,

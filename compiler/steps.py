@@ -213,13 +213,22 @@ class Program:
     start_span: Span | None = None
     ceiling: float | None = None  # highest apoapsis radius (km) a suggested detour may use
 
+    def allowance_sums(self) -> tuple[float, float, float] | None:
+        """(deterministic sum, root-sum-square of the statistical lines, their plain sum)
+        of the plan's allowances, km/s; None without any."""
+        lines = [s for s in self.steps if isinstance(s, Allow)]
+        if not lines:
+            return None
+        stat = [s.dv for s in lines if s.statistical]
+        return (sum(s.dv for s in lines if not s.statistical),
+                float(np.sqrt(sum(x * x for x in stat))), sum(stat))
+
     @property
     def statistical_scale(self) -> float:
         """The factor on each statistical allowance so that together they price their
         root-sum-square: sqrt(sum dv_i^2) / sum dv_i (1 when there are none)."""
-        stat = [s.dv for s in self.steps if getattr(s, "kind", "") == "allow" and s.statistical]
-        total = sum(stat)
-        return float(np.sqrt(sum(x * x for x in stat)) / total) if total > 0 else 1.0
+        sums = self.allowance_sums()
+        return sums[1] / sums[2] if sums and sums[2] > 0 else 1.0
 
     def with_steps(self, steps) -> Program:
         return replace(self, steps=tuple(steps))
