@@ -12,7 +12,7 @@ from __future__ import annotations
 import difflib
 import re
 from collections.abc import Callable, Iterable
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field, fields, is_dataclass, replace
 
 import numpy as np
 from apsidal.lang import syntax as ast
@@ -21,6 +21,7 @@ from apsidal.lang.errors import PlanError
 from .budget import budget
 from .evaluate import Batch, Result, apply, carry, context_for, run, start_batch
 from .load import load_text
+from .lower import lower
 from .state import elements_from_state
 from .steps import Expect, Program
 
@@ -88,11 +89,38 @@ class Budget:
 
 @dataclass
 class Proof:
-    text: str
+    text: str | None  # None until reported (``Checker.finding`` writes it)
     program: Program
     result: Result
     saves_m_s: float
     saves_kg: float
+    rewrite: Rewrite | None = None
+
+
+@dataclass(frozen=True)
+class Rewrite:
+    """A rule's proposal: step statements replaced by zero or more statements.
+
+    ``edits`` maps a step index of the plan to what stands in its place, in order:
+    syntax nodes (a statement of the plan itself keeps its own line, comments and all)
+    or lines of text.  A rewrite of nodes is lowered and priced without a pass through
+    the parser; its text is written, and parsed back, only when it is reported
+    (``Checker.finding``).
+    """
+
+    edits: tuple[tuple[int, tuple], ...]
+
+    @property
+    def first(self) -> int:
+        return self.edits[0][0]
+
+    @property
+    def last(self) -> int:
+        return self.edits[-1][0]
+
+    @property
+    def textual(self) -> bool:
+        return any(isinstance(x, str) for _, lines in self.edits for x in lines)
 
 
 @dataclass
@@ -125,6 +153,7 @@ class Checker:
                                       ch.kind in ("mass", "propellant") for ch in st.checks)),
                                  default=-1)
         self._lines = [self.statement_text(k) for k in range(len(self.statements))]
+        self._own = {id(node): k for k, node in enumerate(self.statements)}
 
     @property
     def text(self) -> str:
@@ -198,35 +227,61 @@ class Checker:
         end = text.find("\n", node.span.end)
         return start, (len(text) if end < 0 else end)
 
-    def rewrite(self, edits: dict[int, list[str]]) -> str:
-        """Plan text with step statements replaced by zero or more statement lines.
+    def rewrite(self, edits: dict[int, list]) -> Rewrite:
+        """Step statements replaced by zero or more statements (nodes or text lines);
+        an empty list deletes the statement with its line."""
+        return Rewrite(tuple((k, tuple(edits[k])) for k in sorted(edits)))
 
-        ``edits`` maps a step index to the lines that stand in its place (an empty list
-        deletes the statement with its line).
-        """
+    def text_of(self, rewrite: Rewrite | str) -> str:
+        """The plan text of a rewrite (a text is its own)."""
+        if isinstance(rewrite, str):
+            return rewrite
         text = self.text
         pieces = []
         cut = 0
-        for index in sorted(edits):
+        for index, lines in rewrite.edits:
             start, end = self._line_range(self.statements[index])
             pieces.append(text[cut:start])
-            lines = edits[index]
             if not lines:
                 end = end + 1 if end < len(text) else end  # take the newline with it
             else:
-                pieces.append("\n".join(lines))
+                pieces.append("\n".join(self._line_of(x) for x in lines))
             cut = end
         pieces.append(text[cut:])
         return "".join(pieces)
+
+    def _line_of(self, item) -> str:
+        if isinstance(item, str):
+            return item
+        own = self._own.get(id(item))
+        return self.statement_text(own) if own is not None else self.unparse(item)
+
+    def program_of(self, rewrite: Rewrite | str) -> Program | None:
+        """The lowered plan of a rewrite, or None if it does not lower (a proposal that
+        is not a valid plan proves nothing).  Nodes are lowered as they stand; text is
+        parsed."""
+        try:
+            if isinstance(rewrite, str) or rewrite.textual:
+                return load_text(self.text_of(rewrite), self.program.source.path)
+            edits = dict(rewrite.edits)
+            statements, k = [], 0
+            for st in self.program.plan.statements:
+                if not isinstance(st, ast.STEP_TYPES):
+                    statements.append(st)
+                    continue
+                statements.extend(edits.get(k, (st,)))
+                k += 1
+            return lower(replace(self.program.plan, statements=tuple(statements)))
+        except PlanError:
+            return None
 
     def statement_text(self, index: int) -> str:
         start, end = self._line_range(self.statements[index])
         return self.text[start:end]
 
-    def reorder(self, block: list[int], order: Iterable[int]) -> str:
-        """Plan text with the statements of ``block`` flown in ``order``."""
-        return self.rewrite({slot: [self.statement_text(src)]
-                             for slot, src in zip(block, order)})
+    def reorder(self, block: list[int], order: Iterable[int]) -> Rewrite:
+        """The plan with the statements of ``block`` flown in ``order``."""
+        return self.rewrite({slot: [self.statements[src]] for slot, src in zip(block, order)})
 
     @staticmethod
     def unparse(node) -> str:
@@ -249,22 +304,25 @@ class Checker:
                 return k
         return n
 
-    def price(self, program: Program) -> tuple[Batch, bool, list]:
-        """Price a rewritten plan from the stored state before its first changed step.
+    def price(self, program: Program, rewrite: Rewrite | None = None
+              ) -> tuple[Batch, bool, list]:
+        """Price a rewritten plan from the stored state before its first changed step
+        (the first of ``rewrite``'s edits, or found by comparing the texts).
 
         The steps before it are the plan's own, so their priced rows are reused; only the
         rest goes through the evaluator (``apply``, the one chain code).  Returns the
         final state, whether every step flew, and the rows of the whole rewritten plan.
         """
-        k = self.first_change(program) if self.result.ok else None
-        if k is None:
+        k = rewrite.first if rewrite is not None else self.first_change(program)
+        if k is None or not self.result.ok:
             result = run(program)
             return result.final, result.ok, result.rows
         batch = self._before[k]
         rows = [r for r in self.result.rows if r.step < k]
         ctx = context_for(program)
         n_new, n_old = len(program.steps), len(self.program.steps)
-        suffix = self._same_suffix(program, k)
+        suffix = (self._same_suffix(program, k) if rewrite is None
+                  else n_old - 1 - rewrite.last)
         for i in range(k, n_new):
             batch, step_rows, fails = apply(program.steps[i], i, batch, ctx)
             if not fails.ok[0]:
@@ -294,16 +352,117 @@ class Checker:
         return bool(np.allclose(batch.r, ref.r, rtol=1e-10, atol=1e-9)
                     and np.allclose(batch.v, ref.v, rtol=1e-10, atol=1e-12))
 
-    def prove(self, text: str) -> Proof | None:
+    def prove(self, rewrite: Rewrite | str) -> Proof | None:
         """Price a rewritten plan; a Proof only if it is a valid, cheaper equivalent."""
+        return self.prove_all([rewrite])[0]
+
+    def best(self, rewrites: Iterable[Rewrite | str]) -> Proof | None:
+        proofs = [p for p in self.prove_all(list(dict.fromkeys(rewrites))) if p]
+        return max(proofs, key=lambda p: p.saves_kg, default=None)
+
+    def prove_all(self, rewrites: list[Rewrite | str]) -> list[Proof | None]:
+        """Price many rewritten plans; a Proof (or None) for each, in order.
+
+        Each rewrite of nodes flies alone from the stored state before its first changed
+        step to the last step any of them changes; past it they all fly the plan's own
+        steps, so their states are stacked into one batch and the rest of the plan is
+        priced once for all of them (``_stacked``).  A rewrite in text is parsed and
+        priced alone (``price``).
+        """
+        out: list[Proof | None] = [None] * len(rewrites)
         if not self.result.ok:
-            return None
-        try:
-            program = load_text(text, self.program.source.path)
-        except PlanError:
-            return None
-        self.budget.proofs += 1
-        final, ok, rows = self.price(program)
+            return out
+        nodes = [j for j, rw in enumerate(rewrites)
+                 if isinstance(rw, Rewrite) and not rw.textual]
+        for j in sorted(set(range(len(rewrites))) - set(nodes)):
+            program = self.program_of(rewrites[j])
+            if program is None:
+                continue
+            self.budget.proofs += 1
+            final, ok, rows = self.price(program)
+            out[j] = self._judge(rewrites[j], program, final, ok, lambda rows=rows: rows)
+        if not nodes:
+            return out
+        last = max(rewrites[j].last for j in nodes)
+        n_old = len(self.program.steps)
+        groups: dict = {}
+        for j in nodes:
+            rw = rewrites[j]
+            program = self.program_of(rw)
+            if program is None:
+                continue
+            self.budget.proofs += 1
+            delta = len(program.steps) - n_old
+            end = last + 1 + delta  # where the plan's own steps take over
+            ctx = context_for(program)
+            batch = self._before[rw.first]
+            rows = [r for r in self.result.rows if r.step < rw.first]
+            for i in range(rw.first, end):
+                batch, step_rows, fails = apply(program.steps[i], i, batch, ctx)
+                if not fails.ok[0]:
+                    break
+                rows.extend(step_rows)
+            else:
+                groups.setdefault((ctx, program.steps[end:]), []).append(
+                    (j, program, batch, rows, delta))
+        for (ctx, tail), members in groups.items():
+            for j, program, final, ok, rows in self._stacked(last + 1, tail, ctx, members):
+                out[j] = self._judge(rewrites[j], program, final, ok, rows)
+        return out
+
+    def _stacked(self, start: int, tail, ctx, members):
+        """Candidates in the plan's own steps from step ``start`` on, in one batch.
+
+        ``members`` are (index, program, state, rows so far, steps added); yields
+        (index, program, final state, flew, rows) with the rows as a function, built
+        only for the candidates that prove something.  An element back in the plan's
+        own orbit state is carried from there (``carry``) like ``price`` does.
+        """
+        n_old = len(self.program.steps)
+        alive = list(range(len(members)))
+        batch = Batch.concat([m[2] for m in members])
+        history: list[tuple[list, dict[int, int]]] = []  # rows of each step, positions
+
+        def rows_for(e: int, carried=()):
+            delta = members[e][4]
+            own = list(members[e][3])
+            for step_rows, where in history:
+                if e in where:
+                    own += [r.take(slice(where[e], where[e] + 1), r.step + delta)
+                            for r in step_rows]
+            return own + list(carried)
+
+        for s in range(start, n_old + 1):
+            if s - 1 > self._mass_checked and s < n_old and alive:
+                ref = self._before[s]
+                back = (np.all(np.isclose(batch.r, ref.r, rtol=1e-10, atol=1e-9), axis=1)
+                        & np.all(np.isclose(batch.v, ref.v, rtol=1e-10, atol=1e-12), axis=1))
+                if back.any():
+                    carried = [r for r in self.result.rows if r.step >= s]
+                    for pos in np.flatnonzero(back):
+                        e = alive[pos]
+                        final, ok = carry(batch.take(slice(pos, pos + 1)), carried,
+                                          float(ref.mass[0]))
+                        yield (members[e][0], members[e][1], final, bool(ok[0]),
+                               lambda e=e, c=carried: rows_for(e, c))
+                    keep = np.flatnonzero(~back)
+                    alive = [alive[p] for p in keep]
+                    batch = batch.take(keep)
+            if s == n_old or not alive:
+                break
+            batch, step_rows, fails = apply(tail[s - start], s, batch, ctx)
+            history.append((step_rows, {e: p for p, e in enumerate(alive)}))
+            if not fails.ok.all():
+                keep = np.flatnonzero(fails.ok)
+                alive = [alive[p] for p in keep]
+                batch = batch.take(keep)
+        for pos, e in enumerate(alive):
+            yield (members[e][0], members[e][1], batch.take(slice(pos, pos + 1)), True,
+                   lambda e=e: rows_for(e))
+
+    def _judge(self, rewrite, program: Program, final: Batch, ok: bool, rows) -> Proof | None:
+        """A Proof if the priced rewrite flies, meets every expectation, reaches the same
+        final orbit and costs less; ``rows`` gives its rows when it does."""
         if not ok or not bool(final.expect_ok[0]):
             return None
         from .reorder import orientation_matters, same_orbit  # proofs only, not `run`
@@ -317,17 +476,30 @@ class Checker:
                                            - float(final.propellant[0]))
         if saves_kg <= 1e-6 or saves_dv < -1e-6:
             return None
-        return Proof(text, program, Result(program=program, rows=rows, final=final),
-                     saves_dv, saves_kg)
+        text = rewrite if isinstance(rewrite, str) else None
+        return Proof(text, program, Result(program=program, rows=rows(), final=final),
+                     saves_dv, saves_kg, None if text is not None else rewrite)
 
-    def best(self, texts: Iterable[str]) -> Proof | None:
-        proofs = [p for p in (self.prove(t) for t in dict.fromkeys(texts)) if p]
-        return max(proofs, key=lambda p: p.saves_kg, default=None)
+    def confirm(self, proof: Proof) -> None:
+        """Write a proof's text, parse it back and check it lowers to the plan that was
+        priced (same steps, craft and settings); a rewrite that does not read back as
+        itself is a bug in apsidal, never a finding."""
+        if proof.text is not None:
+            return
+        text = self.text_of(proof.rewrite)
+        try:
+            program = load_text(text, self.program.source.path)
+        except PlanError as exc:
+            raise RuntimeError(f"a rewritten plan does not parse back: {exc.message}") from exc
+        if _plain(_essence(program)) != _plain(_essence(proof.program)):
+            raise RuntimeError("a rewritten plan does not read back as the plan priced")
+        proof.text = text
 
     def finding(self, rule: str, severity: str, steps, message: str, proof: Proof | None,
                 notes: Iterable[str] = ()) -> Finding:
         if proof is None:
             return Finding(rule, severity, tuple(steps), message, notes=tuple(notes))
+        self.confirm(proof)
         if not self.report["feasible"] and budget(run(proof.program))["feasible"]:
             # (priced in full again: a proof carries the plan's own rows past the rewrite)
             notes = (*notes, "with this rewrite the plan fits its load")
@@ -337,6 +509,24 @@ class Checker:
             n=1))
         return Finding(rule, severity, tuple(steps), message, proof.saves_m_s, proof.saves_kg,
                        proof.text, diff, tuple(notes))
+
+
+def _essence(program: Program) -> tuple:
+    """What a plan flies: its steps, craft and settings (not where its text stands)."""
+    return (program.steps, program.craft, program.margin, program.reserve, program.body,
+            program.ceiling, tuple(program.start_r), tuple(program.start_v))
+
+
+def _plain(x):
+    """``x`` with every source span left out, for comparing what two plans say."""
+    if is_dataclass(x) and not isinstance(x, type):
+        return (type(x).__name__, *(_plain(getattr(x, f.name)) for f in fields(x)
+                                    if not f.name.endswith("span")))
+    if isinstance(x, (tuple, list)):
+        return tuple(_plain(y) for y in x)
+    if isinstance(x, np.ndarray):
+        return tuple(x.ravel().tolist())
+    return x
 
 
 def _statement_text(text: str, node) -> str:

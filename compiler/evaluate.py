@@ -80,6 +80,11 @@ class Batch:
             return np.where(m, a, b)
         return Batch(*(pick(getattr(self, f), getattr(other, f)) for f in _FIELDS))
 
+    @staticmethod
+    def concat(batches: list[Batch]) -> Batch:
+        """The batches one after another along the batch axis."""
+        return Batch(*(np.concatenate([getattr(b, f) for b in batches]) for f in _FIELDS))
+
 
 _FIELDS = ("r", "v", "mass", "propellant", "t", "dv", "dv_margin", "expect_ok")
 
@@ -140,6 +145,22 @@ class Row:
     checks: list[CheckResult] = field(default_factory=list)
     v_before: np.ndarray | None = None  # (B, 3) velocity just before a burn
     covered: np.ndarray | None = None  # (B,) the load still covers this burn
+
+    def take(self, idx, step: int | None = None) -> Row:
+        """The row for the batch elements ``idx`` (a slice or index array keeps the
+        axis), renumbered to plan step ``step`` if given."""
+        part = lambda x: None if x is None else x[idx]
+        return replace(
+            self, step=self.step if step is None else step, after=self.after.take(idx),
+            **{f: part(getattr(self, f)) for f in _ROW_ARRAYS},
+            checks=[replace(c, actual=c.actual[idx], passed=c.passed[idx],
+                            undefined=part(c.undefined), ecc=part(c.ecc),
+                            apsides=None if c.apsides is None else
+                            (c.apsides[0][idx], c.apsides[1][idx])) for c in self.checks])
+
+
+_ROW_ARRAYS = ("dv_vec", "dv", "dv_margin", "propellant", "burn_time", "coast_time",
+               "duration", "v_before", "covered")
 
 
 @dataclass(frozen=True)

@@ -153,7 +153,7 @@ def test_priced_from_a_stored_state_equals_priced_whole(a, b):
     c = Checker(program, run(program), Budget(None))
     lines = [c.statement_text(k) for k in range(len(program.steps))]
     edits = {a: [lines[b]], b: [lines[a]]} if a != b else {a: [lines[a]]}
-    new = load_text(c.rewrite(edits), "m.aps")
+    new = load_text(c.text_of(c.rewrite(edits)), "m.aps")
     final, ok, _ = c.price(new)
     whole = run(new)
     assert ok == whole.ok
@@ -177,7 +177,7 @@ def test_a_rewrite_back_in_the_plans_state_is_carried_and_matches_the_whole_pric
     real = check.carry
     monkeypatch.setattr(check, "carry", lambda *a: calls.append(1) or real(*a))
     line = c.statement_text(0) + " margin 10 %"
-    new = load_text(c.rewrite({0: [line]}), "m.aps")
+    new = load_text(c.text_of(c.rewrite({0: [line]})), "m.aps")
     final, ok, _ = c.price(new)
     whole = run(new)
     assert calls and ok and whole.ok

@@ -57,7 +57,7 @@ def merge_burns(c: Checker) -> list[Finding]:
             later |= SHAPE  # the second burn's shape goals replace the first's
         goals = c.pin_plane([g for g in na.goals if g.kind not in later] + list(nb.goals),
                             (i, i + 1))
-        proof = c.prove(c.rewrite({i: [c.unparse(with_goals(na, goals))], i + 1: []}))
+        proof = c.prove(c.rewrite({i: [with_goals(na, goals)], i + 1: []}))
         if proof is not None:
             out.append(c.finding(
                 "merge-burns", "warning", (a.name, b.name),
@@ -80,7 +80,7 @@ def _merge_vectors(c: Checker, i: int, a, b) -> Finding | None:
     span = node.span
     goals = [ast.Goal(k, ast.Quantity(f"{x:.9f}", "m/s", span), span)
              for k, x in zip(("along", "cross", "radial"), parts)]
-    proof = c.prove(c.rewrite({i: [c.unparse(with_goals(node, goals))], i + 1: []}))
+    proof = c.prove(c.rewrite({i: [with_goals(node, goals)], i + 1: []}))
     if proof is None:
         return None
     return c.finding(

@@ -4,11 +4,8 @@ from __future__ import annotations
 
 import math
 
-from apsidal.lang.errors import PlanError
-
 from ..check import Checker, Finding, rule, saving_text, with_goals
 from ..evaluate import Result
-from ..load import load_text
 from ..reorder import blocks, search_block
 from ..steps import Burn, Transfer
 
@@ -24,14 +21,14 @@ def _pinned(c: Checker, block: list[int]) -> Checker:
         if isinstance(step, (Burn, Transfer)) and step.changes_plane:
             goals = c.pin_plane(node.goals, i)
             if len(goals) != len(node.goals):
-                edits[i] = [c.unparse(with_goals(node, goals))]
+                edits[i] = [with_goals(node, goals)]
     if not edits:
         return c
-    try:
-        program = load_text(c.rewrite(edits), c.program.source.path)
-    except PlanError:
+    rewrite = c.rewrite(edits)
+    program = c.program_of(rewrite)
+    if program is None:
         return c
-    final, ok, rows = c.price(program)
+    final, ok, rows = c.price(program, rewrite)
     if not ok:
         return c
     return Checker(program, Result(program=program, rows=rows, final=final), c.budget)

@@ -49,7 +49,7 @@ def plane_change_at_speed(c: Checker) -> list[Finding]:
         name = c.program.steps[i].name
         plane = c.pin_plane([g for g in node.goals if g.kind in PLANE_GOALS], i)
         rest = [g for g in node.goals if g.kind not in PLANE_GOALS]
-        remaining = [c.unparse(with_goals(node, rest))] if rest else []
+        remaining = [with_goals(node, rest)] if rest else []
         speed = _speed_before(c, i)
         mu = c.program.body.gm
 
@@ -61,7 +61,7 @@ def plane_change_at_speed(c: Checker) -> list[Finding]:
                 return False
             return True
 
-        candidates = []  # (text, name of the burn that carries the plane change)
+        candidates = []  # (rewrite, name of the burn that carries the plane change)
         for slot in block:
             if c.budget.expired():
                 c.budget.cut("plane-change-at-speed")
@@ -70,10 +70,10 @@ def plane_change_at_speed(c: Checker) -> list[Finding]:
                                                 (True, c.state_after(slot)))
                      if slow_enough(state)]
             for kind in PLACES if sides else ():
-                line = c.unparse(with_where(with_goals(node, plane), kind))
+                line = with_where(with_goals(node, plane), kind)
                 for after in sides:
                     edits = {i: remaining if slot != i else []}
-                    base = [c.statement_text(slot)] if slot != i else remaining
+                    base = [c.statements[slot]] if slot != i else remaining
                     edits[slot] = (base + [line]) if after else ([line] + base)
                     candidates.append((c.rewrite(edits), name))
             other = c.statements[slot]
@@ -81,14 +81,11 @@ def plane_change_at_speed(c: Checker) -> list[Finding]:
             if slot != i and isinstance(step, Burn) and step.vector is None \
                     and not step.changes_plane and _speed_before(c, slot) < speed * (1 - 1e-3):
                 merged = with_goals(other, list(other.goals) + plane)
-                candidates.append((c.rewrite({i: remaining, slot: [c.unparse(merged)]}),
+                candidates.append((c.rewrite({i: remaining, slot: [merged]}),
                                    step.name))
         slower = []
-        for text, carrier in dict.fromkeys(candidates):
-            if c.budget.expired():
-                c.budget.cut("plane-change-at-speed")
-                break
-            proof = c.prove(text)
+        unique = list(dict.fromkeys(candidates))
+        for (_, carrier), proof in zip(unique, c.prove_all([rw for rw, _ in unique])):
             if proof is None:
                 continue
             row = next(r for r in proof.result.rows if r.name == carrier)
@@ -123,7 +120,7 @@ def costlier_node(c: Checker) -> list[Finding]:
             break
         node = c.statements[i]
         moved = with_where(with_goals(node, c.pin_plane(node.goals, i)), other[step.place.kind])
-        text = c.rewrite({i: [c.unparse(moved)]})
+        text = c.rewrite({i: [moved]})
         proof = c.prove(text)
         if proof is None:
             continue
@@ -167,7 +164,7 @@ def shared_plane_change(c: Checker) -> list[Finding]:
                           (pnode.where.kind if pnode.where else None), "node"):
                 merged = with_where(with_goals(tnode, goals), where,
                                     pnode.where.angle if pnode.where else None)
-                texts.append(c.rewrite({i: [c.unparse(merged)], j: []}))
+                texts.append(c.rewrite({i: [merged], j: []}))
             proof = c.best(texts)
             if proof is not None:
                 out.append(c.finding(
@@ -203,7 +200,7 @@ def _burn_pairs(c: Checker) -> list[Finding]:
         shape_goal = next(g for g in na.goals if g.kind == far)
         circ = ast.Goal("circular", shape_goal.value, shape_goal.span)
         transfer = ast.Transfer(na.name, na.where, (circ, *plane), None, na.options, na.span)
-        proof = c.prove(c.rewrite({i: [c.unparse(transfer)], i + 1: []}))
+        proof = c.prove(c.rewrite({i: [transfer], i + 1: []}))
         if proof is not None:
             out.append(c.finding(
                 "shared-plane-change", "warning", (a.name, b.name),

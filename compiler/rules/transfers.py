@@ -120,7 +120,7 @@ def bi_elliptic_cheaper(c: Checker) -> list[Finding]:
         node = with_goals(c.statements[i], c.pin_plane(c.statements[i].goals, i))
         low = 1.05 * step.radius
         proof = best_apoapsis(
-            c, lambda alt, i=i, node=node: c.rewrite({i: [c.unparse(_with_via(node, alt))]}),
+            c, lambda alt, i=i, node=node: c.rewrite({i: [_with_via(node, alt)]}),
             low, bound, "bi-elliptic-cheaper")
         if proof is None:
             continue
@@ -170,7 +170,7 @@ def hohmann_cheaper(c: Checker) -> list[Finding]:
             continue
         node = c.statements[i]
         hohmann = replace(node, via=None, goals=tuple(c.pin_plane(node.goals, i)))
-        proof = c.prove(c.rewrite({i: [c.unparse(hohmann)]}))
+        proof = c.prove(c.rewrite({i: [hohmann]}))
         if proof is not None:
             out.append(c.finding(
                 "hohmann-cheaper", "warning", (step.name,),
@@ -218,7 +218,7 @@ def three_burn_plane_change(c: Checker) -> list[Finding]:
         def build(alt, i=i, node=node, plane=plane):
             t = ast.Transfer(node.name, node.where, plane, _distance(alt, node.span),
                              node.options, node.span)
-            return c.rewrite({i: [c.unparse(t)]})
+            return c.rewrite({i: [t]})
 
         proof = best_apoapsis(c, build, 1.1 * r, bound, "three-burn-plane-change")
         if proof is None:
