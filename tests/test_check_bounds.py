@@ -18,7 +18,12 @@ from apsidal.compiler.reorder import (
     search_block,
     start_batch,
 )
-from apsidal.compiler.rules.bounds import BI_ELLIPTIC_RATIO, detour_lower_bound, plane_angle
+from apsidal.compiler.rules.bounds import (
+    BI_ELLIPTIC_RATIO,
+    bi_elliptic_lower_bound,
+    detour_lower_bound,
+    plane_angle,
+)
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -97,6 +102,45 @@ def test_detour_bound_is_below_every_priced_detour(alt, turn, ratio):
     bound = detour_lower_bound(MU, r, math.sqrt(MU / r), math.radians(turn),
                                0.99 * via, 1.01 * via)
     assert bound <= priced * (1 + 1e-9)
+
+
+@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.floats(300, 3000), st.floats(0.0, 0.3), st.floats(0.0, 60.0), st.floats(0.2, 30),
+       st.floats(1.05, 30))
+def test_bi_elliptic_bound_is_below_every_priced_bi_elliptic_transfer(alt, ecc, turn, ratio,
+                                                                       far):
+    # the bound of bi-elliptic-cheaper against the evaluator's own bi-elliptic transfer
+    # with a plane change, from circular and eccentric starts, raising and lowering
+    rp = RE + alt
+    ra = rp * (1 + ecc) / (1 - ecc)
+    start = f"start orbit periapsis {alt:.3f} km apoapsis {ra - RE:.3f} km inclination 30 deg"
+    target = max(rp * ratio, RE + 200)
+    via = max(target, ra) * far
+    text = HEAD.replace("start circular 400 km inclination 30 deg", start) + (
+        f"transfer b at ascending node: circular {target - RE:.3f} km, inclination to "
+        f"{30 + turn:g} deg via apoapsis {via - RE:.0f} km\n")
+    res = run(load_text(text, "b.aps"))
+    if not res.ok:
+        return
+    first = res.rows[0]
+    r0 = float(np.linalg.norm(first.after.r[0]))
+    v0 = float(np.linalg.norm(first.v_before[0]))
+    priced = sum(float(row.dv[0]) for row in res.rows if row.kind == "burn")
+    bound = bi_elliptic_lower_bound(MU, r0, v0, target, math.radians(turn), 0.99 * via,
+                                    1.01 * via)
+    assert bound <= priced * (1 + 1e-9)
+
+
+def test_bi_elliptic_bound_prunes_a_small_ratio_with_a_plane_change():
+    # a 10 % raise with a 10 deg turn: the Hohmann transfer sharing the turn (priced by
+    # the evaluator) is below the least any bi-elliptic one costs up to 100 radii
+    text = circular_plan(500, 30, "transfer h: circular 1200 km, inclination to 40 deg\n")
+    res = run(load_text(text, "h.aps"))
+    own = sum(float(row.dv[0]) for row in res.rows)
+    r0 = RE + 500
+    least = bi_elliptic_lower_bound(MU, r0, math.sqrt(MU / r0), RE + 1200, math.radians(10),
+                                    1.05 * (RE + 1200), 100 * RE)
+    assert least > own
 
 
 def test_detour_bound_prunes_small_turns_and_keeps_large_ones():

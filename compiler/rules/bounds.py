@@ -50,6 +50,33 @@ def detour_lower_bound(mu: float, r: float, v: float, theta: float, ra_lo: float
     return float(np.min(np.maximum(2.0 * gap, gap + turn)))
 
 
+def bi_elliptic_lower_bound(mu: float, r0: float, v0: float, radius: float, theta: float,
+                            via_lo: float, via_hi: float) -> float:
+    """Least delta-v (km/s) any bi-elliptic transfer from radius ``r0`` and speed ``v0`` to
+    the circle of ``radius`` through an apoapsis in [via_lo, via_hi] can cost, turning
+    the plane by ``theta`` rad at that apoapsis.
+
+    The first burn sets the periapsis speed of the first ellipse, vp1 (by vis-viva),
+    from v0: at least |vp1 - v0|.  The last sets the circular speed from the periapsis
+    speed of the second ellipse, vp2: at least vp2 - vc.  At the far apsis the velocity
+    is horizontal before and after, and both planes contain the position, so the
+    velocity after (va2, the apoapsis speed of the second ellipse) has a component
+    va2 sin(theta) across the old plane the velocity before did not have: the middle
+    burn costs at least that.  vp1 and vp2 grow and va2 falls with the apoapsis, so
+    each is bounded over an interval of a geometric grid by its value at one end, and
+    the minimum over the range is never over-estimated.
+    """
+    if not via_hi > via_lo:
+        return np.inf
+    edges = np.geomspace(via_lo, via_hi, GRID + 1)
+    vp1 = np.sqrt(2.0 * mu * edges / (r0 * (r0 + edges)))
+    vp2 = np.sqrt(2.0 * mu * edges / (radius * (radius + edges)))
+    va2 = np.sqrt(2.0 * mu * radius / (edges * (radius + edges)))
+    vc = np.sqrt(mu / radius)
+    gap = np.where(v0 < vp1[:-1], vp1[:-1] - v0, np.where(v0 > vp1[1:], v0 - vp1[1:], 0.0))
+    return float(np.min(gap + np.maximum(vp2[:-1] - vc, 0.0) + va2[1:] * abs(np.sin(theta))))
+
+
 def plane_angle(r, v_before, v_after) -> float:
     """Angle (rad) between the orbit planes before and after a burn at ``r``."""
     h0, h1 = cross(r, v_before), cross(r, v_after)

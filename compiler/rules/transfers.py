@@ -14,10 +14,16 @@ from ..check import Checker, Finding, Proof, rule, saving_text, with_goals
 from ..state import elements_from_state, norm
 from ..steps import Burn, Transfer
 from ..textfmt import duration
-from .bounds import BI_ELLIPTIC_RATIO, detour_lower_bound, plane_angle
+from .bounds import (
+    BI_ELLIPTIC_RATIO,
+    bi_elliptic_lower_bound,
+    detour_lower_bound,
+    plane_angle,
+)
 
 GRID = 10  # apoapsis candidates tried across the allowed range, before refining
-REFINE = 14  # golden-section steps on the logarithm of the apoapsis
+REFINE = 5  # finer grids across the bracket of the best (each shrinks it 4 times)
+REFINE_POINTS = 9  # points of each finer grid, ends included
 
 
 def _distance(alt_km: float, span: Span) -> ast.Distance:
@@ -43,45 +49,58 @@ def best_apoapsis(c: Checker, build, low: float, high: float,
                   rule_name: str = "") -> Proof | None:
     """The cheapest proven plan over apoapsis radii in [low, high] (km).
 
-    ``build(alt_km)`` gives the plan text for an apoapsis altitude.  A geometric grid
-    brackets the optimum, golden-section search on log radius refines it; every
-    candidate is priced as a whole plan.
+    ``build(alt_km)`` gives the rewrite for an apoapsis altitude (whole km).  A
+    geometric grid brackets the optimum and finer grids across the bracket refine it,
+    each grid priced as one batch (``Checker.prove_all``) until the bracket is under a
+    kilometre; every candidate is priced as a whole plan.
     """
     if not high > low:
         return None
     radius = c.program.body.radius
-    cache: dict[float, Proof | None] = {}
+    cache: dict[int, Proof | None] = {}
+    alt_of = lambda log_r: round(math.exp(log_r) - radius)
 
-    def price(log_r: float):
-        alt = round(math.exp(log_r) - radius)
-        if alt not in cache and c.budget.expired():
+    def price(grid) -> bool:
+        new = sorted({alt_of(g) for g in grid} - cache.keys())
+        if new and c.budget.expired():
             c.budget.cut(rule_name)
-            return math.inf, None
-        if alt not in cache:
-            cache[alt] = c.prove(build(alt))
-        p = cache[alt]
-        return (-p.saves_kg if p else math.inf), p
+            return False
+        cache.update(zip(new, c.prove_all([build(alt) for alt in new])))
+        return bool(new)
+
+    def score(log_r: float) -> float:
+        p = cache[alt_of(log_r)]
+        return -p.saves_kg if p else math.inf
 
     grid = np.linspace(math.log(low), math.log(high), GRID)
-    scores = [price(g)[0] for g in grid]
-    k = int(np.argmin(scores))
-    if not math.isfinite(scores[k]):
-        return None
-    lo, hi = grid[max(k - 1, 0)], grid[min(k + 1, GRID - 1)]
-    g = (math.sqrt(5) - 1) / 2
-    x1, x2 = hi - g * (hi - lo), lo + g * (hi - lo)
-    f1, f2 = price(x1)[0], price(x2)[0]
+    more = price(grid)
     for _ in range(REFINE):
-        if f1 < f2:
-            hi, x2, f2 = x2, x1, f1
-            x1 = hi - g * (hi - lo)
-            f1 = price(x1)[0]
-        else:
-            lo, x1, f1 = x1, x2, f2
-            x2 = lo + g * (hi - lo)
-            f2 = price(x2)[0]
+        if not more:  # the time limit, or the bracket is within a kilometre
+            break
+        scores = [score(g) for g in grid]
+        k = int(np.argmin(scores))
+        if not math.isfinite(scores[k]):
+            break
+        grid = np.linspace(grid[max(k - 1, 0)], grid[min(k + 1, len(grid) - 1)], REFINE_POINTS)
+        more = price(grid)
     proofs = [p for p in cache.values() if p is not None]
     return max(proofs, key=lambda p: p.saves_kg, default=None)
+
+
+def _bi_elliptic_room(c: Checker, i: int, step: Transfer, bound: float) -> float:
+    """The most (m/s, with margin) a bi-elliptic transfer in place of Hohmann transfer
+    ``i`` could save: its own delta-v less the least any bi-elliptic one can cost."""
+    rows = c.rows_of(i)
+    first = rows[0]
+    r0 = float(np.linalg.norm(first.after.r[0]))
+    v0 = float(np.linalg.norm(first.v_before[0]))
+    h0 = np.cross(first.after.r[0], first.v_before[0])
+    h1 = np.cross(rows[-1].after.r[0], rows[-1].after.v[0])
+    theta = float(np.arctan2(np.linalg.norm(np.cross(h0, h1)), np.dot(h0, h1)))
+    least = bi_elliptic_lower_bound(c.program.body.gm, r0, v0, step.radius, theta,
+                                    1.05 * step.radius, bound)
+    own = sum(float(r.dv[0]) for r in rows)
+    return (own - least) * (1.0 + step.margin) * 1000.0
 
 
 def _never_pays(c: Checker, i: int, target: float) -> bool:
@@ -113,6 +132,8 @@ def bi_elliptic_cheaper(c: Checker) -> list[Finding]:
             continue
         if not step.changes_plane and _never_pays(c, i, step.radius):
             c.budget.pruned += 1
+            continue
+        if not c.can_pay("bi-elliptic-cheaper", _bi_elliptic_room(c, i, step, bound)):
             continue
         if c.budget.expired():
             c.budget.cut("bi-elliptic-cheaper")
