@@ -22,6 +22,7 @@ from .budget import budget
 from .evaluate import Batch, Result, apply, carry, context_for, run, start_batch
 from .load import load_text
 from .lower import lower
+from .proofs import Node, Walk, add
 from .state import elements_from_state
 from .steps import Expect, Program
 
@@ -361,104 +362,57 @@ class Checker:
         return max(proofs, key=lambda p: p.saves_kg, default=None)
 
     def prove_all(self, rewrites: list[Rewrite | str]) -> list[Proof | None]:
-        """Price many rewritten plans; a Proof (or None) for each, in order.
+        """Price many rewritten plans (``price_all``); a Proof (or None) for each."""
+        return [None if p is None else self._judge(rw, *p)
+                for rw, p in zip(rewrites, self.price_all(rewrites))]
 
-        Each rewrite of nodes flies alone from the stored state before its first changed
-        step to the last step any of them changes; past it they all fly the plan's own
-        steps, so their states are stacked into one batch and the rest of the plan is
-        priced once for all of them (``_stacked``).  A rewrite in text is parsed and
-        priced alone (``price``).
+    def price_all(self, rewrites: list[Rewrite | str]) -> list[tuple | None]:
+        """Each rewritten plan priced: (program, final state, flew, rows()) for each,
+        None for a rewrite that is not a valid plan (or when the plan itself fails).
+
+        Rewrites of nodes go through one walk of the plan (``proofs.Walk``): those whose
+        edits agree so far share their states, and every state that differs from the
+        plan's is stacked into one batch for each of the plan's own steps.  A rewrite in
+        text is parsed and priced alone (``price``), as is one that renames the plan's
+        own steps (a default name moved).
         """
-        out: list[Proof | None] = [None] * len(rewrites)
+        out: list[tuple | None] = [None] * len(rewrites)
         if not self.result.ok:
             return out
-        nodes = [j for j, rw in enumerate(rewrites)
-                 if isinstance(rw, Rewrite) and not rw.textual]
-        for j in sorted(set(range(len(rewrites))) - set(nodes)):
-            program = self.program_of(rewrites[j])
-            if program is None:
-                continue
-            self.budget.proofs += 1
-            final, ok, rows = self.price(program)
-            out[j] = self._judge(rewrites[j], program, final, ok, lambda rows=rows: rows)
-        if not nodes:
-            return out
-        last = max(rewrites[j].last for j in nodes)
-        n_old = len(self.program.steps)
-        groups: dict = {}
-        for j in nodes:
-            rw = rewrites[j]
+        ctx = context_for(self.program)
+        root = Node()
+        own_key = lambda x: ("own", self._own[id(x)]) if id(x) in self._own else x
+        names = [st.name for st in self.program.steps]
+        programs = {}
+        for j, rw in enumerate(rewrites):
             program = self.program_of(rw)
             if program is None:
                 continue
             self.budget.proofs += 1
-            delta = len(program.steps) - n_old
-            end = last + 1 + delta  # where the plan's own steps take over
-            ctx = context_for(program)
-            batch = self._before[rw.first]
-            rows = [r for r in self.result.rows if r.step < rw.first]
-            for i in range(rw.first, end):
-                batch, step_rows, fails = apply(program.steps[i], i, batch, ctx)
-                if not fails.ok[0]:
-                    break
-                rows.extend(step_rows)
-            else:
-                groups.setdefault((ctx, program.steps[end:]), []).append(
-                    (j, program, batch, rows, delta))
-        for (ctx, tail), members in groups.items():
-            for j, program, final, ok, rows in self._stacked(last + 1, tail, ctx, members):
-                out[j] = self._judge(rewrites[j], program, final, ok, rows)
+            programs[j] = program
+            if isinstance(rw, str) or rw.textual or context_for(program) != ctx \
+                    or not self._same_names(rw, program, names):
+                final, ok, rows = self.price(program, None if isinstance(rw, str) or
+                                             rw.textual else rw)
+                out[j] = (program, final, ok, lambda rows=rows: rows)
+                continue
+            add(root, j, rw.edits, program, own_key)
+        walk = Walk(self._before, self.result.rows, self.program.steps, ctx, self._mass_checked)
+        for j, (final, ok, rows) in walk.run(root).items():
+            out[j] = (programs[j], final, ok, rows)
         return out
 
-    def _stacked(self, start: int, tail, ctx, members):
-        """Candidates in the plan's own steps from step ``start`` on, in one batch.
-
-        ``members`` are (index, program, state, rows so far, steps added); yields
-        (index, program, final state, flew, rows) with the rows as a function, built
-        only for the candidates that prove something.  An element back in the plan's
-        own orbit state is carried from there (``carry``) like ``price`` does.
-        """
-        n_old = len(self.program.steps)
-        alive = list(range(len(members)))
-        batch = Batch.concat([m[2] for m in members])
-        history: list[tuple[list, dict[int, int]]] = []  # rows of each step, positions
-
-        def rows_for(e: int, carried=()):
-            delta = members[e][4]
-            own = list(members[e][3])
-            for step_rows, where in history:
-                if e in where:
-                    own += [r.take(slice(where[e], where[e] + 1), r.step + delta)
-                            for r in step_rows]
-            return own + list(carried)
-
-        for s in range(start, n_old + 1):
-            if s - 1 > self._mass_checked and s < n_old and alive:
-                ref = self._before[s]
-                back = (np.all(np.isclose(batch.r, ref.r, rtol=1e-10, atol=1e-9), axis=1)
-                        & np.all(np.isclose(batch.v, ref.v, rtol=1e-10, atol=1e-12), axis=1))
-                if back.any():
-                    carried = [r for r in self.result.rows if r.step >= s]
-                    for pos in np.flatnonzero(back):
-                        e = alive[pos]
-                        final, ok = carry(batch.take(slice(pos, pos + 1)), carried,
-                                          float(ref.mass[0]))
-                        yield (members[e][0], members[e][1], final, bool(ok[0]),
-                               lambda e=e, c=carried: rows_for(e, c))
-                    keep = np.flatnonzero(~back)
-                    alive = [alive[p] for p in keep]
-                    batch = batch.take(keep)
-            if s == n_old or not alive:
-                break
-            batch, step_rows, fails = apply(tail[s - start], s, batch, ctx)
-            history.append((step_rows, {e: p for p, e in enumerate(alive)}))
-            if not fails.ok.all():
-                keep = np.flatnonzero(fails.ok)
-                alive = [alive[p] for p in keep]
-                batch = batch.take(keep)
-        for pos, e in enumerate(alive):
-            yield (members[e][0], members[e][1], batch.take(slice(pos, pos + 1)), True,
-                   lambda e=e: rows_for(e))
+    @staticmethod
+    def _same_names(rewrite: Rewrite, program: Program, names: list[str]) -> bool:
+        """Whether the plan's own steps keep their names in the rewritten plan."""
+        new, k, at = [], 0, 0
+        for index, lines in rewrite.edits:
+            new += names[at:index]
+            new += [st.name for st in program.steps[index + k:index + k + len(lines)]]
+            k += len(lines) - 1
+            at = index + 1
+        new += names[at:]
+        return new == [st.name for st in program.steps]
 
     def _judge(self, rewrite, program: Program, final: Batch, ok: bool, rows) -> Proof | None:
         """A Proof if the priced rewrite flies, meets every expectation, reaches the same

@@ -24,6 +24,7 @@ from apsidal.compiler.rules.bounds import (
     detour_lower_bound,
     plane_angle,
 )
+from apsidal.lang.errors import PlanError
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -228,3 +229,58 @@ def test_a_rewrite_back_in_the_plans_state_is_carried_and_matches_the_whole_pric
     for f in ("r", "v", "mass", "propellant", "dv", "dv_margin"):
         assert np.allclose(getattr(final, f), getattr(whole.final, f), rtol=1e-12, atol=1e-9)
     assert bool(final.expect_ok[0]) == bool(whole.final.expect_ok[0])
+
+
+@st.composite
+def rewrite_sets(draw):
+    """Several rewrites of MIXED at once: statements moved among themselves, deleted,
+    or (now and then) repeated."""
+    n = 8
+    out = []
+    for _ in range(draw(st.integers(1, 6))):
+        at = draw(st.lists(st.integers(0, n - 1), min_size=1, max_size=4, unique=True))
+        moved = draw(st.permutations(at))
+        edits = {k: [src] for k, src in zip(at, moved)}
+        for k in draw(st.lists(st.sampled_from(at), max_size=1)):
+            edits[k] = draw(st.sampled_from([[], [edits[k][0], edits[k][0]]]))
+        out.append(edits)
+    return out
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(rewrite_sets())
+def test_the_proof_walk_prices_every_rewrite_as_its_text_priced_alone(sets):
+    # many rewrites priced in one walk (shared states, one stacked batch) against each
+    # rewrite's text parsed and priced on its own
+    text = MIXED.replace("expect e mass at least 1 kg", "expect e periapsis 5000 km "
+                         "within 3000 km")
+    program = load_text(text, "m.aps")
+    c = Checker(program, run(program), Budget(None))
+    rewrites = [c.rewrite({k: [c.statements[x] for x in v] for k, v in e.items()})
+                for e in sets]
+    walked = c.price_all(rewrites)
+    for rw, priced in zip(rewrites, walked):
+        try:
+            whole = run(load_text(c.text_of(rw), "m.aps"))
+        except PlanError:
+            assert priced is None
+            continue
+        _, final, ok, rows = priced
+        assert ok == whole.ok
+        if not ok:
+            continue
+        rows = rows()
+        assert [r.name for r in rows] == [r.name for r in whole.rows]
+        assert [r.step for r in rows] == [r.step for r in whole.rows]
+        for f in ("r", "v", "mass", "propellant", "t", "dv_margin"):
+            assert np.allclose(getattr(final, f), getattr(whole.final, f), rtol=1e-9,
+                               atol=1e-9)
+        for a, b in zip(rows, whole.rows):
+            assert np.allclose(a.after.v, b.after.v, rtol=1e-9, atol=1e-12)
+        assert bool(final.expect_ok[0]) == bool(whole.final.expect_ok[0])
+    proofs = c.prove_all(rewrites)
+    for rw, proof in zip(rewrites, proofs):
+        alone = c.prove(c.text_of(rw))
+        assert (proof is None) == (alone is None)
+        if proof is not None:
+            assert math.isclose(proof.saves_kg, alone.saves_kg, rel_tol=1e-9, abs_tol=1e-9)
