@@ -361,12 +361,12 @@ class Checker:
         proofs = [p for p in self.prove_all(list(dict.fromkeys(rewrites))) if p]
         return max(proofs, key=lambda p: p.saves_kg, default=None)
 
-    def prove_all(self, rewrites: list[Rewrite | str]) -> list[Proof | None]:
+    def prove_all(self, rewrites: list[Rewrite | str], rule: str = "") -> list[Proof | None]:
         """Price many rewritten plans (``price_all``); a Proof (or None) for each."""
         return [None if p is None else self._judge(rw, *p)
-                for rw, p in zip(rewrites, self.price_all(rewrites))]
+                for rw, p in zip(rewrites, self.price_all(rewrites, rule))]
 
-    def price_all(self, rewrites: list[Rewrite | str]) -> list[tuple | None]:
+    def price_all(self, rewrites: list[Rewrite | str], rule: str = "") -> list[tuple | None]:
         """Each rewritten plan priced: (program, final state, flew, rows()) for each,
         None for a rewrite that is not a valid plan (or when the plan itself fails).
 
@@ -374,7 +374,8 @@ class Checker:
         edits agree so far share their states, and every state that differs from the
         plan's is stacked into one batch for each of the plan's own steps.  A rewrite in
         text is parsed and priced alone (``price``), as is one that renames the plan's
-        own steps (a default name moved).
+        own steps (a default name moved).  Past the time limit the walk stops; the
+        candidates it had not finished are None and ``rule`` is marked cut short.
         """
         out: list[tuple | None] = [None] * len(rewrites)
         if not self.result.ok:
@@ -398,7 +399,7 @@ class Checker:
                 continue
             add(root, j, rw.edits, program, own_key)
         walk = Walk(self._before, self.result.rows, self.program.steps, ctx, self._mass_checked)
-        for j, (final, ok, rows) in walk.run(root).items():
+        for j, (final, ok, rows) in walk.run(root, self.budget, rule).items():
             out[j] = (programs[j], final, ok, rows)
         return out
 
@@ -448,6 +449,13 @@ class Checker:
         if _plain(_essence(program)) != _plain(_essence(proof.program)):
             raise RuntimeError("a rewritten plan does not read back as the plan priced")
         proof.text = text
+
+    def findings_of(self, rule: str, proposals: list) -> list[Finding]:
+        """Findings from (rewrite, report) proposals, all priced in one walk
+        (``prove_all``); ``report(proof)`` gives the finding of a proven one (or None)."""
+        proofs = self.prove_all([rw for rw, _ in proposals], rule)
+        found = (report(p) for (_, report), p in zip(proposals, proofs) if p is not None)
+        return [f for f in found if f is not None]
 
     def finding(self, rule: str, severity: str, steps, message: str, proof: Proof | None,
                 notes: Iterable[str] = ()) -> Finding:

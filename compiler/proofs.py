@@ -98,13 +98,18 @@ class Walk:
         for j in node.done:
             self.results[j] = (final, flew, rows)
 
-    def run(self, root: Node) -> dict[int, tuple]:
+    def run(self, root: Node, budget=None, rule: str = "") -> dict[int, tuple]:
+        """Candidate -> (final state, flew, rows()); a candidate left out was cut short
+        by ``budget``'s time limit (and ``rule`` is marked so)."""
         n_old = len(self.own_steps)
         if not root.by_at:
             return self.results
         alive: list[Node] = []
         batch: Batch | None = None
         for s in range(min(root.by_at), n_old + 1):
+            if budget is not None and budget.expired():
+                budget.cut(rule)
+                return self.results
             if alive and s - 1 > self.mass_checked and s < n_old:
                 alive, batch = self._carry_back(s, alive, batch)
             born, states = [], []

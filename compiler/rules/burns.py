@@ -36,17 +36,12 @@ def merge_burns(c: Checker) -> list[Finding]:
     burn costs the length of the sum, never more than the sum of the lengths, and less
     whenever they point different ways (a raise and a plane change, say).
     """
-    out = []
+    proposals = []
     for i, a, b in _same_point_pairs(c):
         if (a.vector is None) != (b.vector is None):
             continue  # a goal and a vector: the goal's burn depends on where the vector left it
-        if c.budget.expired():
-            c.budget.cut("merge-burns")
-            break
         if a.vector is not None:
-            finding = _merge_vectors(c, i, a, b)
-            if finding is not None:
-                out.append(finding)
+            proposals += _merge_vectors(c, i, a, b)
             continue
         if (a.engine or c.program.craft.default_engine) != (b.engine or
                                                             c.program.craft.default_engine):
@@ -57,21 +52,20 @@ def merge_burns(c: Checker) -> list[Finding]:
             later |= SHAPE  # the second burn's shape goals replace the first's
         goals = c.pin_plane([g for g in na.goals if g.kind not in later] + list(nb.goals),
                             (i, i + 1))
-        proof = c.prove(c.rewrite({i: [with_goals(na, goals)], i + 1: []}))
-        if proof is not None:
-            out.append(c.finding(
-                "merge-burns", "warning", (a.name, b.name),
-                f"{a.name} and {b.name} burn at the same point; one burn with both goals "
-                f"saves {saving_text(proof)}", proof))
-    return out
+        proposals.append((c.rewrite({i: [with_goals(na, goals)], i + 1: []}),
+                          lambda proof, a=a, b=b: c.finding(
+                              "merge-burns", "warning", (a.name, b.name),
+                              f"{a.name} and {b.name} burn at the same point; one burn with "
+                              f"both goals saves {saving_text(proof)}", proof)))
+    return c.findings_of("merge-burns", proposals)
 
 
-def _merge_vectors(c: Checker, i: int, a, b) -> Finding | None:
+def _merge_vectors(c: Checker, i: int, a, b) -> list:
     """Two explicit-vector burns at one point as one: the inertial sum of the two changes,
     in the frame before the first (components to a nanometre per second)."""
     default = c.program.craft.default_engine
     if (a.engine or default) != (b.engine or default) or a.margin != b.margin:
-        return None
+        return []
     first, second = c.rows_of(i)[0], c.rows_of(i + 1)[0]
     total = second.after.v[0] - first.v_before[0]
     along, normal, radial = local_frame(first.after.r, first.v_before)
@@ -80,13 +74,11 @@ def _merge_vectors(c: Checker, i: int, a, b) -> Finding | None:
     span = node.span
     goals = [ast.Goal(k, ast.Quantity(f"{x:.9f}", "m/s", span), span)
              for k, x in zip(("along", "cross", "radial"), parts)]
-    proof = c.prove(c.rewrite({i: [with_goals(node, goals)], i + 1: []}))
-    if proof is None:
-        return None
-    return c.finding(
-        "merge-burns", "warning", (a.name, b.name),
-        f"{a.name} and {b.name} burn at the same point; one burn of their summed vector "
-        f"saves {saving_text(proof)}", proof)
+    return [(c.rewrite({i: [with_goals(node, goals)], i + 1: []}),
+             lambda proof: c.finding(
+                 "merge-burns", "warning", (a.name, b.name),
+                 f"{a.name} and {b.name} burn at the same point; one burn of their summed "
+                 f"vector saves {saving_text(proof)}", proof))]
 
 
 @rule("cancelling-burns")
@@ -97,18 +89,16 @@ def cancelling_burns(c: Checker) -> list[Finding]:
     a trim and its opposite) spend propellant for nothing.  The rule prices the plan
     without both and reports the saving when it reaches the same final orbit.
     """
-    out = []
+    proposals = []
     for i, a, b in _same_point_pairs(c):
         before = c.rows_of(i - 1)[-1].after if i > 0 else start_batch(c.program)
         after = c.rows_of(i + 1)[-1].after
         if not bool(same_orbit(after, before, c.program.body.gm, True)[0]):
             continue
-        proof = c.prove(c.rewrite({i: [], i + 1: []}))
-        if proof is not None:
-            out.append(c.finding(
-                "cancelling-burns", "warning", (a.name, b.name),
-                f"{b.name} undoes {a.name}; dropping both saves {saving_text(proof)}", proof))
-    return out
+        proposals.append((c.rewrite({i: [], i + 1: []}), lambda proof, a=a, b=b: c.finding(
+            "cancelling-burns", "warning", (a.name, b.name),
+            f"{b.name} undoes {a.name}; dropping both saves {saving_text(proof)}", proof)))
+    return c.findings_of("cancelling-burns", proposals)
 
 
 LONG_WARNING_DEG = 10.0  # of true anomaly swept (common practice: past 10-20 deg)

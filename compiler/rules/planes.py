@@ -44,48 +44,19 @@ def plane_change_at_speed(c: Checker) -> list[Finding]:
     and reports the cheapest rewrite that reaches the same orbit.
     """
     out = []
+    burns = []  # (index, name, speed before, candidates: (rewrite, carrier name))
     for i, node in _plane_burns(c):
-        block = _block_of(c, i)
-        name = c.program.steps[i].name
-        plane = c.pin_plane([g for g in node.goals if g.kind in PLANE_GOALS], i)
-        rest = [g for g in node.goals if g.kind not in PLANE_GOALS]
-        remaining = [with_goals(node, rest)] if rest else []
+        if c.budget.expired():
+            c.budget.cut("plane-change-at-speed")
+            break
         speed = _speed_before(c, i)
-        mu = c.program.body.gm
-
-        def slow_enough(state, speed=speed, mu=mu) -> bool:
-            # the carrier flies on this orbit: no point of it is slower than its apoapsis
-            least = slowest_speed(mu, state.r[0], state.v[0])
-            if least is not None and least * 1000.0 >= speed * (1 - 1e-3):
-                c.budget.pruned += 1
-                return False
-            return True
-
-        candidates = []  # (rewrite, name of the burn that carries the plane change)
-        for slot in block:
-            if c.budget.expired():
-                c.budget.cut("plane-change-at-speed")
-                break
-            sides = [after for after, state in ((False, c.state_before(slot)),
-                                                (True, c.state_after(slot)))
-                     if slow_enough(state)]
-            for kind in PLACES if sides else ():
-                line = with_where(with_goals(node, plane), kind)
-                for after in sides:
-                    edits = {i: remaining if slot != i else []}
-                    base = [c.statements[slot]] if slot != i else remaining
-                    edits[slot] = (base + [line]) if after else ([line] + base)
-                    candidates.append((c.rewrite(edits), name))
-            other = c.statements[slot]
-            step = c.program.steps[slot]
-            if slot != i and isinstance(step, Burn) and step.vector is None \
-                    and not step.changes_plane and _speed_before(c, slot) < speed * (1 - 1e-3):
-                merged = with_goals(other, list(other.goals) + plane)
-                candidates.append((c.rewrite({i: remaining, slot: [merged]}),
-                                   step.name))
+        burns.append((i, c.program.steps[i].name, speed, _candidates(c, i, node, speed)))
+    every = list(dict.fromkeys(rw for *_, cands in burns for rw, _ in cands))
+    proven = dict(zip(every, c.prove_all(every, "plane-change-at-speed")))
+    for i, name, speed, cands in burns:
         slower = []
-        unique = list(dict.fromkeys(candidates))
-        for (_, carrier), proof in zip(unique, c.prove_all([rw for rw, _ in unique])):
+        for rw, carrier in cands:
+            proof = proven[rw]
             if proof is None:
                 continue
             row = next(r for r in proof.result.rows if r.name == carrier)
@@ -102,6 +73,44 @@ def plane_change_at_speed(c: Checker) -> list[Finding]:
     return out
 
 
+def _candidates(c: Checker, i: int, node, speed: float) -> list:
+    """The rewrites that fly burn ``i``'s plane change elsewhere in its block, each with
+    the name of the burn that carries it there."""
+    plane = c.pin_plane([g for g in node.goals if g.kind in PLANE_GOALS], i)
+    rest = [g for g in node.goals if g.kind not in PLANE_GOALS]
+    remaining = [with_goals(node, rest)] if rest else []
+    name = c.program.steps[i].name
+    mu = c.program.body.gm
+
+    def slow_enough(state) -> bool:
+        # the carrier flies on this orbit: no point of it is slower than its apoapsis
+        least = slowest_speed(mu, state.r[0], state.v[0])
+        if least is not None and least * 1000.0 >= speed * (1 - 1e-3):
+            c.budget.pruned += 1
+            return False
+        return True
+
+    candidates = []
+    for slot in _block_of(c, i):
+        sides = [after for after, state in ((False, c.state_before(slot)),
+                                            (True, c.state_after(slot)))
+                 if slow_enough(state)]
+        for kind in PLACES if sides else ():
+            line = with_where(with_goals(node, plane), kind)
+            for after in sides:
+                edits = {i: remaining if slot != i else []}
+                base = [c.statements[slot]] if slot != i else remaining
+                edits[slot] = (base + [line]) if after else ([line] + base)
+                candidates.append((c.rewrite(edits), name))
+        other = c.statements[slot]
+        step = c.program.steps[slot]
+        if slot != i and isinstance(step, Burn) and step.vector is None \
+                and not step.changes_plane and _speed_before(c, slot) < speed * (1 - 1e-3):
+            merged = with_goals(other, list(other.goals) + plane)
+            candidates.append((c.rewrite({i: remaining, slot: [merged]}), step.name))
+    return list(dict.fromkeys(candidates))
+
+
 @rule("costlier-node")
 def costlier_node(c: Checker) -> list[Finding]:
     """A burn or transfer at one node when the other node is cheaper.
@@ -110,25 +119,18 @@ def costlier_node(c: Checker) -> list[Finding]:
     node than at the other, and a plane change there costs less.  `at node` lets the
     compiler pick the cheaper one; this rule flags an explicit choice of the dearer.
     """
-    out = []
+    proposals = []
     other = {"ascending node": "descending node", "descending node": "ascending node"}
     for i, step in enumerate(c.program.steps):
         if not isinstance(step, (Burn, Transfer)) or step.place.kind not in other:
             continue
-        if c.budget.expired():
-            c.budget.cut("costlier-node")
-            break
         node = c.statements[i]
         moved = with_where(with_goals(node, c.pin_plane(node.goals, i)), other[step.place.kind])
-        text = c.rewrite({i: [moved]})
-        proof = c.prove(text)
-        if proof is None:
-            continue
-        out.append(c.finding(
+        proposals.append((c.rewrite({i: [moved]}), lambda proof, step=step: c.finding(
             "costlier-node", "warning", (step.name,),
             f"{step.name} flies at the {step.place.kind}; the {other[step.place.kind]} "
-            f"saves {saving_text(proof)}", proof))
-    return out
+            f"saves {saving_text(proof)}", proof)))
+    return c.findings_of("costlier-node", proposals)
 
 
 @rule("shared-plane-change")
@@ -141,14 +143,11 @@ def shared_plane_change(c: Checker) -> list[Finding]:
     split).  The rule folds a plane-change burn next to a transfer into it, and turns a
     raise-then-circularise pair of burns that carries a plane change into one transfer.
     """
-    out = []
+    pairs = []  # (transfer, burn, the rewrites that fold the burn into it)
     steps = c.program.steps
     for i, step in enumerate(steps):
         if not (isinstance(step, Transfer) and step.form == "hohmann"):
             continue
-        if c.budget.expired():
-            c.budget.cut("shared-plane-change")
-            return out
         for j in (i - 1, i + 1):
             if not 0 <= j < len(steps):
                 continue
@@ -159,30 +158,33 @@ def shared_plane_change(c: Checker) -> list[Finding]:
             tnode, pnode = c.statements[i], c.statements[j]
             goals = [g for g in tnode.goals if g.kind not in PLANE_GOALS]
             goals += c.pin_plane([g for g in pnode.goals if g.kind in PLANE_GOALS], (i, j))
-            texts = []
+            rewrites = []
             for where in ((tnode.where.kind if tnode.where else None),
                           (pnode.where.kind if pnode.where else None), "node"):
                 merged = with_where(with_goals(tnode, goals), where,
                                     pnode.where.angle if pnode.where else None)
-                texts.append(c.rewrite({i: [merged], j: []}))
-            proof = c.best(texts)
-            if proof is not None:
-                out.append(c.finding(
-                    "shared-plane-change", "warning", (step.name, other.name),
-                    f"sharing {other.name}'s plane change between the burns of {step.name} "
-                    f"saves {saving_text(proof)}", proof))
+                rewrites.append(c.rewrite({i: [merged], j: []}))
+            pairs.append((step, other, list(dict.fromkeys(rewrites))))
+    every = list(dict.fromkeys(rw for *_, rws in pairs for rw in rws))
+    proven = dict(zip(every, c.prove_all(every, "shared-plane-change")))
+    out = []
+    for step, other, rewrites in pairs:
+        proof = max((proven[rw] for rw in rewrites if proven[rw] is not None),
+                    key=lambda p: p.saves_kg, default=None)
+        if proof is not None:
+            out.append(c.finding(
+                "shared-plane-change", "warning", (step.name, other.name),
+                f"sharing {other.name}'s plane change between the burns of {step.name} "
+                f"saves {saving_text(proof)}", proof))
     out += _burn_pairs(c)
     return out
 
 
 def _burn_pairs(c: Checker) -> list[Finding]:
     """A raise (or lower) burn followed by a circularisation, one of them turning the plane."""
-    out = []
+    proposals = []
     steps = c.program.steps
     for i in range(len(steps) - 1):
-        if c.budget.expired():
-            c.budget.cut("shared-plane-change")
-            break
         a, b = steps[i], steps[i + 1]
         if not (isinstance(a, Burn) and isinstance(b, Burn)
                 and a.vector is None and b.vector is None):
@@ -200,12 +202,10 @@ def _burn_pairs(c: Checker) -> list[Finding]:
         shape_goal = next(g for g in na.goals if g.kind == far)
         circ = ast.Goal("circular", shape_goal.value, shape_goal.span)
         transfer = ast.Transfer(na.name, na.where, (circ, *plane), None, na.options, na.span)
-        proof = c.prove(c.rewrite({i: [transfer], i + 1: []}))
-        if proof is not None:
-            out.append(c.finding(
-                "shared-plane-change", "warning", (a.name, b.name),
-                f"{a.name} and {b.name} make a Hohmann transfer with the whole plane change "
-                f"in one burn; one transfer sharing it between both burns saves "
-                f"{saving_text(proof)}", proof,
-                notes=(f"the transfer's burns are reported as {a.name}/1 and {a.name}/2",)))
-    return out
+        proposals.append((c.rewrite({i: [transfer], i + 1: []}), lambda proof, a=a, b=b: c.finding(
+            "shared-plane-change", "warning", (a.name, b.name),
+            f"{a.name} and {b.name} make a Hohmann transfer with the whole plane change "
+            f"in one burn; one transfer sharing it between both burns saves "
+            f"{saving_text(proof)}", proof,
+            notes=(f"the transfer's burns are reported as {a.name}/1 and {a.name}/2",))))
+    return c.findings_of("shared-plane-change", proposals)

@@ -185,19 +185,17 @@ def hohmann_cheaper(c: Checker) -> list[Finding]:
     between 11.9 and 15.6 it pays only with a far enough intermediate apoapsis.  The rule
     prices the same transfer without `via` and reports the saving.
     """
-    out = []
+    proposals = []
     for i, step in enumerate(c.program.steps):
         if not (isinstance(step, Transfer) and step.form == "bielliptic"):
             continue
         node = c.statements[i]
         hohmann = replace(node, via=None, goals=tuple(c.pin_plane(node.goals, i)))
-        proof = c.prove(c.rewrite({i: [hohmann]}))
-        if proof is not None:
-            out.append(c.finding(
-                "hohmann-cheaper", "warning", (step.name,),
-                f"{step.name} as a Hohmann transfer (without `via`) saves "
-                f"{saving_text(proof)}", proof))
-    return out
+        proposals.append((c.rewrite({i: [hohmann]}), lambda proof, step=step: c.finding(
+            "hohmann-cheaper", "warning", (step.name,),
+            f"{step.name} as a Hohmann transfer (without `via`) saves "
+            f"{saving_text(proof)}", proof)))
+    return c.findings_of("hohmann-cheaper", proposals)
 
 
 def _with_via(node: ast.Transfer, alt_km: float):
