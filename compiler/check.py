@@ -13,6 +13,7 @@ import difflib
 import re
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field, fields, is_dataclass, replace
+from functools import cached_property
 
 import numpy as np
 from apsidal.lang import syntax as ast
@@ -21,7 +22,7 @@ from apsidal.lang.errors import PlanError
 from .budget import budget
 from .evaluate import Batch, Result, apply, carry, context_for, run, start_batch
 from .load import load_text
-from .lower import lower
+from .lower import Lowerer, lower
 from .proofs import Node, Walk, add
 from .state import elements_from_state
 from .steps import Expect, Program
@@ -92,10 +93,15 @@ class Budget:
 class Proof:
     text: str | None  # None until reported (``Checker.finding`` writes it)
     program: Program
-    result: Result
+    final: Batch
+    rows: Callable[[], list]  # the priced rows, put together when first asked for
     saves_m_s: float
     saves_kg: float
     rewrite: Rewrite | None = None
+
+    @cached_property
+    def result(self) -> Result:
+        return Result(program=self.program, rows=self.rows(), final=self.final)
 
 
 @dataclass(frozen=True)
@@ -155,6 +161,8 @@ class Checker:
                                  default=-1)
         self._lines = [self.statement_text(k) for k in range(len(self.statements))]
         self._own = {id(node): k for k, node in enumerate(self.statements)}
+        self._lowerer = Lowerer(self.program.plan)  # to lower rewritten steps in place
+        self._lowerer.lower()
 
     @property
     def text(self) -> str:
@@ -259,8 +267,9 @@ class Checker:
 
     def program_of(self, rewrite: Rewrite | str) -> Program | None:
         """The lowered plan of a rewrite, or None if it does not lower (a proposal that
-        is not a valid plan proves nothing).  Nodes are lowered as they stand; text is
-        parsed."""
+        is not a valid plan proves nothing).  Nodes are lowered as they stand, only the
+        edited stretch of the plan where default names allow (``Lowerer.splice``); text
+        is parsed."""
         try:
             if isinstance(rewrite, str) or rewrite.textual:
                 return load_text(self.text_of(rewrite), self.program.source.path)
@@ -272,7 +281,12 @@ class Checker:
                     continue
                 statements.extend(edits.get(k, (st,)))
                 k += 1
-            return lower(replace(self.program.plan, statements=tuple(statements)))
+            plan = replace(self.program.plan, statements=tuple(statements))
+            window = [x for k in range(rewrite.first, rewrite.last + 1)
+                      for x in edits.get(k, (self.statements[k],))]
+            spliced = self._lowerer.splice(self.program, rewrite.first, rewrite.last, window,
+                                           plan)
+            return spliced if spliced is not None else lower(plan)
         except PlanError:
             return None
 
@@ -432,8 +446,8 @@ class Checker:
         if saves_kg <= 1e-6 or saves_dv < -1e-6:
             return None
         text = rewrite if isinstance(rewrite, str) else None
-        return Proof(text, program, Result(program=program, rows=rows(), final=final),
-                     saves_dv, saves_kg, None if text is not None else rewrite)
+        return Proof(text, program, final, rows, saves_dv, saves_kg,
+                     None if text is not None else rewrite)
 
     def confirm(self, proof: Proof) -> None:
         """Write a proof's text, parse it back and check it lowers to the plan that was

@@ -7,6 +7,7 @@ at the offending node, with what would work.
 
 from __future__ import annotations
 
+import copy
 from dataclasses import replace
 
 import numpy as np
@@ -125,7 +126,13 @@ class Lowerer:
             raise _err("the plan has no start orbit", top,
                        "add a line such as `start circular 400 km inclination 51.6 deg`")
         r, v = self._start_state(self.start)
-        steps = tuple(self._step(s) for s in steps_ast)
+        steps = []
+        self.counts_before: list[dict[str, int]] = []  # default-name counts before each step
+        for node in steps_ast:
+            self.counts_before.append(dict(self.counts))
+            steps.append(self._step(node))
+        self.counts_before.append(dict(self.counts))
+        steps = tuple(steps)
         ceiling = None
         if self.ceiling is not None:
             given = self.ceiling.value.internal()
@@ -139,6 +146,30 @@ class Lowerer:
                            "equatorial radius, `ceiling radius 7400 km` is from the centre")
         return Program(self.title, self.body, self.craft, self.margin, self.reserve, r, v,
                        steps, self.plan.source, self.plan, self.start.span, ceiling)
+
+    def splice(self, program: Program, first: int, last: int, nodes, plan: ast.Plan
+               ) -> Program | None:
+        """``program`` (lowered by this Lowerer) with its steps ``first`` to ``last``
+        replaced by the step statements ``nodes`` lowered in their place.
+
+        Default names count on from the steps before, as a whole lowering would count
+        them; None when the later steps' default names would move (lower the whole plan
+        then).  Raises PlanError as ``lower`` does, a name used twice included.
+        """
+        again = copy.copy(self)
+        again.counts = dict(self.counts_before[first])
+        again.names = {}
+        new = tuple(again._step(node) for node in nodes)
+        if again.counts != self.counts_before[last + 1]:
+            return None
+        kept = program.steps[:first] + program.steps[last + 1:]
+        outside = {st.name for st in kept}
+        for node, st in zip(nodes, new):
+            if st.name in outside:
+                raise _err(f"step name `{st.name}` is used twice", node.name or node,
+                           "names must be unique because `diff` matches steps by name")
+        return replace(program, steps=program.steps[:first] + new + program.steps[last + 1:],
+                       plan=plan)
 
     def _statement(self, st) -> None:
         if isinstance(st, ast.PlanTitle):

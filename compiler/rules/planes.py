@@ -54,18 +54,15 @@ def plane_change_at_speed(c: Checker) -> list[Finding]:
     every = list(dict.fromkeys(rw for *_, cands in burns for rw, _ in cands))
     proven = dict(zip(every, c.prove_all(every, "plane-change-at-speed")))
     for i, name, speed, cands in burns:
-        slower = []
-        for rw, carrier in cands:
-            proof = proven[rw]
-            if proof is None:
-                continue
-            row = next(r for r in proof.result.rows if r.name == carrier)
+        proofs = sorted(((proven[rw], carrier) for rw, carrier in cands
+                         if proven[rw] is not None), key=lambda p: -p[0].saves_kg)
+        for proof, carrier in proofs:  # the cheapest that is really slower, not the same
+            row = next(r for r in proof.result.rows if r.name == carrier)  # point merged
             new_speed = float(np.linalg.norm(row.v_before[0])) * 1000.0
-            if new_speed < speed * (1 - 1e-3):  # really slower, not the same point merged
-                slower.append((proof, new_speed))
-        if not slower:
+            if new_speed < speed * (1 - 1e-3):
+                break
+        else:
             continue
-        proof, new_speed = max(slower, key=lambda p: p[0].saves_kg)
         out.append(c.finding(
             "plane-change-at-speed", "warning", (name,),
             f"{name} turns the plane at {speed:.0f} m/s; flown where the craft moves at "
