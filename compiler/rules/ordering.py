@@ -51,7 +51,7 @@ def cheaper_order(c: Checker) -> list[Finding]:
     change flown in a low
     orbit before the apoapsis is raised, where the craft is fastest.
     """
-    out = []
+    out, proposals = [], []
     for block in blocks(c.program):
         if c.budget.expired():
             c.budget.cut("cheaper-order")
@@ -73,15 +73,13 @@ def cheaper_order(c: Checker) -> list[Finding]:
                     f"{', ...' if len(names) > 4 else ''} ({len(block)} steps) found", None,
                     notes=(scope,)))
             continue
-        proof = c.prove(pinned.reorder(block, res.best.order))
-        if proof is None:
-            continue
         new = [c.program.steps[i].name for i in res.best.order]
-        out.append(c.finding(
-            "cheaper-order", "warning", names,
-            f"flying {', '.join(names)} as {', '.join(new)} saves {saving_text(proof)}",
-            proof, notes=(scope,)))
-    return out
+        proposals.append((pinned.reorder(block, res.best.order),
+                          lambda proof, names=names, new=new, scope=scope: c.finding(
+                              "cheaper-order", "warning", names,
+                              f"flying {', '.join(names)} as {', '.join(new)} saves "
+                              f"{saving_text(proof)}", proof, notes=(scope,))))
+    return out + c.findings_of("cheaper-order", proposals)
 
 
 def _scope(res) -> str:
