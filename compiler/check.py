@@ -161,6 +161,8 @@ class Checker:
                                  default=-1)
         self._lines = [self.statement_text(k) for k in range(len(self.statements))]
         self._own = {id(node): k for k, node in enumerate(self.statements)}
+        # the plan without its steps: what a rewritten statement is read back after
+        self._settings = self.text_of(self.rewrite({k: [] for k in range(len(self.statements))}))
         self._lowerer = Lowerer(self.program.plan)  # to lower rewritten steps in place
         self._lowerer.lower()
 
@@ -450,19 +452,34 @@ class Checker:
                      None if text is not None else rewrite)
 
     def confirm(self, proof: Proof) -> None:
-        """Write a proof's text, parse it back and check it lowers to the plan that was
-        priced (same steps, craft and settings); a rewrite that does not read back as
-        itself is a bug in apsidal, never a finding."""
+        """Write a proof's text, and check that its new statements read back as what was
+        priced: their lines, parsed after the plan's own settings, lower to the same
+        steps (names aside where a default name is given); a rewrite that does not read
+        back as itself is a bug in apsidal, never a finding."""
         if proof.text is not None:
             return
-        text = self.text_of(proof.rewrite)
+        rewrite = proof.rewrite
+        new, offset = [], 0
+        for index, lines in rewrite.edits:
+            new += [(x, index + offset + m) for m, x in enumerate(lines)
+                    if id(x) not in self._own]
+            offset += len(lines) - 1
+        proof.text = self.text_of(rewrite)
+        if not new:
+            return
+        lines = "\n".join(self.unparse(x) for x, _ in new)
         try:
-            program = load_text(text, self.program.source.path)
+            program = load_text(self._settings + "\n" + lines + "\n", self.program.source.path)
         except PlanError as exc:
-            raise RuntimeError(f"a rewritten plan does not parse back: {exc.message}") from exc
-        if _plain(_essence(program)) != _plain(_essence(proof.program)):
-            raise RuntimeError("a rewritten plan does not read back as the plan priced")
-        proof.text = text
+            raise RuntimeError(f"a rewritten statement does not parse back: {exc.message}\n"
+                               f"{lines}") from exc
+        for (node, index), read in zip(new, program.steps):
+            priced = proof.program.steps[index]
+            if node.name is None:
+                read, priced = replace(read, name=""), replace(priced, name="")
+            if _plain(read) != _plain(priced):
+                raise RuntimeError(f"a rewritten statement does not read back as the step "
+                                   f"priced:\n{self.unparse(node)}")
 
     def findings_of(self, rule: str, proposals: list) -> list[Finding]:
         """Findings from (rewrite, report) proposals, all priced in one walk
@@ -485,12 +502,6 @@ class Checker:
             n=1))
         return Finding(rule, severity, tuple(steps), message, proof.saves_m_s, proof.saves_kg,
                        proof.text, diff, tuple(notes))
-
-
-def _essence(program: Program) -> tuple:
-    """What a plan flies: its steps, craft and settings (not where its text stands)."""
-    return (program.steps, program.craft, program.margin, program.reserve, program.body,
-            program.ceiling, tuple(program.start_r), tuple(program.start_v))
 
 
 def _plain(x):

@@ -284,3 +284,20 @@ def test_the_proof_walk_prices_every_rewrite_as_its_text_priced_alone(sets):
         assert (proof is None) == (alone is None)
         if proof is not None:
             assert math.isclose(proof.saves_kg, alone.saves_kg, rel_tol=1e-9, abs_tol=1e-9)
+
+
+def test_a_rewrite_that_does_not_read_back_as_priced_is_an_internal_error(monkeypatch):
+    # the reported text is parsed back; a statement written differently from the node
+    # that was priced must stop `check` (a bug in apsidal), never become a finding
+    import pytest
+    from apsidal.compiler.check import check_program
+
+    text = HEAD + ("burn up at periapsis: apoapsis to 9000 km\n"
+                   "burn tilt at periapsis: inclination to 20 deg\n")
+    program = load_text(text, "r.aps")
+    assert any(f.suggestion for f in check_program(program))
+    real = Checker.unparse
+    monkeypatch.setattr(Checker, "unparse",
+                        staticmethod(lambda node: real(node).replace("9000", "9001")))
+    with pytest.raises(RuntimeError, match="does not read back"):
+        check_program(program)

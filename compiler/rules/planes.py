@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 from apsidal.lang import syntax as ast
 
@@ -11,7 +13,8 @@ from ..steps import Burn, Transfer
 from .bounds import slowest_speed
 
 PLANE_GOALS = ("inclination", "raan")
-PLACES = ("apoapsis", "node", "ascending node", "descending node", "periapsis")
+PLACES = ("apoapsis", "node", "periapsis")
+POINTS = 4  # the slowest points of a block a plane change is tried at (and carriers)
 
 
 def _plane_burns(c: Checker):
@@ -45,12 +48,16 @@ def plane_change_at_speed(c: Checker) -> list[Finding]:
     """
     out = []
     burns = []  # (index, name, speed before, candidates: (rewrite, carrier name))
+    bounded = []  # names of the burns with more slower points than were tried
     for i, node in _plane_burns(c):
         if c.budget.expired():
             c.budget.cut("plane-change-at-speed")
             break
         speed = _speed_before(c, i)
-        burns.append((i, c.program.steps[i].name, speed, _candidates(c, i, node, speed)))
+        cands, slower, tried = _candidates(c, i, node, speed)
+        burns.append((i, c.program.steps[i].name, speed, cands))
+        if tried < slower:
+            bounded.append(c.program.steps[i].name)
     every = list(dict.fromkeys(rw for *_, cands in burns for rw, _ in cands))
     proven = dict(zip(every, c.prove_all(every, "plane-change-at-speed")))
     for i, name, speed, cands in burns:
@@ -66,46 +73,73 @@ def plane_change_at_speed(c: Checker) -> list[Finding]:
         out.append(c.finding(
             "plane-change-at-speed", "warning", (name,),
             f"{name} turns the plane at {speed:.0f} m/s; flown where the craft moves at "
-            f"{new_speed:.0f} m/s it saves {saving_text(proof)}", proof))
+            f"{new_speed:.0f} m/s it saves {saving_text(proof)}", proof,
+            notes=_bounded_note() if name in bounded else ()))
+    if bounded:
+        shown = ", ".join(bounded[:4]) + (", ..." if len(bounded) > 4 else "")
+        out.append(c.finding(
+            "plane-change-at-speed", "info", tuple(bounded),
+            f"bounded search: {len(bounded)} plane change(s) ({shown}) were tried only at "
+            f"the {POINTS} slowest points of their block and folded only into its {POINTS} "
+            "slowest burns; a place not tried may be cheaper", None))
     return out
 
 
-def _candidates(c: Checker, i: int, node, speed: float) -> list:
+def _bounded_note() -> tuple[str]:
+    return ((f"tried at the {POINTS} slowest points of its block and folded into the "
+            f"{POINTS} slowest burns there; a slower place may save more"),)
+
+
+def _candidates(c: Checker, i: int, node, speed: float) -> tuple[list, int, int]:
     """The rewrites that fly burn ``i``'s plane change elsewhere in its block, each with
-    the name of the burn that carries it there."""
+    the name of the burn that carries it there; and how many points of the block were
+    slower than the burn and how many of them were tried (the ``POINTS`` slowest).
+
+    A point is a place between two steps of the block (or after its last): the turn goes
+    in there as a burn of its own at apoapsis, at the cheaper node or at periapsis
+    (`at node` prices both nodes and flies the cheaper, so the nodes named one by one
+    cannot beat it), or is folded into another goal burn of the block that flies slower.
+    """
     plane = c.pin_plane([g for g in node.goals if g.kind in PLANE_GOALS], i)
     rest = [g for g in node.goals if g.kind not in PLANE_GOALS]
     remaining = [with_goals(node, rest)] if rest else []
     name = c.program.steps[i].name
     mu = c.program.body.gm
-
-    def slow_enough(state) -> bool:
+    block = _block_of(c, i)
+    points = []  # (least speed on the orbit there, distance from i, slot, after it)
+    for slot, after in [(k, False) for k in block] + [(block[-1], True)]:
+        state = c.state_after(slot) if after else c.state_before(slot)
         # the carrier flies on this orbit: no point of it is slower than its apoapsis
         least = slowest_speed(mu, state.r[0], state.v[0])
         if least is not None and least * 1000.0 >= speed * (1 - 1e-3):
             c.budget.pruned += 1
-            return False
-        return True
-
+            continue
+        points.append((math.inf if least is None else least, abs(slot + after - i), slot,
+                       after))
+    points.sort()
     candidates = []
-    for slot in _block_of(c, i):
-        sides = [after for after, state in ((False, c.state_before(slot)),
-                                            (True, c.state_after(slot)))
-                 if slow_enough(state)]
-        for kind in PLACES if sides else ():
+    for _, _, slot, after in points[:POINTS]:
+        for kind in PLACES:
             line = with_where(with_goals(node, plane), kind)
-            for after in sides:
-                edits = {i: remaining if slot != i else []}
-                base = [c.statements[slot]] if slot != i else remaining
-                edits[slot] = (base + [line]) if after else ([line] + base)
-                candidates.append((c.rewrite(edits), name))
-        other = c.statements[slot]
+            edits = {i: remaining if slot != i else []}
+            base = [c.statements[slot]] if slot != i else remaining
+            edits[slot] = (base + [line]) if after else ([line] + base)
+            candidates.append((c.rewrite(edits), name))
+    carriers = []
+    for slot in block:
         step = c.program.steps[slot]
         if slot != i and isinstance(step, Burn) and step.vector is None \
-                and not step.changes_plane and _speed_before(c, slot) < speed * (1 - 1e-3):
-            merged = with_goals(other, list(other.goals) + plane)
-            candidates.append((c.rewrite({i: remaining, slot: [merged]}), step.name))
-    return list(dict.fromkeys(candidates))
+                and not step.changes_plane:
+            there = _speed_before(c, slot)
+            if there < speed * (1 - 1e-3):
+                carriers.append((there, abs(slot - i), slot))
+    for _, _, slot in sorted(carriers)[:POINTS]:
+        other = c.statements[slot]
+        merged = with_goals(other, list(other.goals) + plane)
+        candidates.append((c.rewrite({i: remaining, slot: [merged]}),
+                           c.program.steps[slot].name))
+    return (list(dict.fromkeys(candidates)), len(points) + len(carriers),
+            min(len(points), POINTS) + min(len(carriers), POINTS))
 
 
 @rule("costlier-node")
