@@ -35,6 +35,7 @@ from .state import (
     frame,
     local_frame,
     norm,
+    periapsis_radius,
     signed_angle,
     unit,
 )
@@ -180,9 +181,10 @@ def context_for(program: Program) -> Context:
 # --- getting somewhere -------------------------------------------------------------
 
 
-def _target_angle(place: Place, r, v, mu, fails: Failures):
-    """Sweep angle ahead to ``place``; zero where the place is here."""
-    f = frame(r, v, mu)
+def _target_angle(place: Place, r, v, mu, fails: Failures, f=None):
+    """Sweep angle ahead to ``place``; zero where the place is here (``f``: the orbit's
+    ``frame`` if already at hand)."""
+    f = frame(r, v, mu) if f is None else f
     ecc = norm(f.e_vec)
     equatorial = np.hypot(f.h[:, 0], f.h[:, 1]) <= np.sin(EQUATORIAL_RAD)
     circular = ecc < CIRCULAR_ECC
@@ -228,12 +230,13 @@ def goto(place: Place, r, v, mu, fails: Failures, sweep=None):
     """
     if place.kind == "here":
         return r, v, np.zeros(r.shape[0])
+    f = frame(r, v, mu)  # shared by the three below
     if place.kind == "crossing":  # exact geometry: no snapping of small angles to here
         d = np.where(sweep > TWO_PI - 1e-15, 0.0, sweep)
     else:
-        d = _target_angle(place, r, v, mu, fails)
-    dt, ok_t = kepler.time_of_flight(r, v, mu, d)
-    r1, v1, ok_p = kepler.place(r, v, mu, d)
+        d = _target_angle(place, r, v, mu, fails, f)
+    dt, ok_t = kepler.time_of_flight(r, v, mu, d, f)
+    r1, v1, ok_p = kepler.place(r, v, mu, d, f)
     fails.add(~(ok_t & ok_p), lambda i: (
         f"the craft never reaches {place.label()} on this open orbit",
         "burn here or at a point ahead of the craft"))
@@ -416,12 +419,12 @@ def _propellant(batch: Batch, dvm, engine: EngineSpec):
 
 def _check_surface(r, v, ctx: Context, fails: Failures, name: str):
     """A conic whose periapsis is under the surface hits the body (if it gets there)."""
-    el = elements_from_state(r, v, ctx.mu)
+    periapsis, closed = periapsis_radius(r, v, ctx.mu)
     inbound = dot(r, v) < 0
-    reaches = el.closed | inbound
-    low = reaches & (el.periapsis < ctx.radius)
+    reaches = closed | inbound
+    low = reaches & (periapsis < ctx.radius)
     fails.add(low, lambda i: (
-        (f"the periapsis falls to {el.periapsis[i] - ctx.radius:.3f} km altitude, under the "
+        (f"the periapsis falls to {periapsis[i] - ctx.radius:.3f} km altitude, under the "
         f"surface (the body's radius is {ctx.radius:.3f} km)"),
         ("raise the periapsis, or check the goal's altitude (altitudes are above the "
         "equatorial radius; `radius X` gives a radius)")))

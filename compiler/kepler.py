@@ -214,9 +214,10 @@ def sweep_for_time(r: np.ndarray, v: np.ndarray, mu: float, dt: np.ndarray):
 # --- a coast to a place --------------------------------------------------------------
 
 
-def _sweep(r: np.ndarray, v: np.ndarray, mu: float, dtheta: np.ndarray):
-    """Unit vectors and radius after sweeping ``dtheta``, and where that is possible."""
-    f = frame(r, v, mu)
+def _sweep(r: np.ndarray, v: np.ndarray, mu: float, dtheta: np.ndarray, f=None):
+    """Unit vectors and radius after sweeping ``dtheta``, and where that is possible
+    (``f``: the orbit's ``frame`` if already at hand)."""
+    f = frame(r, v, mu) if f is None else f
     hmag = norm(cross(r, v))
     p = hmag**2 / mu
     r0hat = unit(r)
@@ -231,13 +232,14 @@ def _sweep(r: np.ndarray, v: np.ndarray, mu: float, dtheta: np.ndarray):
     return f, hmag, r1hat, t1hat, r1, ok
 
 
-def place(r: np.ndarray, v: np.ndarray, mu: float, dtheta: np.ndarray):
-    """State after sweeping ``dtheta`` (rad, >= 0) along the conic through (r, v).
+def place(r: np.ndarray, v: np.ndarray, mu: float, dtheta: np.ndarray, f=None):
+    """State after sweeping ``dtheta`` (rad, >= 0) along the conic through (r, v)
+    (``f``: its ``frame`` if already at hand).
 
     Returns (r1, v1, ok); ok is False where the sweep would pass a hyperbola's asymptote.
     """
     dtheta = np.asarray(dtheta, dtype=float) * np.ones(r.shape[:-1])
-    f, hmag, r1hat, t1hat, r1, ok = _sweep(r, v, mu, dtheta)
+    f, hmag, r1hat, t1hat, r1, ok = _sweep(r, v, mu, dtheta, f)
     ok &= _reachable(r, v, mu, dtheta, f)
     vr = -(mu / hmag) * dot(f.e_vec, t1hat)
     vt = hmag / r1
@@ -254,14 +256,15 @@ def _reachable(r, v, mu, dtheta, f) -> np.ndarray:
     return ~opened | (start + dtheta < limit - 1e-12)
 
 
-def time_of_flight(r: np.ndarray, v: np.ndarray, mu: float, dtheta: np.ndarray):
-    """Time to sweep ``dtheta`` (rad, >= 0) from (r, v); returns (dt, ok)."""
+def time_of_flight(r: np.ndarray, v: np.ndarray, mu: float, dtheta: np.ndarray, f=None):
+    """Time to sweep ``dtheta`` (rad, >= 0) from (r, v); returns (dt, ok) (``f``: the
+    orbit's ``frame`` if already at hand)."""
     r0, sigma0, alpha, hmag, p, sqmu = _elements(r, v, mu)
     dtheta = np.asarray(dtheta, dtype=float) * np.ones_like(r0)
     closed = alpha > 0
     revs = np.where(closed, np.floor(dtheta / TWO_PI), 0.0)
     part = dtheta - revs * TWO_PI
-    f, _, _, _, r1, ok = _sweep(r, v, mu, part)
+    f, _, _, _, r1, ok = _sweep(r, v, mu, part, f)
     ok &= _reachable(r, v, mu, dtheta, f) & (closed | (dtheta < TWO_PI))
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         # Lagrange's f and g from the geometry: 1 - f = (r1 / p)(1 - cos dtheta)

@@ -34,13 +34,25 @@ Z = np.array([0.0, 0.0, 1.0])
 X = np.array([1.0, 0.0, 0.0])
 
 
+LEVI_CIVITA = np.zeros((3, 3, 3))
+LEVI_CIVITA[0, 1, 2] = LEVI_CIVITA[1, 2, 0] = LEVI_CIVITA[2, 0, 1] = 1.0
+LEVI_CIVITA[0, 2, 1] = LEVI_CIVITA[2, 1, 0] = LEVI_CIVITA[1, 0, 2] = -1.0
+SMALL = 8  # batches up to this size take one einsum call (numpy's per-call cost rules)
+
+
 def cross(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """``np.cross`` over the last axis of length 3, written out: the same products,
-    without the axis juggling that makes ``np.cross`` slow on small batches.
+    """``np.cross`` over the last axis of length 3, without the axis juggling that
+    makes ``np.cross`` slow on small batches: one einsum with the Levi-Civita symbol
+    for a few vectors, the products written out for many.
 
     >>> cross(np.array([[1.0, 0, 0]]), np.array([[0, 1.0, 0]])).tolist()
     [[0.0, 0.0, 1.0]]
+    >>> big = np.tile([[0.0, 1.0, 0]], (20, 1))
+    >>> cross(big, np.tile([[0.0, 0, 1.0]], (20, 1)))[19].tolist()
+    [1.0, 0.0, 0.0]
     """
+    if a.ndim == 2 and a.shape[0] <= SMALL and a.shape == b.shape:
+        return np.einsum("ijk,...j,...k->...i", LEVI_CIVITA, a, b)
     if a.shape != b.shape:
         a, b = np.broadcast_arrays(a, b)
     a0, a1, a2 = a[..., 0], a[..., 1], a[..., 2]
@@ -133,6 +145,23 @@ def frame(r: np.ndarray, v: np.ndarray, mu: float | np.ndarray) -> Frame:
     circular = norm(e_vec) < CIRCULAR_ECC
     periapsis = np.where(circular[..., None], node, unit(e_vec))
     return Frame(h=h, node=node, periapsis=periapsis, e_vec=e_vec)
+
+
+def periapsis_radius(r: np.ndarray, v: np.ndarray, mu: float) -> tuple[np.ndarray, np.ndarray]:
+    """The periapsis radius of the conic through (r, v), and whether it is closed:
+    p / (1 + e) from the angular momentum and the energy alone (the cheap part of
+    ``elements_from_state``).
+
+    >>> r, v = np.array([[7000.0, 0, 0]]), np.array([[0, 8.0, 0]])
+    >>> el = elements_from_state(r, v, 398600.4418)
+    >>> bool(np.isclose(periapsis_radius(r, v, 398600.4418)[0][0], el.periapsis[0]))
+    True
+    """
+    h = cross(r, v)
+    h2 = dot(h, h)
+    energy = 0.5 * dot(v, v) - mu / norm(r)
+    ecc = np.sqrt(np.maximum(1.0 + 2.0 * energy * h2 / (mu * mu), 0.0))
+    return h2 / mu / (1.0 + ecc), ecc < 1.0
 
 
 def elements_from_state(r: np.ndarray, v: np.ndarray, mu: float) -> Elements:
