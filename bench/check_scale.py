@@ -6,6 +6,8 @@ plan of 200 goal steps that is a single reorder block.  For each it prints the w
 time and peak memory (resident set, each plan checked in a fresh process) of `run` and
 of `check`, and their ratio, both measured in this run on this machine.
 
+Part zero: pricing each sample plan in-process (the chain alone, median of rounds).
+
 Part two: the reorder search alone on blocks of 8 to 12 movable steps, with the
 orderings considered, pruned and priced and whether the optimum is proven.
 
@@ -144,6 +146,29 @@ def part_one(sizes, limit: float) -> None:
               f"{', '.join(got['cut_short']) or '-'}")
 
 
+def part_zero(rounds: int = 200) -> None:
+    """Pricing each sample plan in-process (parsed and lowered once): the chain alone."""
+    from pathlib import Path
+
+    from apsidal.compiler.evaluate import run
+    from apsidal.compiler.load import load_text
+
+    print("pricing one sample plan in-process (median of rounds, parsed once)")
+    print(f"{'sample':>20} {'steps':>6} {'price':>9}")
+    root = Path(__file__).resolve().parent.parent / "samples"
+    for path in sorted(root.glob("*.aps")):
+        program = load_text(path.read_text(), str(path))
+        run(program)
+        times = []
+        for _ in range(rounds):
+            t0 = time.perf_counter()
+            run(program)
+            times.append(time.perf_counter() - t0)
+        times.sort()
+        print(f"{path.stem:>20} {len(program.steps):>6} {times[len(times) // 2] * 1e3:>7.2f}ms")
+    print()
+
+
 def part_two(lo: int, hi: int) -> None:
     from apsidal.compiler.load import load_text
     from apsidal.compiler.reorder import search_block
@@ -174,6 +199,7 @@ def main() -> None:
                     help="check's own time budget per plan, s (default 600: no cut)")
     ap.add_argument("--skip-plans", action="store_true")
     args = ap.parse_args()
+    part_zero()
     if not args.skip_plans:
         part_one([int(s) for s in args.sizes.split(",") if s], args.time_limit)
     lo, hi = (int(x) for x in args.blocks.split("-"))

@@ -1,10 +1,12 @@
 """`apsidal check`: expectations, lint rules and the proof behind every claimed saving.
 
-A rule proposes rewritten plans; it never states a saving of its own.  ``Checker.prove``
-parses the rewritten text, lowers it, prices it with the same evaluator as the original,
-and keeps the proposal only if it flies, meets every expectation, reaches the same final
-orbit (size, shape, plane; orientation too when an expectation names raan or argp) and
-costs less.  The saving in the finding is the difference of the two priced plans.
+A rule proposes rewritten plans (``Rewrite``: statements replaced by statements); it
+never states a saving of its own.  ``Checker.prove_all`` lowers the rewrites, prices them
+with the same evaluator as the original (in one walk, ``proofs.Walk``), and keeps a
+proposal only if it flies, meets every expectation, reaches the same final orbit (size,
+shape, plane; orientation too when an expectation names raan or argp) and costs less.
+The saving in the finding is the difference of the two priced plans; the text of a
+reported rewrite is written then and read back (``Checker.confirm``).
 """
 
 from __future__ import annotations

@@ -655,3 +655,41 @@ def test_two_vector_burns_at_one_point_merge_into_their_summed_vector():
     before, after = reprice(text)["totals"], reprice(f.suggestion)["totals"]
     assert before["dv_m_s"] - after["dv_m_s"] == pytest.approx(f.saves_m_s, abs=1e-6)
     assert "along" in f.suggestion and "radial" in f.suggestion
+
+
+STAIRS = plan("""start circular 300 km inclination 28.5 deg
+burn tilt at node: inclination to 20 deg
+burn up1 at periapsis: apoapsis to 2000 km
+burn c1 at apoapsis: circular
+burn up2 at periapsis: apoapsis to 5000 km
+burn c2 at apoapsis: circular
+burn up3 at periapsis: apoapsis to 9000 km
+burn c3 at apoapsis: circular
+burn up4 at periapsis: apoapsis to 14000 km
+burn c4 at apoapsis: circular
+""")
+
+
+def test_plane_change_at_speed_says_when_it_tried_only_the_slowest_points():
+    # eight points of the block are slower than the 300 km orbit: the rule tries the
+    # four slowest and says so; the slowest (the 14000 km apoapsis, reached last) is
+    # among them, and the rewrite it reports re-prices from its text
+    found = findings(STAIRS, "plane-change-at-speed")
+    info = [f for f in found if f.severity == "info"]
+    warn = [f for f in found if f.severity == "warning"]
+    assert len(info) == 1 and info[0].steps == ("tilt",) and "bounded search" in info[0].message
+    assert len(warn) == 1 and any("slowest points" in n for n in warn[0].notes)
+    lines = [ln for ln in warn[0].suggestion.splitlines() if ln.startswith("burn")]
+    old, new = reprice(STAIRS), reprice(warn[0].suggestion)
+    claimed = old["totals"]["dv_with_margin_m_s"] - new["totals"]["dv_with_margin_m_s"]
+    assert claimed == pytest.approx(warn[0].saves_m_s, abs=1e-6)
+    # the hand calculation (common practice: 2 v sin(di/2) for the pure turn at 300 km,
+    # the cosine rule for the turn folded into the last circularisation, which without
+    # it costs vc - va): the slowest point of the block carries the turn
+    turn = math.radians(8.5)
+    va, vc = vapo(9000, 14000), vcirc(14000)
+    before = 2 * vcirc(300) * math.sin(turn / 2) + (vc - va)
+    after = math.sqrt(va**2 + vc**2 - 2 * va * vc * math.cos(turn))
+    assert "burn c4 at apoapsis: circular, inclination to 20 deg" in lines[-1]
+    saved = (before - after) * 1000.0
+    assert math.isclose(warn[0].saves_m_s, saved, rel_tol=1e-6)

@@ -42,9 +42,12 @@ def plane_change_at_speed(c: Checker) -> list[Finding]:
 
     Turning the velocity through an angle costs 2 v sin(di/2): in proportion to the
     speed.  The same turn at apoapsis, or at a higher orbit the plan reaches anyway, is
-    cheaper.  The rule tries the plane change at every other place of its block (each
-    apsis and node, before or after each other step, or folded into another burn there)
-    and reports the cheapest rewrite that reaches the same orbit.
+    cheaper.  The rule tries the plane change between the steps of its block where the
+    orbit has a slower point (at apoapsis, at the cheaper node and at periapsis), and
+    folded into another goal burn of the block that flies slower, and reports the
+    cheapest rewrite that reaches the same orbit.  It tries the 4 slowest such points
+    and the 4 slowest such burns; when the block has more, the finding says the search
+    was bounded.
     """
     out = []
     burns = []  # (index, name, speed before, candidates: (rewrite, carrier name))
