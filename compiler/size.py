@@ -59,8 +59,16 @@ def size_chain(burns, drops, dry: float, reserve: float, ve0: float,
     return _size(seq, dry, reserve, ve0, residual_kg, residual_share, load)
 
 
+LOG_RATIO_MAX = 700.0  # a mass ratio past e^700 is past any load (and a float's range)
+
+
 def _size(seq, dry, reserve, ve0, residual_kg, residual_share, load) -> Sizing:
     # m0 = G * (dry_end + residual) + sum(d_j * G_j), walking back from the end
+    log_ratio = reserve / ve0 + sum(value / ve for kind, value, ve in seq if kind == "burn")
+    if log_ratio > LOG_RATIO_MAX:
+        return Sizing(None, None, (f"its mass ratio is e^{log_ratio:.6g} (the sum of delta-v "
+                                   "over exhaust speed, reserve included), beyond any load "
+                                   "of propellant; check the engines' specific impulse"))
     G = math.exp(reserve / ve0)
     tail = 0.0  # the drops' part, already multiplied by the burns after them... backwards
     dropped = 0.0

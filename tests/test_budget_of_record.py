@@ -338,3 +338,18 @@ def test_a_transfer_that_runs_out_names_its_burn_and_keeps_its_split():
     for a, b in zip(full["steps"], short["steps"]):
         assert b["dv_m_s"] == pytest.approx(a["dv_m_s"], abs=1e-6)
         assert b["vector_m_s"] == pytest.approx(a["vector_m_s"], abs=1e-6)
+
+
+@pytest.mark.parametrize("command", ["run", "size"])
+def test_a_mass_ratio_past_any_load_is_reported_not_a_crash(tmp_path, capsys, command):
+    # 2000 m/s at 0.01 s of specific impulse: exp(dv / (Isp g0)) = e^20394 overflows a
+    # float (the rocket equation; found by the fuzz test): the plan is priced, does not
+    # fit, and says why, in finite numbers
+    path = tmp_path / "ratio.aps"
+    path.write_text(plan("burn big: along 2000 m/s", isp=0.01))
+    assert main([command, str(path), "--format", "json"]) == 1
+    out = strict_json(capsys.readouterr().out)
+    assert out["feasible"] is False
+    why = out["totals"]["no_load_fits"] if command == "run" else out["why"]
+    ratio = 2.0 / (0.01 * G0)
+    assert f"e^{ratio:.6g}" in why and "specific impulse" in why
