@@ -64,11 +64,18 @@ def cross(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     return out
 
 
+_VECDOT = getattr(np, "vecdot", None)  # numpy 2: a ufunc, cheaper per call than einsum
+
+
 def norm(a: np.ndarray) -> np.ndarray:
-    return np.sqrt(np.einsum("...i,...i->...", a, a))
+    return np.sqrt(dot(a, a))
 
 
 def dot(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """The dot product over the last axis (``vecdot`` for small batches, where numpy's
+    per-call cost rules, ``einsum`` for large ones, where it is the faster loop)."""
+    if _VECDOT is not None and a.shape[0] <= 64:
+        return _VECDOT(a, b)
     return np.einsum("...i,...i->...", a, b)
 
 
