@@ -6,7 +6,8 @@ plan of 200 goal steps that is a single reorder block.  For each it prints the w
 time and peak memory (resident set, each plan checked in a fresh process) of `run` and
 of `check`, and their ratio, both measured in this run on this machine.
 
-Part zero: pricing each sample plan in-process (the chain alone, median of rounds).
+Part zero: pricing each sample plan in-process (the chain alone, median of rounds), and
+`apsidal check` against `apsidal run` on each sample in fresh processes.
 
 Part two: the reorder search alone on blocks of 8 to 12 movable steps, with the
 orderings considered, pruned and priced and whether the optimum is proven.
@@ -169,6 +170,28 @@ def part_zero(rounds: int = 200) -> None:
     print()
 
 
+def part_samples(rounds: int = 7) -> None:
+    """`apsidal check` against `apsidal run` on each sample, as a user runs them (fresh
+    processes, interleaved, medians)."""
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parent.parent / "samples"
+    print("check against run on each sample (fresh processes, median of "
+          f"{rounds} rounds)")
+    print(f"{'sample':>20} {'run':>8} {'check':>8} {'check/run':>10}")
+    for path in sorted(root.glob("*.aps")):
+        times = {"run": [], "check": []}
+        for _ in range(rounds):
+            for cmd, spent in times.items():
+                t0 = time.perf_counter()
+                subprocess.run([sys.executable, "-m", "apsidal.compiler.cli", cmd, str(path)],
+                               capture_output=True, check=False)
+                spent.append(time.perf_counter() - t0)
+        run_s, check_s = (sorted(t)[len(t) // 2] for t in times.values())
+        print(f"{path.stem:>20} {run_s:>7.3f}s {check_s:>7.3f}s {check_s / run_s:>9.2f}x")
+    print()
+
+
 def part_two(lo: int, hi: int) -> None:
     from apsidal.compiler.load import load_text
     from apsidal.compiler.reorder import search_block
@@ -200,6 +223,7 @@ def main() -> None:
     ap.add_argument("--skip-plans", action="store_true")
     args = ap.parse_args()
     part_zero()
+    part_samples()
     if not args.skip_plans:
         part_one([int(s) for s in args.sizes.split(",") if s], args.time_limit)
     lo, hi = (int(x) for x in args.blocks.split("-"))
