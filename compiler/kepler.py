@@ -74,14 +74,18 @@ def stumpff(z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """
     z = np.asarray(z, dtype=float)
     series = np.abs(z) < SERIES_Z
-    zs = np.where(series, z, 0.0)
-    # C = (1/2!) (1 - z/(3*4) (1 - z/(5*6) (...))), S = (1/3!) (1 - z/(4*5) (1 - ...))
-    c_ser = np.ones_like(zs)
-    s_ser = np.ones_like(zs)
-    for k in range(_SERIES_TERMS - 1, 0, -1):
-        c_ser = 1.0 - zs * c_ser / ((2 * k + 1) * (2 * k + 2))
-        s_ser = 1.0 - zs * s_ser / ((2 * k + 2) * (2 * k + 3))
-    c_ser, s_ser = c_ser / 2.0, s_ser / 6.0
+    c_ser = s_ser = np.zeros_like(z)
+    if series.any():  # (each form only where some element needs it)
+        zs = np.where(series, z, 0.0)
+        # C = (1/2!) (1 - z/(3*4) (1 - z/(5*6) (...))), S = (1/3!) (1 - z/(4*5) (1 - ...))
+        c_ser = np.ones_like(zs)
+        s_ser = np.ones_like(zs)
+        for k in range(_SERIES_TERMS - 1, 0, -1):
+            c_ser = 1.0 - zs * c_ser / ((2 * k + 1) * (2 * k + 2))
+            s_ser = 1.0 - zs * s_ser / ((2 * k + 2) * (2 * k + 3))
+        c_ser, s_ser = c_ser / 2.0, s_ser / 6.0
+        if series.all():
+            return c_ser, s_ser
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
         zc = np.where(series, 1.0, z)
         q = np.sqrt(np.abs(zc))
