@@ -28,6 +28,7 @@ from .cliutil import (
     UsageError,
     console,
     join_amounts,
+    screen_width,
 )
 
 FORMATS = ("table", "json", "markdown", "csv")
@@ -83,6 +84,14 @@ def emit_report(report: dict, fmt: str, columns: str | None = None) -> None:
     elif fmt == "csv":
         sys.stdout.write(render.to_csv(report))
     else:
+        from . import plain
+
+        out = sys.stdout
+        if plain.applies(out):  # a pipe or a file: the same characters, without rich
+            text = plain.text(render.screen(report, columns), screen_width(out))
+            if text is not None:
+                out.write(text)
+                return
         render.table(report, console(), columns)
 
 
