@@ -44,7 +44,7 @@ def cmd_run(args) -> int:
     program = load(args.plan)
     result = evaluate(program)
     report = budget(result)
-    findings = self_consistency(program, result)
+    findings = self_consistency(program, result, report)
     report["findings"] = [f.as_dict() for f in findings]
     emit_report(report, args.format, args.columns)
     if result.error is not None:
@@ -60,18 +60,33 @@ def cmd_run(args) -> int:
     return EXIT_OK
 
 
-def self_consistency(program, result):
+class PricedPlan:
+    """What the consistency rules read of a plan: the program, its priced chain and its
+    report, the first three fields of ``check.Checker``.  The Checker itself also lays
+    out the plan's text and the state before each step for the rules that rewrite the
+    plan, work `run` has no use for (``tests/test_cli.py`` holds the two to the same
+    findings)."""
+
+    def __init__(self, program, result, report: dict):
+        self.program, self.result, self.report = program, result, report
+
+
+def self_consistency(program, result, report: dict | None = None):
     """The findings `run` reports itself: what the plan says of itself, no searches.
 
     Expectations, reserve and burn length (an exhausted tank is the run's error);
-    `check` adds the rules that look for a cheaper plan.
+    `check` adds the rules that look for a cheaper plan.  ``report`` is the plan's
+    budget, when the caller has it.
     """
-    from .check import Checker
     from .rules import CONSISTENCY
 
-    checker = Checker(program, result)
+    if report is None:
+        from .budget import budget
+
+        report = budget(result)
+    plan = PricedPlan(program, result, report)
     return [f for rule in CONSISTENCY if result.ok or not rule.needs_flyable
-            for f in rule(checker)]
+            for f in rule(plan)]
 
 
 def emit_report(report: dict, fmt: str, columns: str | None = None) -> None:
