@@ -19,6 +19,8 @@ always said.
 
 from __future__ import annotations
 
+from copy import copy
+
 from lark.exceptions import UnexpectedCharacters
 from lark.lexer import BasicLexer, ContextualLexer, Lexer, PatternRE, PatternStr
 
@@ -34,11 +36,16 @@ class OneScanLexer(Lexer):
         self._ignore = frozenset(conf.ignore)
         self._allowed: dict[int, frozenset[str]] = {}
         self._contextual: ContextualLexer | None = None
-        # A keyword is read as the word terminal it spells and retyped by lark's callback;
-        # a callback of the user's on that word terminal would see a different type here.
-        if any(_spelled(t, conf) for t in conf.terminals if t.name in conf.callbacks):
+        # A keyword is read by the word terminal that spells it and retyped where the state
+        # accepts it, as lark's own "unless" callback does, by a look-up instead of a second
+        # expression of all keywords (about 1 ms to compile).
+        self._spelled = _spellings(conf)
+        if {word for word, _ in self._spelled} & set(conf.callbacks):
             raise ValueError("OneScanLexer: no lexer callback on a terminal keywords spell")
-        self.root = BasicLexer(conf)
+        keywords = set(self._spelled.values())
+        scan = copy(conf)
+        scan.terminals = [t for t in conf.terminals if t.name not in keywords]
+        self.root = BasicLexer(scan)
 
     def _accepts(self, state: int) -> frozenset[str]:
         allowed = self._allowed.get(state)
@@ -74,22 +81,29 @@ class OneScanLexer(Lexer):
             if kind not in allowed:
                 break  # a terminal this state does not accept: the error is lark's
             token = root.next_token(lexer_state, parser_state)
-            if token.type != kind and token.type not in allowed:
-                token.type = kind  # a keyword this state does not accept reads as a word
+            keyword = self._spelled.get((kind, token.value))
+            if keyword in allowed:  # else a keyword this state does not take reads as a word
+                token.type = keyword
             yield token
         if self._contextual is None:
             self._contextual = ContextualLexer(*self._args)
         yield from self._contextual.lex(lexer_state, parser_state)
 
 
-def _spelled(terminal, conf) -> bool:
-    """Whether some keyword of the grammar spells ``terminal`` (a regular expression)."""
-    if not isinstance(terminal.pattern, PatternRE):
-        return False
-    regexp = terminal.pattern.to_regexp()
-    for t in conf.terminals:
-        if isinstance(t.pattern, PatternStr) and t.priority == terminal.priority:
-            m = conf.re_module.match(regexp, t.pattern.value, conf.g_regex_flags)
-            if m and m.group(0) == t.pattern.value:
-                return True
-    return False
+def _spellings(conf) -> dict[tuple[str, str], str]:
+    """The keywords a regular-expression terminal also reads, as lark's rule finds them
+    (same priority, the keyword's text matched whole): ``{(terminal, text): keyword}``."""
+    out = {}
+    for word in conf.terminals:
+        if not isinstance(word.pattern, PatternRE):
+            continue
+        match = conf.re_module.compile(word.pattern.to_regexp(), conf.g_regex_flags).match
+        for t in conf.terminals:
+            if isinstance(t.pattern, PatternStr) and t.priority == word.priority:
+                text = t.pattern.value
+                m = match(text)
+                if m and m.group(0) == text:
+                    if t.pattern.flags:
+                        raise ValueError(f"OneScanLexer: keyword {text!r} has flags")
+                    out[(word.name, text)] = t.name
+    return out
