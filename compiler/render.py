@@ -25,6 +25,8 @@ WRAPPED_ANGLES = {"raan", "argp", "anomaly"}  # reported in [0, 360) deg
 
 @dataclass(frozen=True)
 class Column:
+    """A column of the step table: its key, heading, cell and priority."""
+
     key: str  # the name `--columns` takes
     heading: str  # with its unit; may wrap onto two lines at a space
     cell: Callable[[dict], str]
