@@ -8,6 +8,7 @@ from __future__ import annotations
 import csv
 import io
 import math
+import os
 import re
 from pathlib import Path
 
@@ -383,3 +384,20 @@ def test_every_consistency_rule_is_met_by_a_plan_above():
         program = load_text(source, "plan.aps")
         seen |= {f.rule for f in self_consistency(program, evaluate(program))}
     assert seen == {rule.rule_name for rule in CONSISTENCY}
+
+
+def test_the_program_and_main_called_from_python_print_the_same(capsys, monkeypatch):
+    # the program freezes the collector before Python's shutdown; main([...]) called from
+    # Python (tests, a notebook) leaves the collector as it was
+    import gc
+    import subprocess
+    import sys
+
+    monkeypatch.setenv("COLUMNS", "100")
+    frozen = gc.get_freeze_count()
+    code, out, _ = run(capsys, "run", SAMPLE_FILES[0])
+    assert gc.get_freeze_count() == frozen
+    done = subprocess.run([sys.executable, "-m", "apsidal.compiler.cli", "run",
+                           str(SAMPLE_FILES[0])], capture_output=True, text=True,
+                          env={**os.environ, "COLUMNS": "100"}, check=False)
+    assert (done.returncode, done.stdout) == (code, out)
