@@ -6,8 +6,10 @@ plan that cannot be flown, reported as ``file:line:col`` with the line, a caret 
 would work.  No Python traceback reaches the user for anything they can type; set
 APSIDAL_DEBUG=1 to see one for a bug.
 
-Each command imports what it needs when it runs (``run`` loads no checker search, git,
-diff or Markdown code), so starting the program costs little more than its libraries.
+Each command imports what it needs when it runs: ``run`` builds only its own options,
+loads no git, diff, formatter or Markdown code, and no rich at all when it writes its
+table to a pipe or a file (compiler/plain.py).  The five rules it reports come with the
+rules package, and so with the checker module (DEVELOPERS.md, "Start-up").
 """
 
 from __future__ import annotations
