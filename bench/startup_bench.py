@@ -67,11 +67,11 @@ def main() -> None:
         for k, cmd in runs.items():
             each[k].append(timed(cmd))
     floor = statistics.median(bare)
-    print(f"{'command':43} {'median':>8} {'ratio':>7}   ({args.rounds} rounds)")
-    print(f"{'python -c import numpy, lark, rich':43} {floor:7.3f}s {1.0:6.2f}x")
+    print(f"{'command':46} {'median':>8} {'ratio':>7}   ({args.rounds} rounds)")
+    print(f"{'python -c import numpy, lark, rich':46} {floor:7.3f}s {1.0:6.2f}x")
     for k, ts in each.items():
         m = statistics.median(ts)
-        print(f"{'apsidal run ' + k:43} {m:7.3f}s {m / floor:6.2f}x")
+        print(f"{'apsidal run ' + k:46} {m:7.3f}s {m / floor:6.2f}x")
 
 
 if __name__ == "__main__":
