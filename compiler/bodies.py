@@ -25,16 +25,17 @@ from __future__ import annotations
 
 import functools
 import math
+import re
 import tomllib
 from collections.abc import Mapping
 from dataclasses import dataclass
-from importlib import resources
+from pathlib import Path
 from types import MappingProxyType
 from typing import Any
 
-# The package that ships bodies.toml as package data (see pyproject.toml).  Named
-# outright so the file is found however this module itself was imported.
-_PACKAGE = "apsidal.compiler"
+# Package data beside this module (see pyproject.toml), found from the module's own file
+# as lang/parse.py finds the grammar, however the module was imported; importlib.resources
+# would cost `apsidal run` about 2 ms of imports to say the same.
 _DATA_FILE = "bodies.toml"
 _SOURCE_ORDER = ("gm", "radius", "j2", "orbit", "soi")
 
@@ -83,9 +84,19 @@ def catalogue() -> dict[str, Body]:
     return dict(_table())
 
 
+_GIVEN: dict[str, Body] = {}  # the bodies lookup has returned: one object each, however read
+
+
 def lookup(name: str) -> Body | None:
     """The catalogue body called ``name`` (any case, surrounding blanks ignored), or None."""
-    return _table().get(name.strip().lower())
+    key = name.strip().lower()
+    if key not in _GIVEN:
+        # before the whole catalogue is read, this body alone
+        body = (None if _table.cache_info().currsize else _one(key)) or _table().get(key)
+        if body is None:
+            return None
+        _GIVEN[key] = body
+    return _GIVEN[key]
 
 
 def names() -> list[str]:
@@ -94,10 +105,49 @@ def names() -> list[str]:
 
 
 @functools.cache
+def _text() -> str:
+    return Path(__file__).with_name(_DATA_FILE).read_text(encoding="utf-8")
+
+
+_HEADER = re.compile(r"^\[([A-Za-z0-9_-]+)(?:\.[A-Za-z0-9_-]+)*\][ \t]*$", re.MULTILINE)
+
+
+def _one(key: str) -> Body | None:
+    """The body ``key`` read from its own tables (``[key]``, ``[key.source]``) of the
+    file, or None where that cannot be done by the headers alone: `apsidal run` reads one
+    body, and reading all of them cost it 2 ms.  Anything this cannot promise (no such
+    header, a multi-line string that might hide one, a table it does not understand, a
+    parent not in the file) is left to the whole catalogue, which is read then."""
+    text = _text()
+    if '"""' in text or "'''" in text:
+        return None
+    heads = list(_HEADER.finditer(text))
+    ends = [h.start() for h in heads[1:]] + [len(text)]
+    own = "".join(text[h.start():end] for h, end in zip(heads, ends) if h[1].lower() == key)
+    try:
+        raw = tomllib.loads(own)
+    except tomllib.TOMLDecodeError:
+        return None
+    if len(raw) != 1 or next(iter(raw)).lower() != key:
+        return None
+    [(name, entry)] = raw.items()
+    try:
+        body = _body(name, entry)
+    except ValueError:
+        return None
+    if body.parent is not None and body.parent not in {h[1].lower() for h in heads}:
+        return None  # the whole catalogue says what is wrong
+    return body
+
+
+@functools.cache
 def _table() -> Mapping[str, Body]:
-    text = resources.files(_PACKAGE).joinpath(_DATA_FILE).read_text(encoding="utf-8")
-    raw = tomllib.loads(text)
+    raw = tomllib.loads(_text())
     table = {key.lower(): _body(key, entry) for key, entry in raw.items()}
+    for key, body in _GIVEN.items():  # read alone before: the same values, the same object
+        if table.get(key) != body:
+            raise ValueError(f"{_DATA_FILE}: [{key}] reads differently alone than in the file")
+        table[key] = body
     for key, body in table.items():
         if body.parent is not None and body.parent not in table:
             raise ValueError(f"{_DATA_FILE}: [{key}] orbits {body.parent!r}, which is not in it")

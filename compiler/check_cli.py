@@ -6,7 +6,6 @@ is built, so `apsidal run` does not load them.
 
 from __future__ import annotations
 
-import json
 import sys
 
 from apsidal.lang.errors import PlanError
@@ -161,6 +160,8 @@ def cmd_check(args) -> int:
         for f in kept:
             worst = max(worst, SEVERITIES.index(f.severity))
     if args.format == "json":
+        import json
+
         sys.stdout.write(json.dumps(to_json(reports), indent=2, allow_nan=False) + "\n")
     elif args.format == "markdown":
         sys.stdout.write(markdown(reports))

@@ -6,18 +6,20 @@ plan that cannot be flown, reported as ``file:line:col`` with the line, a caret 
 would work.  No Python traceback reaches the user for anything they can type; set
 APSIDAL_DEBUG=1 to see one for a bug.
 
-Each command imports what it needs when it runs (``run`` loads no checker search, git,
-diff or Markdown code), so starting the program costs little more than its libraries.
+Each command imports what it needs when it runs: ``run`` builds only its own options,
+loads no git, diff, formatter or Markdown code, and no rich at all when it writes its
+table to a pipe or a file (compiler/plain.py).  The five rules it reports come with the
+rules package, and so with the checker module (DEVELOPERS.md, "Start-up").
 """
 
 from __future__ import annotations
 
+import gc
 import os
 import sys
 
 from apsidal.lang.errors import PlanError
 
-from . import check_cli, review_cli, size_cli
 from .cliutil import (
     EXIT_BAD_INPUT,
     EXIT_FINDINGS,
@@ -28,6 +30,7 @@ from .cliutil import (
     UsageError,
     console,
     join_amounts,
+    screen_width,
 )
 
 FORMATS = ("table", "json", "markdown", "csv")
@@ -43,7 +46,7 @@ def cmd_run(args) -> int:
     program = load(args.plan)
     result = evaluate(program)
     report = budget(result)
-    findings = self_consistency(program, result)
+    findings = self_consistency(program, result, report)
     report["findings"] = [f.as_dict() for f in findings]
     emit_report(report, args.format, args.columns)
     if result.error is not None:
@@ -59,18 +62,33 @@ def cmd_run(args) -> int:
     return EXIT_OK
 
 
-def self_consistency(program, result):
+class PricedPlan:
+    """What the consistency rules read of a plan: the program, its priced chain and its
+    report, the first three fields of ``check.Checker``.  The Checker itself also lays
+    out the plan's text and the state before each step for the rules that rewrite the
+    plan, work `run` has no use for (``tests/test_cli.py`` holds the two to the same
+    findings)."""
+
+    def __init__(self, program, result, report: dict):
+        self.program, self.result, self.report = program, result, report
+
+
+def self_consistency(program, result, report: dict | None = None):
     """The findings `run` reports itself: what the plan says of itself, no searches.
 
     Expectations, reserve and burn length (an exhausted tank is the run's error);
-    `check` adds the rules that look for a cheaper plan.
+    `check` adds the rules that look for a cheaper plan.  ``report`` is the plan's
+    budget, when the caller has it.
     """
-    from .check import Checker
     from .rules import CONSISTENCY
 
-    checker = Checker(program, result)
+    if report is None:
+        from .budget import budget
+
+        report = budget(result)
+    plan = PricedPlan(program, result, report)
     return [f for rule in CONSISTENCY if result.ok or not rule.needs_flyable
-            for f in rule(checker)]
+            for f in rule(plan)]
 
 
 def emit_report(report: dict, fmt: str, columns: str | None = None) -> None:
@@ -83,6 +101,14 @@ def emit_report(report: dict, fmt: str, columns: str | None = None) -> None:
     elif fmt == "csv":
         sys.stdout.write(render.to_csv(report))
     else:
+        from . import plain
+
+        out = sys.stdout
+        if plain.applies(out):  # a pipe or a file: the same characters, without rich
+            text = plain.text(render.screen(report, columns), screen_width(out))
+            if text is not None:
+                out.write(text)
+                return
         render.table(report, console(), columns)
 
 
@@ -146,7 +172,10 @@ def cmd_bodies(args) -> int:
     return EXIT_OK
 
 
-def build_parser() -> Parser:
+def build_parser(command: str | None = None) -> Parser:
+    """The command line's parser.  For a line that starts with ``run`` (``command``), the
+    other commands' options are left out: only run's own are read, and building and
+    importing the rest cost `apsidal run` about 4 ms."""
     p = Parser(prog="apsidal", description="Price a spacecraft manoeuvre plan: delta-v, "
                 "propellant, burn time and margin, under the impulsive two-body "
                 "approximation.")
@@ -164,9 +193,12 @@ def build_parser() -> Parser:
     run.set_defaults(func=cmd_run)
     bod = sub.add_parser("bodies", help="list the body catalogue and its sources")
     bod.set_defaults(func=cmd_bodies)
-    check_cli.register(sub)
-    review_cli.register(sub)
-    size_cli.register(sub)
+    if command != "run":
+        from . import check_cli, review_cli, size_cli
+
+        check_cli.register(sub)
+        review_cli.register(sub)
+        size_cli.register(sub)
     p.commands = dict(sub.choices)
     return p
 
@@ -182,10 +214,19 @@ def version() -> str:
 
 
 def main(argv: list[str] | None = None) -> int:
-    if argv is None:  # the program itself, writing to a pipe that may close early
-        sys.stdout = PipeSafe(sys.stdout)
-    argv = sys.argv[1:] if argv is None else list(argv)
-    parser = build_parser()
+    if argv is not None:  # called from Python (tests, a notebook): nothing else changes
+        return _main(list(argv))
+    sys.stdout = PipeSafe(sys.stdout)  # the program itself, writing to a pipe that may close
+    code = _main(sys.argv[1:])
+    # The process ends here.  Python's shutdown scans every live object for cycles more
+    # than once, 10-25 ms of a short command (numpy's objects and ours); nothing made here
+    # needs collecting, so the collector is told to leave it all alone.
+    gc.freeze()
+    return code
+
+
+def _main(argv: list[str]) -> int:
+    parser = build_parser(argv[0] if argv else None)
     args = parser.parse_args(join_amounts(argv))
     if args.version:
         print(f"apsidal {version()}")

@@ -16,8 +16,10 @@ import stat
 import sys
 import tempfile
 from pathlib import Path
+from typing import TYPE_CHECKING
 
-from rich.console import Console
+if TYPE_CHECKING:  # rich.console is imported by the commands that print through it
+    from rich.console import Console
 
 EXIT_OK, EXIT_FINDINGS, EXIT_BAD_INPUT, EXIT_INTERNAL = 0, 1, 2, 70
 
@@ -127,6 +129,8 @@ def screen_width(out) -> int | None:
 
 def console(stream=None) -> Console:
     """The console of the screens, at :func:`screen_width`."""
+    from rich.console import Console
+
     out = stream or sys.stdout
     return Console(file=out, highlight=False, soft_wrap=False, width=screen_width(out))
 

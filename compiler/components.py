@@ -38,6 +38,9 @@ def split(mass: float, mixture: float | None) -> tuple[float, float]:
 
 @dataclass
 class Ledger:
+    """Fuel and oxidiser along the chain: each priced row's split, the totals, and
+    where a store ran out."""
+
     per_row: dict[int, tuple[float, float] | None]  # row position -> (fuel, oxidiser)
     fuel_kg: float  # used by two-component engines (and, with components, by any engine)
     oxidiser_kg: float

@@ -1,13 +1,19 @@
 """Renderers of a budget dict: a rich table for the terminal, JSON, Markdown and CSV.
 
 The step table is data: ``STEP_COLUMNS`` lists every column with its heading (units in
-the heading), its cell and its priority.  ``fit`` keeps the columns that fit the
+the heading), its cell and its priority.  ``layout`` keeps the columns that fit the
 terminal, dropping the least needed first, so a row never wraps; ``--columns all``
 asks for every column whatever the width.  A new report field is one more column.
+
+The screen of a run is data too: ``screen`` lists its pieces top to bottom, and two
+writers lay them out: ``table`` with rich (a terminal, or anything rich would colour),
+``compiler/plain.py`` the same characters for a pipe or a file without loading
+rich.console.
 """
 
 from __future__ import annotations
 
+import re
 from collections.abc import Callable
 from dataclasses import dataclass
 
@@ -19,6 +25,8 @@ WRAPPED_ANGLES = {"raan", "argp", "anomaly"}  # reported in [0, 360) deg
 
 @dataclass(frozen=True)
 class Column:
+    """A column of the step table: its key, heading, cell and priority."""
+
     key: str  # the name `--columns` takes
     heading: str  # with its unit; may wrap onto two lines at a space
     cell: Callable[[dict], str]
@@ -107,30 +115,51 @@ def _build(title: str | None, columns, rows: list[list[str]], widths: list[int])
     return t
 
 
+_NARROW = re.compile("[ -~\u0394]*")  # printable ASCII and Δ: one terminal cell each
+
+
+def cell_width(text: str) -> int:
+    """The terminal cells ``text`` takes: its length where every character takes one
+    (``plain.py`` lays out only such text), else rich's count.
+
+    >>> cell_width("Δv m/s"), cell_width("月")
+    (6, 2)
+    """
+    if _NARROW.fullmatch(text):
+        return len(text)
+    from rich.cells import cell_len
+
+    return cell_len(text)
+
+
 def _width(heading: str, cells: list[str]) -> int:
     """A column's width: its longest cell, and its heading's longest word (a heading may
     wrap onto a second line at a space; a cell never does)."""
-    from rich.cells import cell_len
-
-    return max([cell_len(w) for w in heading.split()] + [cell_len(c) for c in cells])
+    return max([cell_width(w) for w in heading.split()] + [cell_width(c) for c in cells])
 
 
-def fit(console, title, columns, records: list[dict], keep_all: bool = False):
-    """A rich table of ``records`` under ``columns``, and the width it needs, with the
-    least needed columns dropped (highest priority number first, the rightmost of a
-    tie first) until one record is one line at the console's width."""
+def layout(columns, records: list[dict], width: int, keep_all: bool = False):
+    """The columns of a table of ``records`` that fit ``width``, their cells, their widths
+    and the width the table needs: the least needed columns dropped (highest priority
+    number first, the rightmost of a tie first) until one record is one line."""
     cells = [[c.cell(r) for c in columns] for r in records]
     widths = [_width(c.heading, [row[i] for row in cells]) for i, c in enumerate(columns)]
     keep = list(range(len(columns)))
     while True:
         need = sum(widths[i] for i in keep) + 2 * (len(keep) - 1)
         droppable = [i for i in keep if columns[i].priority > 0]
-        if keep_all or need <= console.width or not droppable:
+        if keep_all or need <= width or not droppable:
             break
         keep.remove(max(droppable, key=lambda i: (columns[i].priority, i)))
-    t = _build(title, [columns[i] for i in keep], [[row[i] for i in keep] for row in cells],
-               [widths[i] for i in keep])
-    return t, need
+    return ([columns[i] for i in keep], [[row[i] for i in keep] for row in cells],
+            [widths[i] for i in keep], need)
+
+
+def fit(console, title, columns, records: list[dict], keep_all: bool = False):
+    """A rich table of ``records`` under the ``columns`` that fit the console (see
+    :func:`layout`), and the width it needs."""
+    kept, rows, widths, need = layout(columns, records, console.width, keep_all)
+    return _build(title, kept, rows, widths), need
 
 
 def check_text(c: dict) -> str:
@@ -206,42 +235,72 @@ def fit_lines(report: dict) -> list[str]:
     return out
 
 
-def table(report: dict, console, columns: str | None = None) -> None:
-    from rich.text import Text
+def screen(report: dict, columns: str | None = None) -> list[tuple]:
+    """The pieces of a run's screen, top to bottom, each a tuple led by its kind:
 
-    title = report["plan"] or report["source"]
+    ``("line", text, style, markup)``  one print of a string (emoji codes replaced;
+    console markup read when ``markup``), wrapped at the width;
+    ``("table", columns, records, keep_all)``  the step table (see :func:`layout`);
+    ``("text", text)``  a sentence, wrapped; ``("mark", passed, text)`` an expectation's
+    pass or FAIL and its text; ``("indented", text)`` prose wrapped under a two-space
+    indent; ``("blank",)``.
+
+    >>> [p[0] for p in screen({"plan": "p", "source": "p.aps", "steps": [],
+    ...     "totals": {"dv_m_s": 0.0, "dv_with_margin_m_s": 0.0, "propellant_kg": 0.0,
+    ...     "propellant_left_kg": 1.0, "final_mass_kg": 2.0, "dv_capacity_left_m_s": 9.0,
+    ...     "reserve_m_s": 0.0, "reserve_met": True, "elapsed_s": 0.0},
+    ...     "caution": "estimates"})]
+    ['line', 'table', 'blank', 'line', 'line', 'line', 'line', 'line', 'blank', 'line']
+    """
     cols, keep_all = pick_columns(columns)
-    console.print(f"Delta-v budget: {title}", style="bold", highlight=False, markup=False)
-    t, need = fit(console, None, cols, report["steps"], keep_all)
-    if keep_all and need > console.width:  # asked for: lines past the terminal's edge
-        width, console.width = console.width, need
-        console.print(t)
-        console.width = width
-    else:
-        console.print(t)
-    console.print()
-    for line in total_lines(report["totals"]):
-        console.print(line, highlight=False, markup=False)
-    for line in fit_lines(report):  # sentences: rich wraps them at the terminal's width
-        console.print(Text(line), highlight=False)
+    out: list[tuple] = [
+        ("line", f"Delta-v budget: {report['plan'] or report['source']}", "bold", False),
+        ("table", cols, report["steps"], keep_all), ("blank",),
+        *(("line", line, None, False) for line in total_lines(report["totals"])),
+        *(("text", line) for line in fit_lines(report)),  # sentences, wrapped at the width
+    ]
     checks = [(s, c) for s in report["steps"] for c in s.get("checks", [])]
     if checks:
-        console.print()
-        console.print("Expectations", style="bold")
-        for s, c in checks:
-            mark = Text("pass", style="green") if c["passed"] else Text("FAIL", style="bold red")
-            console.print(Text.assemble("  ", mark, f"  {s['name']}: {check_text(c)}"))
+        out += [("blank",), ("line", "Expectations", "bold", True)]
+        out += [("mark", c["passed"], f"  {s['name']}: {check_text(c)}") for s, c in checks]
     if report.get("findings"):
-        console.print()
-        console.print("Findings", style="bold")
-        from rich.padding import Padding
+        out += [("blank",), ("line", "Findings", "bold", True)]
+        out += [("indented", f"{f['severity']} {f['rule']}: {f['message']}")
+                for f in report["findings"]]  # prose, wrapped under its own indent
+    out += [("blank",), ("line", f"Caution: {report['caution']}", "italic", False)]
+    return out
 
-        for f in report["findings"]:  # prose, wrapped under its own indent
-            console.print(Padding(Text(f"{f['severity']} {f['rule']}: {f['message']}"),
-                                  (0, 0, 0, 2)), highlight=False)
-    console.print()
-    console.print(f"Caution: {report['caution']}", style="italic", highlight=False,
-                  markup=False)
+
+def table(report: dict, console, columns: str | None = None) -> None:
+    """The run's screen (:func:`screen`) on a rich console."""
+    from rich.padding import Padding
+    from rich.text import Text
+
+    def step_table(cols, records, keep_all):
+        t, need = fit(console, None, cols, records, keep_all)
+        if keep_all and need > console.width:  # asked for: lines past the terminal's edge
+            width, console.width = console.width, need
+            console.print(t)
+            console.width = width
+        else:
+            console.print(t)
+
+    def mark(passed, text):
+        word = Text("pass", style="green") if passed else Text("FAIL", style="bold red")
+        console.print(Text.assemble("  ", word, text))
+
+    write = {
+        "line": lambda text, style, markup: console.print(text, style=style, highlight=False,
+                                                          markup=markup),
+        "table": step_table,
+        "text": lambda text: console.print(Text(text), highlight=False),
+        "mark": mark,
+        "indented": lambda text: console.print(Padding(Text(text), (0, 0, 0, 2)),
+                                               highlight=False),
+        "blank": console.print,
+    }
+    for kind, *args in screen(report, columns):
+        write[kind](*args)
 
 
 def to_json(report: dict) -> str:

@@ -8,14 +8,12 @@ not parse, a revision or file git does not have); 70 an internal error of ours.
 
 from __future__ import annotations
 
-import difflib
 import re
 import sys
 from dataclasses import dataclass, field
 from pathlib import Path
 
 from apsidal.lang.errors import PlanError
-from apsidal.lang.parse import parse, parse_file
 from apsidal.lang.units import UNITS, to_internal
 
 from .cliutil import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_INTERNAL, EXIT_OK, UsageError, write_atomic
@@ -92,6 +90,8 @@ class FmtReport:
 
 def _read_plan(path: str) -> tuple[str, object]:
     """The file's text exactly as stored and its parsed plan."""
+    from apsidal.lang.parse import parse, parse_file
+
     if path == "-":
         text = sys.stdin.read()
         return text, parse(text.removeprefix("\ufeff"), "<stdin>")
@@ -134,6 +134,8 @@ def _fmt_one(path: str, args, report: FmtReport, header: bool) -> None:
         report.unchanged.append(path)
         return
     if args.check:
+        import difflib
+
         sys.stdout.writelines(difflib.unified_diff(
             original.splitlines(keepends=True), formatted.splitlines(keepends=True),
             fromfile=path, tofile=f"{path} (formatted)"))
@@ -187,6 +189,8 @@ def _findings(program) -> list[dict]:
 
 
 def _side_from_file(path: str, findings: bool) -> Side:
+    from apsidal.lang.parse import parse_file
+
     from .lower import lower
 
     try:
@@ -197,6 +201,8 @@ def _side_from_file(path: str, findings: bool) -> Side:
 
 
 def _side_from_git(path: str, rev: str, findings: bool) -> Side:
+    from apsidal.lang.parse import parse
+
     from .gitsource import GitError, read_at
     from .lower import lower
 
@@ -353,6 +359,8 @@ def cmd_diff(args) -> int:
 
 def textconv(path: str) -> int:
     """The file's text with its budget appended; never fails, so `git diff` never does."""
+    from apsidal.lang.parse import parse
+
     from . import diff_render
     from .budget import budget
     from .evaluate import run

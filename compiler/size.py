@@ -29,6 +29,8 @@ from .evaluate import PRICED_KINDS, Result
 
 @dataclass(frozen=True)
 class Sizing:
+    """The least load that flies a plan and the most dry mass its load flies."""
+
     load: float | None  # kg: the least load that flies the plan (None: no load can)
     dry_max: float | None  # kg: the most dry mass the present load flies (None: any)
     why: str | None = None  # why no load can fly it

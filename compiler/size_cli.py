@@ -6,17 +6,15 @@ this module only words them (table) or lays them out (``--format json``).
 
 from __future__ import annotations
 
-import json
 import sys
 
-from .budget import CAUTION, budget
 from .cliutil import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_OK, console
-from .evaluate import run
-from .load import load
-from .size import size
 
 
 def sizing_report(result) -> dict:
+    from .budget import CAUTION, budget
+    from .size import size
+
     p = result.program
     craft = p.craft
     s = size(result)
@@ -44,12 +42,17 @@ def sizing_report(result) -> dict:
 
 
 def cmd_size(args) -> int:
+    from .evaluate import run
+    from .load import load
+
     result = run(load(args.plan))
     if result.error is not None:
         print(result.error.render(), file=sys.stderr)
         return EXIT_BAD_INPUT
     rep = sizing_report(result)
     if args.format == "json":
+        import json
+
         sys.stdout.write(json.dumps(rep, indent=2, allow_nan=False) + "\n")
     else:
         out = console()
@@ -75,7 +78,7 @@ def cmd_size(args) -> int:
             out.print(f"  dry mass            {rep['dry_kg']:,.3f} kg; the load flies at most "
                       + ("any dry mass (no burns)" if dry_max is None else
                          f"{dry_max:,.3f} kg"))
-        out.print(f"Caution: {CAUTION}", soft_wrap=True)
+        out.print(f"Caution: {rep['caution']}", soft_wrap=True)
     return EXIT_OK if rep["feasible"] else EXIT_FINDINGS
 
 

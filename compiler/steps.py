@@ -20,6 +20,8 @@ G0 = 9.80665  # standard gravity, m/s^2 (CGPM 1901, exact)
 
 @dataclass(frozen=True)
 class EngineSpec:
+    """An engine of the craft, in internal units."""
+
     name: str
     isp: float  # s
     thrust: float  # N
@@ -33,6 +35,8 @@ class EngineSpec:
 
 @dataclass(frozen=True)
 class Craft:
+    """The craft: dry mass, the propellant load and its engines (kg, s, N)."""
+
     name: str
     dry: float  # kg
     propellant: float  # kg, the load
@@ -89,6 +93,8 @@ HERE = Place("here")
 
 @dataclass(frozen=True)
 class Burn:
+    """A burn: where, its goals (target radii, angles) or explicit vector, engine, margin."""
+
     name: str
     place: Place
     periapsis: float | None = None  # target radius, km
@@ -142,6 +148,8 @@ class Transfer:
 
 @dataclass(frozen=True)
 class Coast:
+    """A coast for a time, to a place, or for whole revolutions."""
+
     name: str
     mode: str  # for | to | rev
     duration: float | None = None  # s
@@ -154,6 +162,8 @@ class Coast:
 
 @dataclass(frozen=True)
 class Drop:
+    """Mass released at this point of the chain (kg)."""
+
     name: str
     mass: float
     span: Span | None = None
@@ -163,6 +173,8 @@ class Drop:
 
 @dataclass(frozen=True)
 class CheckSpec:
+    """One condition of an expectation, in internal units."""
+
     kind: str  # periapsis apoapsis circular sma ecc inclination raan argp period mass propellant
     target: float  # internal units; radii for periapsis/apoapsis/circular
     comparator: str  # within | at least | at most
@@ -172,6 +184,8 @@ class CheckSpec:
 
 @dataclass(frozen=True)
 class Expect:
+    """An expectation: conditions on the state at this point of the chain."""
+
     name: str
     checks: tuple[CheckSpec, ...]
     span: Span | None = None
@@ -200,6 +214,8 @@ Step = Burn | Transfer | Coast | Drop | Expect | Allow
 
 @dataclass(frozen=True)
 class Program:
+    """The lowered plan: body, craft, settings, start state and steps."""
+
     title: str
     body: Body
     craft: Craft

@@ -43,6 +43,7 @@ from lark.lexer import PatternStr
 
 from . import syntax as ast
 from .errors import PlanError, Source, Span, did_you_mean
+from .lexer import OneScanLexer
 from .units import PREFERRED, UNITS, suggest_unit, units_of
 
 __all__ = ["keywords", "parse", "parse_file", "statement_keywords"]
@@ -124,7 +125,8 @@ def _keep_comment(token: Token) -> Token:
 def _parser() -> Lark:
     """The LALR parser, built once per process; the built tables are cached by lark in
     the temporary directory, keyed by the grammar's hash, so later runs load them
-    instead of building them (an unwritable cache only costs the build)."""
+    instead of building them (an unwritable cache only costs the build).  The
+    contextual lexer is lark's, reading with one expression (lang/lexer.py)."""
     return Lark(
         GRAMMAR.read_text(encoding="utf-8"),
         cache=True,
@@ -134,6 +136,7 @@ def _parser() -> Lark:
         maybe_placeholders=True,
         postlex=_WordsEverywhere(),
         lexer_callbacks={"COMMENT": _keep_comment},
+        _plugins={"ContextualLexer": OneScanLexer},  # the same tokens, one expression
     )
 
 

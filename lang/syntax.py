@@ -40,6 +40,8 @@ class Quantity:
 
 @dataclass(frozen=True)
 class Name:
+    """A name as written (a craft, engine, body or step), with its span."""
+
     text: str
     span: Span
 
@@ -112,18 +114,24 @@ class Check:
 
 @dataclass(frozen=True)
 class PlanTitle:
+    """``plan "TITLE"``: the title the reports carry."""
+
     title: str
     span: Span
 
 
 @dataclass(frozen=True)
 class Around:
+    """``around BODY``: the central body of the plan."""
+
     body: Name
     span: Span
 
 
 @dataclass(frozen=True)
 class BodyDef:
+    """``body NAME { gm ... radius ... }``: a body the plan defines itself."""
+
     name: Name
     fields: tuple[Field, ...]
     span: Span
@@ -131,6 +139,8 @@ class BodyDef:
 
 @dataclass(frozen=True)
 class Engine:
+    """``engine NAME isp ... thrust ...`` inside a craft block."""
+
     name: Name
     fields: tuple[Field, ...]  # isp, thrust
     span: Span
@@ -138,6 +148,8 @@ class Engine:
 
 @dataclass(frozen=True)
 class CraftDef:
+    """``craft NAME { ... }``: the craft's masses and its engines."""
+
     name: Name
     fields: tuple[Field, ...]  # dry, propellant
     engines: tuple[Engine, ...]
@@ -157,6 +169,8 @@ class Setting:
 
 @dataclass(frozen=True)
 class Start:
+    """``start circular ...`` or ``start orbit ...``: the orbit the plan starts in."""
+
     form: str  # circular | orbit
     fields: tuple[Field, ...]  # for circular the first field has key "circular"
     span: Span
@@ -164,6 +178,8 @@ class Start:
 
 @dataclass(frozen=True)
 class Burn:
+    """``burn [NAME] [at WHERE]: GOALS OPTIONS``."""
+
     name: Name | None
     where: Where | None
     goals: tuple[Goal, ...]
@@ -173,6 +189,8 @@ class Burn:
 
 @dataclass(frozen=True)
 class Transfer:
+    """``transfer [NAME] [at WHERE]: GOALS [via apoapsis D] OPTIONS``, expanded into burns."""
+
     name: Name | None
     where: Where | None
     goals: tuple[Goal, ...]
@@ -195,6 +213,8 @@ class Coast:
 
 @dataclass(frozen=True)
 class Drop:
+    """``drop NAME MASS``: mass released at this point."""
+
     name: Name | None
     mass: Quantity
     span: Span
@@ -218,6 +238,8 @@ class Allow:
 
 @dataclass(frozen=True)
 class Expect:
+    """``expect NAME CHECK, ...``: conditions on the state at this point."""
+
     name: Name | None
     checks: tuple[Check, ...]
     span: Span
@@ -233,6 +255,8 @@ STEP_TYPES = (Burn, Transfer, Coast, Drop, Expect, Allow)
 
 @dataclass(frozen=True)
 class Comment:
+    """A ``#`` comment, kept for the formatter."""
+
     text: str  # including the leading '#'
     line: int
     trailing: bool  # True when code precedes it on the same line
@@ -240,6 +264,8 @@ class Comment:
 
 @dataclass(frozen=True)
 class Plan:
+    """A parsed plan: its statements in order, its comments and its source."""
+
     statements: tuple[Statement, ...]
     comments: tuple[Comment, ...]
     source: Source

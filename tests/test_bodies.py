@@ -156,6 +156,26 @@ def test_lookup_ignores_case_and_blanks():
     assert lookup("") is None
 
 
+def test_each_body_read_alone_is_the_body_of_the_whole_catalogue():
+    # lookup reads one body's own tables until the whole file is needed
+    for key, body in catalogue().items():
+        alone = bodies._one(key)
+        assert alone == body and alone is not None, key
+    assert bodies._one("vulcan") is None
+
+
+def test_a_body_read_alone_stays_the_one_object_once_the_catalogue_is_read():
+    import subprocess
+    import sys
+
+    code = ("from apsidal.compiler import bodies as b; e = b.lookup('Earth'); "
+            "alone = b._table.cache_info().currsize == 0; "
+            "print(alone, e is b.lookup('earth') is b.catalogue()['earth'], e == b._one('earth'))")
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                          check=True)
+    assert done.stdout.split() == ["True", "True", "True"]
+
+
 def test_catalogue_is_frozen_and_returns_copies():
     table = catalogue()
     table.pop("earth")

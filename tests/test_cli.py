@@ -8,6 +8,7 @@ from __future__ import annotations
 import csv
 import io
 import math
+import os
 import re
 from pathlib import Path
 
@@ -335,3 +336,68 @@ def test_usage_errors_exit_2_without_traceback(capsys, tmp_path):
     with pytest.raises(SystemExit) as exc:
         main(["launch"])
     assert exc.value.code == 2
+
+
+# --- run's own findings ---------------------------------------------------------------
+
+CRAFT_TEXT = "around earth\ncraft c { dry 100 kg propellant 500 kg engine m isp 300 s thrust 1 N }\n"
+CONSISTENCY_PLANS = [  # one plan or more for each rule `run` reports (our own scenarios)
+    CRAFT_TEXT + "start circular 400 km inclination 28 deg\n"
+    "burn raise at periapsis: apoapsis to 35786 km\n"
+    "burn circ at apoapsis: circular, inclination to 0 deg\n"
+    "expect circular 35000 km within 1 km, inclination 0 deg within 0.01 deg\n",
+    CRAFT_TEXT.replace("500 kg", "5 kg") + "reserve 10 m/s\nstart circular 400 km\n"
+    "burn raise at periapsis: apoapsis to 35786 km\n",
+    CRAFT_TEXT + "reserve 6 km/s\nstart circular 400 km\nburn raise at periapsis: "
+    "apoapsis to 1000 km\n",
+    CRAFT_TEXT + "start circular 400 km\nburn out at periapsis: apoapsis to 1000000 km\n",
+    CRAFT_TEXT + "start orbit periapsis 400 km vinf 3 km/s anomaly 0 deg\n"
+    "coast drift for 10 d\nburn trim: along 10 m/s\n",
+]
+
+
+@pytest.mark.parametrize("source", [p.read_text() for p in SAMPLE_FILES] + CONSISTENCY_PLANS)
+def test_run_finds_what_the_checker_finds_with_its_consistency_rules(source):
+    # run hands the rules a PricedPlan, not the whole Checker: the same findings
+    from apsidal.compiler.check import Checker
+    from apsidal.compiler.cli import self_consistency
+    from apsidal.compiler.evaluate import run as evaluate
+    from apsidal.compiler.load import load_text
+    from apsidal.compiler.rules import CONSISTENCY
+
+    program = load_text(source, "plan.aps")
+    result = evaluate(program)
+    checker = Checker(program, result)
+    expected = [f for rule in CONSISTENCY if result.ok or not rule.needs_flyable
+                for f in rule(checker)]
+    assert self_consistency(program, result) == expected
+
+
+def test_every_consistency_rule_is_met_by_a_plan_above():
+    from apsidal.compiler.cli import self_consistency
+    from apsidal.compiler.evaluate import run as evaluate
+    from apsidal.compiler.load import load_text
+    from apsidal.compiler.rules import CONSISTENCY
+
+    seen = set()
+    for source in CONSISTENCY_PLANS:
+        program = load_text(source, "plan.aps")
+        seen |= {f.rule for f in self_consistency(program, evaluate(program))}
+    assert seen == {rule.rule_name for rule in CONSISTENCY}
+
+
+def test_the_program_and_main_called_from_python_print_the_same(capsys, monkeypatch):
+    # the program freezes the collector before Python's shutdown; main([...]) called from
+    # Python (tests, a notebook) leaves the collector as it was
+    import gc
+    import subprocess
+    import sys
+
+    monkeypatch.setenv("COLUMNS", "100")
+    frozen = gc.get_freeze_count()
+    code, out, _ = run(capsys, "run", SAMPLE_FILES[0])
+    assert gc.get_freeze_count() == frozen
+    done = subprocess.run([sys.executable, "-m", "apsidal.compiler.cli", "run",
+                           str(SAMPLE_FILES[0])], capture_output=True, text=True,
+                          env={**os.environ, "COLUMNS": "100"}, check=False)
+    assert (done.returncode, done.stdout) == (code, out)
