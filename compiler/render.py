@@ -199,6 +199,12 @@ def fit_lines(report: dict) -> list[str]:
     if "fuel_kg" in tot:
         out.append(f"components           fuel {sig(tot['fuel_kg'])} kg, oxidiser "
                    f"{sig(tot['oxidiser_kg'])} kg burnt")
+    for step in report["steps"]:
+        if "entry" in step:
+            e = step["entry"]
+            out.append(f"entry interface      {sig(e['altitude_km'])} km ({step['name']}): "
+                       f"{sig(e['speed_m_s'])} m/s, flight-path angle "
+                       f"{sig(e['flight_path_angle_deg'])} deg (inertial)")
     if not report.get("feasible", True) and "error" not in report:
         out.append(f"DOES NOT FIT         {shortfall_text(report)}"
                    + (" (steps marked * are not covered, priced as if the tanks held the "

@@ -139,8 +139,8 @@ CASES = [
         ("out of range",), "ordinary number"),
     Bad("keyword-as-step-name", plan("burn apoapsis: along 5 m/s"), 10, 6, "apoapsis",
         ("is a keyword and cannot name a step",), "choose another name"),
-    Bad("fractional-revolutions", plan("coast wait 1.5 rev"), 10, 12, "1.5",
-        ("whole revolutions",), "`2 rev`"),
+    Bad("no-revolutions", plan("coast wait 0 rev"), 10, 12, "0",
+        ("a positive number of revolutions",), "`0.5 rev`"),
     # --- the craft and the body -------------------------------------------------------------
     Bad("negative-dry-mass", scene("dry 500 kg", "dry -500 kg"), 4, 9, "-500 kg",
         ("dry mass must be positive", "-500 kg"), "greater than zero"),
