@@ -555,8 +555,14 @@ class Lowerer:
         for k in ("periapsis", "apoapsis"):
             if k in goals:
                 kw[k] = self._radius(goals[k].value)
-                if k == "periapsis" and self._ends and kw[k] > 0:
-                    continue  # a way down: the evaluator allows it only on the last burn
+                if k == "periapsis" and self._ends:
+                    if kw[k] > 0:
+                        continue  # a way down: the evaluator allows it only on the last burn
+                    raise _err(f"the periapsis target ({kw[k] - self.body.radius:.3f} km "
+                               f"altitude, radius {kw[k]:.3f} km) lies past the centre of "
+                               f"{self.body.name}: no orbit has it", goals[k],
+                               "the last burn before `entry` may put the periapsis under the "
+                               f"surface, down to an altitude above -{self.body.radius:.3f} km")
                 if kw[k] <= self.body.radius:
                     raise _err(f"the {k} target ({kw[k] - self.body.radius:.3f} km altitude, "
                                f"radius {kw[k]:.3f} km) is under the surface of "
