@@ -256,3 +256,54 @@ def test_phasing_timing_against_integration(plans, numeric, start, angle, revs):
     # and the report's elapsed time is the phasing orbit's N periods
     assert float(result.final.t[0]) == pytest.approx(
         float(first.coast_time[0]) + t_phase, abs=1e-9)
+
+
+# --- check and diff ----------------------------------------------------------------------
+
+
+def test_check_never_moves_or_rewrites_a_phasing_transfer(plans):
+    from apsidal.compiler.check import check_program
+    from apsidal.compiler.load import load_text
+    from apsidal.compiler.reorder import blocks
+
+    # an eccentric orbit: the descending node is slower, so a Hohmann-type rewrite there
+    # would be cheaper, but another node is another phasing
+    text = plans.text("start orbit periapsis 400 km apoapsis 6000 km inclination 40 deg "
+                      "argp 60 deg",
+                      "burn tilt at node: inclination to 41 deg",
+                      "burn up at periapsis: apoapsis to 7000 km",
+                      "transfer p at ascending node: phase 20 deg in 3 rev",
+                      "burn a at periapsis: apoapsis to 7500 km",
+                      "burn b at node: inclination to 42 deg")
+    program = load_text(text)
+    assert blocks(program) == [[0, 1], [3, 4]]
+    for finding in check_program(program):
+        if finding.rule != "long-burn":  # a long burn is a long burn, phasing or not
+            assert not {"p", "p/1", "p/2"} & set(finding.steps), finding
+        if finding.suggestion is not None:
+            assert "transfer p at ascending node: phase 20 deg in 3 rev" in finding.suggestion
+
+
+def test_diff_matches_phasing_burns_and_the_entry_by_name(plans):
+    from pathlib import Path
+
+    from apsidal.compiler.diff import diff_reports
+
+    sample = (Path(__file__).parent.parent / "samples" / "weft-slots.aps").read_text()
+    revised = sample.replace("phase -120 deg in 15 rev\ndrop weft-b",
+                             "phase -120 deg in 12 rev\ndrop weft-b")
+    revised = revised.replace("periapsis to -30 km", "periapsis to 20 km")
+    assert revised.count("in 12 rev") == 1 and "to 20 km" in revised
+    old, new = plans.budget(sample), plans.budget(revised)
+    d = diff_reports(old, new)
+    status = {e["name"]: e["status"] for e in d["steps"]}
+    entry = {e["name"]: e for e in d["steps"]}
+    assert status["slot-b/1"] == status["slot-b/2"] == "changed"  # fewer revolutions, dearer
+    assert entry["slot-b/1"]["new"]["dv_m_s"] > entry["slot-b/1"]["old"]["dv_m_s"]
+    # slot-c flies the same burns, at another mass
+    assert entry["slot-c/1"]["new"]["dv_m_s"] == pytest.approx(
+        entry["slot-c/1"]["old"]["dv_m_s"], abs=1e-9)
+    assert status["weft-a"] == status["weft-c"] == "same"
+    assert status["deorbit"] == status["reentry"] == "changed"
+    assert d["change"]["dv_m_s"] == pytest.approx(
+        new["totals"]["dv_m_s"] - old["totals"]["dv_m_s"], abs=1e-9)
