@@ -49,10 +49,11 @@ def entry_rows(step: Entry, index: int, batch: Batch, ctx: Context, fails: Failu
         ("the interface was crossed on the way to the last burn or after it; end the plan "
         "with `entry` before the craft comes down that far, or give a lower interface")))
     d, meets = _inbound(batch.r, batch.v, mu, R)
-    el = elements_from_state(batch.r, batch.v, mu)
+    periapsis = lambda i: elements_from_state(batch.r[i:i + 1], batch.v[i:i + 1], mu
+                                              ).periapsis[0]  # worded on demand only
     fails.add(~meets, lambda i: (
         (f"the orbit never comes down to the entry interface ({step.shown}): its periapsis "
-         f"is at {alt(el.periapsis[i])} altitude"),
+         f"is at {alt(periapsis(i))} altitude"),
         ("lower the periapsis under the interface with the plan's last burn, e.g. "
         "`burn deorbit at apoapsis: periapsis to 50 km` (it may go under the surface)")))
     fails.add(meets & ~np.isfinite(d), lambda i: (

@@ -249,15 +249,18 @@ def _radius_angle(place: Place, r, v, mu, fails: Failures, body_radius: float):
     up, down, meets = kepler.radius_crossings(r, v, mu, R)
     later = lambda d: np.where(np.isfinite(d), _ahead(d, place.next), np.inf)
     d = np.minimum(later(up), later(down))
-    el = elements_from_state(r, v, mu)
     alt = lambda x: f"{x - body_radius:.3f} km"
-    fails.add(~meets, lambda i: (
-        (f"the orbit never reaches {place.label()} ({R - body_radius:.3f} km altitude, "
-         f"{R:.3f} km from the centre): it runs from "
-         f"periapsis {alt(el.periapsis[i])} to "
-         + (f"apoapsis {alt(el.apoapsis[i])}" if el.closed[i] else "infinity (open)")
-         + " altitude"),
-        "coast to an altitude between its periapsis and apoapsis, or change the orbit first"))
+
+    def never(i: int) -> tuple[str, str]:
+        el = elements_from_state(r[i:i + 1], v[i:i + 1], mu)  # worded on demand only
+        return ((f"the orbit never reaches {place.label()} ({R - body_radius:.3f} km "
+                 f"altitude, {R:.3f} km from the centre): it runs from periapsis "
+                 f"{alt(el.periapsis[0])} to "
+                 + (f"apoapsis {alt(el.apoapsis[0])}" if el.closed[0] else "infinity (open)")
+                 + " altitude"),
+                "coast to an altitude between its periapsis and apoapsis, or change the orbit")
+
+    fails.add(~meets, never)
     fails.add(meets & ~np.isfinite(d), lambda i: (
         f"the craft has passed {place.label()} on this open orbit and never comes back to it",
         "coast to a radius ahead of the craft, or burn here"))
