@@ -15,6 +15,7 @@ of the craft (behind, for a negative angle) at the first burn then stands.  Chec
 from __future__ import annotations
 
 import math
+import re
 
 import numpy as np
 import pytest
@@ -157,6 +158,29 @@ def test_the_fewest_revolutions_that_clear_the_surface(plans):
     # behind never dips: a larger orbit
     assert run(load_text(plans.text("start circular 400 km",
                                     "transfer p: phase -150 deg in 1 rev"))).ok
+
+
+@pytest.mark.parametrize("at", ["apoapsis", "anomaly 120 deg", "anomaly 250 deg"])
+def test_the_fewest_revolutions_are_the_fewest_on_an_ellipse(plans, at):
+    # the hint's count flies, one fewer is refused (the refusal's own arithmetic is the
+    # tangential burn to a periapsis on the surface; here the plans themselves decide)
+    from apsidal.compiler.evaluate import run
+    from apsidal.compiler.load import load_text
+
+    start = "start orbit periapsis 300 km apoapsis 3000 km inclination 20 deg"
+    refused = run(load_text(plans.text(start, f"transfer p at {at}: phase 120 deg in 1 rev")))
+    assert not refused.ok and "under the surface" in refused.error.message
+    fewest = int(re.search(r"`phase 120 deg in (\d+) rev`", refused.error.hint).group(1))
+    assert fewest > 1
+    ok = run(load_text(plans.text(start, f"transfer p at {at}: phase 120 deg in {fewest} rev")))
+    assert ok.ok, ok.error
+    from apsidal.compiler.state import elements_from_state
+
+    low = elements_from_state(ok.rows[0].after.r, ok.rows[0].after.v, ok.program.body.gm)
+    assert low.periapsis[0] >= ok.program.body.radius
+    fewer = run(load_text(plans.text(start,
+                                     f"transfer p at {at}: phase 120 deg in {fewest - 1} rev")))
+    assert not fewer.ok and "under the surface" in fewer.error.message
 
 
 def test_an_elliptic_orbit_away_from_the_apsides(plans):
