@@ -131,7 +131,7 @@ class Row:
 
     step: int  # index of the plan step (0-based)
     name: str
-    kind: str  # burn | coast | drop | expect
+    kind: str  # burn | coast | drop | expect | allow | entry
     at: str
     after: Batch
     dv_vec: np.ndarray | None = None  # (B, 3) along, cross, radial in km/s
