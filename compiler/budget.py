@@ -91,7 +91,20 @@ def _step_dict(i: int, row: Row, mu: float, radius: float) -> dict:
         out["coast_before_s"] = finite(row.coast_time[0], 6)
     if row.kind == "expect":
         out["checks"] = [_check_dict(c, radius) for c in row.checks]
+    if row.kind == "entry":
+        out["entry"] = entry_dict(row.after.r[0], row.after.v[0], radius)
     return out
+
+
+def entry_dict(r, v, radius: float) -> dict:
+    """The state at the entry interface: its altitude, the inertial speed and the
+    flight-path angle (negative below the local horizontal)."""
+    rmag = float(np.linalg.norm(r))
+    radial = float(np.dot(r, v)) / rmag
+    transverse = float(np.linalg.norm(np.cross(r, v))) / rmag
+    return {"altitude_km": finite(rmag - radius, 6),
+            "speed_m_s": finite(np.linalg.norm(v) * 1000.0, 6),
+            "flight_path_angle_deg": finite(np.degrees(np.arctan2(radial, transverse)), 9)}
 
 
 def _coast_time(row: Row) -> float:

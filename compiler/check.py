@@ -470,8 +470,13 @@ class Checker:
         if not new:
             return
         lines = "\n".join(self.unparse(x) for x, _ in new)
+        # read back before the plan's `entry`, if it ends with one: only there may a last
+        # burn put the periapsis under the surface
+        last = self.statements[-1] if self.statements else None
+        tail = self.unparse(last) + "\n" if isinstance(last, ast.Entry) else ""
         try:
-            program = load_text(self._settings + "\n" + lines + "\n", self.program.source.path)
+            program = load_text(self._settings + "\n" + lines + "\n" + tail,
+                                self.program.source.path)
         except PlanError as exc:
             raise RuntimeError(f"a rewritten statement does not parse back: {exc.message}\n"
                                f"{lines}") from exc

@@ -41,11 +41,13 @@ from dataclasses import dataclass, replace
 OWN_NUMBERS = {"dv_m_s": 1e-3, "dv_with_margin_m_s": 1e-3, "propellant_kg": 1e-4,
                "duration_s": 1e-3, "margin_pct": 1e-9}
 OWN_WORDS = ("kind", "at", "engine")
+# The state at an `entry` step's interface, compared the same way.
+ENTRY_NUMBERS = {"speed_m_s": 1e-3, "flight_path_angle_deg": 1e-6}
 # The per-step change reported for every entry (new minus old, zero for a missing side).
 STEP_CHANGE = ("dv_m_s", "dv_with_margin_m_s", "propellant_kg", "duration_s")
 
 # The names lowering gives unnamed steps: `burn-2`, `transfer-1/2`.
-DEFAULT_NAME = re.compile(r"(burn|transfer|coast|drop|expect)-\d+(/\d+)?")
+DEFAULT_NAME = re.compile(r"(burn|transfer|coast|drop|expect|entry)-\d+(/\d+)?")
 
 
 @dataclass(frozen=True)
@@ -111,6 +113,9 @@ def step_changed(old: dict, new: dict) -> bool:
     if any(old.get(k) != new.get(k) for k in OWN_WORDS):
         return True
     if any(not _close(old.get(k), new.get(k), tol) for k, tol in OWN_NUMBERS.items()):
+        return True
+    at_old, at_new = old.get("entry") or {}, new.get("entry") or {}
+    if any(not _close(at_old.get(k), at_new.get(k), tol) for k, tol in ENTRY_NUMBERS.items()):
         return True
     return _checks(old) != _checks(new)
 

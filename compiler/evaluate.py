@@ -45,6 +45,7 @@ from .steps import (
     Coast,
     Drop,
     EngineSpec,
+    Entry,
     Expect,
     Place,
     Program,
@@ -131,7 +132,7 @@ class Row:
 
     step: int  # index of the plan step (0-based)
     name: str
-    kind: str  # burn | coast | drop | expect
+    kind: str  # burn | coast | drop | expect | allow | entry
     at: str
     after: Batch
     dv_vec: np.ndarray | None = None  # (B, 3) along, cross, radial in km/s
@@ -171,25 +172,49 @@ class Context:
     default_engine: EngineSpec
     margin: float
     statistical_scale: float = 1.0  # see Program.statistical_scale
+    descent_from: int | None = None  # see Program.descent_from
+    entry_radius: float | None = None  # the interface of the plan's `entry`, km
+    interface: float | None = None  # set on the way down (``apply``): coasts stay above it
 
 
 def context_for(program: Program) -> Context:
+    end = program.steps[-1] if program.steps else None
     return Context(program.body.gm, program.body.radius, program.craft.default_engine,
-                   program.margin, program.statistical_scale)
+                   program.margin, program.statistical_scale, program.descent_from,
+                   end.radius if isinstance(end, Entry) else None)
+
+
+def descending(ctx: Context, index: int) -> Context:
+    """The context of step ``index``: past the start of a plan's way down (its last burn
+    before `entry`) the conic may pass under the surface, and coasts must end above the
+    entry interface instead."""
+    if ctx.descent_from is None or index < ctx.descent_from:
+        return ctx
+    return replace(ctx, interface=ctx.entry_radius)
 
 
 # --- getting somewhere -------------------------------------------------------------
 
 
-def _target_angle(place: Place, r, v, mu, fails: Failures, f=None):
-    """Sweep angle ahead to ``place``; zero where the place is here (``f``: the orbit's
-    ``frame`` if already at hand)."""
+def _ahead(d, later: bool):
+    """A sweep within HERE_TOL of none (or of a full turn) is here: no sweep, or with
+    `next` a full revolution."""
+    here = (d < HERE_TOL) | (d > TWO_PI - HERE_TOL)
+    return np.where(here, TWO_PI if later else 0.0, d)
+
+
+def _target_angle(place: Place, r, v, mu, fails: Failures, radius: float = 0.0, f=None):
+    """Sweep angle ahead to ``place``; zero where the place is here (a full turn with
+    ``next``).  ``radius`` is the body's, for messages; ``f`` the orbit's ``frame`` if
+    already at hand."""
     f = frame(r, v, mu) if f is None else f
     ecc = norm(f.e_vec)
     equatorial = np.hypot(f.h[:, 0], f.h[:, 1]) <= np.sin(EQUATORIAL_RAD)
     circular = ecc < CIRCULAR_ECC
     open_ = ecc >= 1.0
     kind = place.kind
+    if kind == "radius":
+        return _radius_angle(place, r, v, mu, fails, radius)
     if kind in ("periapsis", "apoapsis", "anomaly"):
         now = signed_angle(f.periapsis, r, f.h)
         target = {"periapsis": 0.0, "apoapsis": np.pi}.get(kind, place.angle)
@@ -207,26 +232,48 @@ def _target_angle(place: Place, r, v, mu, fails: Failures, f=None):
             fails.add(outbound, lambda i: (
                 (f"periapsis already passed on this open orbit (true anomaly "
                 f"{np.degrees(now[i]):.3f} deg, outbound)"), "burn here instead"))
-    else:
-        now = signed_angle(f.node, r, f.h)
-        if kind == "ascending node":
-            d = np.mod(-now, TWO_PI)
-        elif kind == "descending node":
-            d = np.mod(np.pi - now, TWO_PI)
-        elif kind == "node":  # for a coast: the next node (a burn prices both instead)
-            d = np.minimum(np.mod(-now, TWO_PI), np.mod(np.pi - now, TWO_PI))
-        else:
-            raise ValueError(f"unknown place {kind!r}")
-        d = np.where(equatorial, 0.0, d)
-    d = np.where((d < HERE_TOL) | (d > TWO_PI - HERE_TOL), 0.0, d)
-    return d
+        return _ahead(d, place.next)
+    now = signed_angle(f.node, r, f.h)
+    asc = _ahead(np.where(equatorial, 0.0, np.mod(-now, TWO_PI)), place.next)
+    desc = _ahead(np.where(equatorial, 0.0, np.mod(np.pi - now, TWO_PI)), place.next)
+    if kind == "ascending node":
+        return asc
+    if kind == "descending node":
+        return desc
+    if kind == "node":  # for a coast: the next node (a burn prices both instead)
+        return np.minimum(asc, desc)
+    raise ValueError(f"unknown place {kind!r}")
 
 
-def goto(place: Place, r, v, mu, fails: Failures, sweep=None):
+def _radius_angle(place: Place, r, v, mu, fails: Failures, body_radius: float):
+    """Sweep to the next crossing of the place's radius, on either branch."""
+    R = place.radius
+    up, down, meets = kepler.radius_crossings(r, v, mu, R)
+    later = lambda d: np.where(np.isfinite(d), _ahead(d, place.next), np.inf)
+    d = np.minimum(later(up), later(down))
+    alt = lambda x: f"{x - body_radius:.3f} km"
+
+    def never(i: int) -> tuple[str, str]:
+        el = elements_from_state(r[i:i + 1], v[i:i + 1], mu)  # worded on demand only
+        return ((f"the orbit never reaches {place.label()} ({R - body_radius:.3f} km "
+                 f"altitude, {R:.3f} km from the centre): it runs from periapsis "
+                 f"{alt(el.periapsis[0])} to "
+                 + (f"apoapsis {alt(el.apoapsis[0])}" if el.closed[0] else "infinity (open)")
+                 + " altitude"),
+                "coast to an altitude between its periapsis and apoapsis, or change the orbit")
+
+    fails.add(~meets, never)
+    fails.add(meets & ~np.isfinite(d), lambda i: (
+        f"the craft has passed {place.label()} on this open orbit and never comes back to it",
+        "coast to a radius ahead of the craft, or burn here"))
+    return np.where(np.isfinite(d), d, 0.0)
+
+
+def goto(place: Place, r, v, mu, fails: Failures, sweep=None, radius: float = 0.0):
     """Coast to ``place``; returns (r, v, seconds).
 
     A ``crossing`` is resolved by the caller, who knows the plane: ``sweep`` is the angle
-    to it, per element.
+    to it, per element.  ``radius`` (the body's) words the messages in altitudes.
     """
     if place.kind == "here":
         return r, v, np.zeros(r.shape[0])
@@ -234,7 +281,7 @@ def goto(place: Place, r, v, mu, fails: Failures, sweep=None):
     if place.kind == "crossing":  # exact geometry: no snapping of small angles to here
         d = np.where(sweep > TWO_PI - 1e-15, 0.0, sweep)
     else:
-        d = _target_angle(place, r, v, mu, fails, f)
+        d = _target_angle(place, r, v, mu, fails, radius, f)
     dt, ok_t = kepler.time_of_flight(r, v, mu, d, f)
     r1, v1, ok_p = kepler.place(r, v, mu, d, f)
     fails.add(~(ok_t & ok_p), lambda i: (
@@ -295,7 +342,7 @@ def _solve_burn(step: Burn, r, v, ctx: Context, fails: Failures, normal=None):
 def _burn_at(step: Burn, place: Place, r, v, ctx: Context, normal=None,
              sweep=None) -> BurnOutcome:
     fails = Failures(r.shape[0])
-    r1, v1, coast = goto(place, r, v, ctx.mu, fails, sweep)
+    r1, v1, coast = goto(place, r, v, ctx.mu, fails, sweep, ctx.radius)
     v2 = _solve_burn(step, r1, v1, ctx, fails, normal)
     return BurnOutcome(r1, v1, v2, coast, fails, place.label())
 
@@ -324,8 +371,8 @@ def _cheaper(a: BurnOutcome, b: BurnOutcome) -> BurnOutcome:
 def burn_outcome(step: Burn, r, v, ctx: Context, normal=None) -> BurnOutcome:
     """Where and how the burn happens; ``node`` picks the cheaper node per element."""
     if step.place.kind == "node":
-        asc = _burn_at(step, Place("ascending node"), r, v, ctx, normal)
-        desc = _burn_at(step, Place("descending node"), r, v, ctx, normal)
+        asc = _burn_at(step, replace(step.place, kind="ascending node"), r, v, ctx, normal)
+        desc = _burn_at(step, replace(step.place, kind="descending node"), r, v, ctx, normal)
         return _cheaper(asc, desc)
     if step.place.kind == "crossing":
         first, second = crossings(r, v, target_plane(r, v, step.inclination, step.raan))
@@ -418,7 +465,10 @@ def _propellant(batch: Batch, dvm, engine: EngineSpec):
 
 
 def _check_surface(r, v, ctx: Context, fails: Failures, name: str):
-    """A conic whose periapsis is under the surface hits the body (if it gets there)."""
+    """A conic whose periapsis is under the surface hits the body (if it gets there);
+    on the way down to a plan's `entry` that is what it is meant to do."""
+    if ctx.interface is not None:
+        return
     periapsis, closed = periapsis_radius(r, v, ctx.mu)
     inbound = dot(r, v) < 0
     reaches = closed | inbound
@@ -483,7 +533,7 @@ def _transfer(step: Transfer, index: int, batch: Batch, ctx: Context, fails: Fai
     if step.place.kind in ("node", "crossing"):
         # price the whole transfer from each node (crossing) and keep the cheaper per element
         if step.place.kind == "node":
-            ways = [(replace(step, place=Place(kind)), None)
+            ways = [(replace(step, place=replace(step.place, kind=kind)), None)
                     for kind in ("ascending node", "descending node")]
         else:
             target = target_plane(batch.r, batch.v, step.inclination, step.raan)
@@ -531,9 +581,14 @@ def _either(b_up: Burn, b_down: Burn, up, index, batch: Batch, ctx: Context, fai
 
 def _transfer_from(step: Transfer, index: int, batch: Batch, ctx: Context, fails: Failures,
                    sweep=None):
+    if step.form == "phasing":
+        from .phasing import phasing_rows
+
+        return phasing_rows(step, index, batch, ctx, fails)
     if step.form == "plane-change":
         return _three_burn_plane_change(step, index, batch, ctx, fails, sweep)
-    r0, v0, _ = goto(step.place, batch.r, batch.v, ctx.mu, Failures(batch.size), sweep)
+    r0, v0, _ = goto(step.place, batch.r, batch.v, ctx.mu, Failures(batch.size), sweep,
+                     ctx.radius)
     up, phases = _phase_burns(step, r0, v0, ctx)
     normals = [None] * len(phases)
     if step.changes_plane:
@@ -625,7 +680,7 @@ def _three_burn_plane_change(step: Transfer, index, batch: Batch, ctx: Context, 
     both apsides of the orbit the craft started from (the apse line may have turned).
     """
     tmp = Failures(batch.size)
-    r0, v0, _ = goto(step.place, batch.r, batch.v, ctx.mu, tmp, sweep)
+    r0, v0, _ = goto(step.place, batch.r, batch.v, ctx.mu, tmp, sweep, ctx.radius)
     el = elements_from_state(r0, v0, ctx.mu)
     circular = el.ecc < CIRCULAR_ECC
     keep_pe = np.where(circular, norm(r0), el.periapsis)
@@ -678,16 +733,26 @@ def _coast(step: Coast, index: int, batch: Batch, ctx: Context, fails: Failures)
         dt = np.full(batch.size, step.duration)
         at = f"for {_span_text(step.duration)}"
     elif step.mode == "to":
-        r, v, dt = goto(step.place, batch.r, batch.v, mu, fails)
+        r, v, dt = goto(step.place, batch.r, batch.v, mu, fails, radius=ctx.radius)
         at = step.place.label()
     else:
         el = elements_from_state(batch.r, batch.v, mu)
         fails.add(~el.closed, lambda i: (
             f"an open orbit (eccentricity {el.ecc[i]:.6f}) has no revolutions to coast",
             "coast `for` a time instead"))
-        r, v = batch.r, batch.v
-        dt = np.where(el.closed, el.period * step.revs, 0.0)
-        at = f"{step.revs} rev"
+        period = np.where(el.closed, el.period, 0.0)
+        part = step.revs - np.floor(step.revs)  # whole revolutions come back here
+        if part > 0:
+            r, v, ok = kepler.propagate(batch.r, batch.v, mu, period * part)
+            fails.add(~ok, lambda i: ("the coast could not be propagated", None))
+        else:
+            r, v = batch.r, batch.v
+        dt = period * step.revs
+        at = f"{step.revs:g} rev"
+    if ctx.interface is not None:  # on the way down: the coast must end above the interface
+        from .entry import before_interface
+
+        before_interface(step, batch, dt, ctx, fails)
     ok = fails.ok
     new = replace(batch, r=np.where(ok[:, None], r, batch.r),
                   v=np.where(ok[:, None], v, batch.v), t=batch.t + dt)
@@ -778,7 +843,12 @@ def _expect(step: Expect, index: int, batch: Batch, ctx: Context, fails: Failure
 def apply(step: Step, index: int, batch: Batch, ctx: Context) -> tuple[Batch, list[Row], Failures]:
     """Move the whole batch through one step."""
     fails = Failures(batch.size)
-    if isinstance(step, Burn):
+    ctx = descending(ctx, index)
+    if isinstance(step, Entry):
+        from .entry import entry_rows
+
+        new, rows = entry_rows(step, index, batch, ctx, fails)
+    elif isinstance(step, Burn):
         new, row = _burn_rows(step, index, step.name, batch, ctx, fails)
         rows = [row]
     elif isinstance(step, Transfer):
@@ -824,7 +894,7 @@ def run(program: Program, strict: bool = False) -> Result:
     ctx = context_for(program)
     batch = start_batch(program)
     start_fails = Failures(1)
-    _check_surface(batch.r, batch.v, ctx, start_fails, "the start")
+    _check_surface(batch.r, batch.v, descending(ctx, -1), start_fails, "the start")
     rows: list[Row] = []
     error = None
     failed = kind = None

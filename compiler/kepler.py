@@ -20,6 +20,7 @@ U1, U2, U3 of chi (from Stumpff's C and S, by series near z = alpha chi^2 = 0),
   method (Conway's form of it for Kepler's equation) kept inside a bracket that only
   shrinks, after taking whole periods off an ellipse's dt, and builds the new state
   from the Lagrange coefficients f, g, fdot, gdot.
+* ``radius_crossings`` finds where the conic crosses a radius, from the orbit equation.
 * ``time_of_flight`` (a coast to a place) needs no iteration: the geometry of the sweep
   gives f and g exactly, hence U2 = r0 (1 - f) and U1 = (sqrt(mu) g - sigma0 U2) / r0,
   chi from their ratio, and dt = g + U3 / sqrt(mu); whole revolutions add periods.
@@ -45,7 +46,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .state import TWO_PI, cross, dot, frame, norm, signed_angle, unit
+from .state import CIRCULAR_ECC, TWO_PI, cross, dot, frame, norm, signed_angle, unit
 
 SERIES_Z = 1.0  # |z| below this: Stumpff's functions by their power series
 _SERIES_TERMS = 12  # the last term is z^11 / 25!: far below double precision for |z| < 1
@@ -286,3 +287,54 @@ def time_of_flight(r: np.ndarray, v: np.ndarray, mu: float, dtheta: np.ndarray, 
         dt = g + u3 / sqmu + revs * np.where(closed, _period(alpha, sqmu), 0.0)
     ok &= np.isfinite(dt) & (dt >= 0)
     return np.where(ok, dt, 0.0), ok
+
+
+# --- where the conic crosses a radius ----------------------------------------------------
+
+
+def radius_crossings(r: np.ndarray, v: np.ndarray, mu: float, radius: float):
+    """Sweep angles from (r, v) to where the conic crosses ``radius`` (km): outbound
+    (climbing) and inbound, each inf where it is not ahead; and whether it crosses at all.
+
+    The orbit equation r = p / (1 + e cos nu) puts the crossings at nu = +-nu_R with
+    tan^2(nu_R / 2) = (1 - cos nu_R) / (1 + cos nu_R) = (1 + e)(R - rp) / (p - (1 - e) R),
+    written with R - rp so that a crossing at an apsis comes out exact.  On an ellipse
+    both crossings come round again (sweeps in [0, 2 pi)); on an open orbit only those
+    ahead of the craft count, and the sweep is the difference of true anomalies.  A
+    circular orbit (e < 1e-9) crosses only its own radius, here.
+
+    >>> import numpy as np
+    >>> mu = 398600.4418
+    >>> r = np.array([[7000.0, 0, 0]]); v = np.array([[0, 8.0, 0]])   # at periapsis
+    >>> up, down, meets = radius_crossings(r, v, mu, 7000.0)
+    >>> float(up[0]), round(float(down[0]), 12), bool(meets[0])
+    (0.0, 0.0, True)
+    """
+    f = frame(r, v, mu)
+    e = norm(f.e_vec)
+    rmag = norm(r)
+    p = norm(cross(r, v)) ** 2 / mu
+    rp = p / (1.0 + e)
+    closed = e < 1.0
+    R = np.full_like(rmag, float(radius))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ra = np.where(closed, p / np.where(closed, 1.0 - e, 1.0), np.inf)
+    round_ = e < CIRCULAR_ECC
+    tol = 1e-12 * R
+    meets = np.where(round_, np.abs(rmag - R) <= 1e-9 * R,
+                     (R >= rp - tol) & (R <= ra + tol))
+    above = np.maximum((1.0 + e) * (R - rp), 0.0)
+    below = np.maximum(p - (1.0 - e) * R, 0.0)
+    nu = np.where(np.abs(R - rp) <= tol, 0.0, 2.0 * np.arctan2(np.sqrt(above), np.sqrt(below)))
+    now = signed_angle(f.periapsis, r, f.h)
+    signed_now = np.where(now > np.pi, now - TWO_PI, now)  # open orbits: (-pi, pi]
+    out_closed = np.mod(nu - now, TWO_PI)
+    in_closed = np.mod(-nu - now, TWO_PI)
+    out_open = nu - signed_now
+    in_open = -nu - signed_now
+    ahead = lambda d: np.where(d >= -1e-12, np.maximum(d, 0.0), np.inf)
+    up = np.where(closed, out_closed, ahead(out_open))
+    down = np.where(closed, in_closed, ahead(in_open))
+    up = np.where(round_, 0.0, up)
+    down = np.where(round_, 0.0, down)
+    return np.where(meets, up, np.inf), np.where(meets, down, np.inf), meets

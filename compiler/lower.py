@@ -25,6 +25,7 @@ from .steps import (
     Craft,
     Drop,
     EngineSpec,
+    Entry,
     Expect,
     Place,
     Program,
@@ -87,6 +88,7 @@ class Lowerer:
         self.start: ast.Start | None = None
         self.names: dict[str, Span] = {}
         self.counts: dict[str, int] = {}
+        self._ends = False  # the plan ends with `entry`
 
     # --- plan-level statements ---------------------------------------------------------
 
@@ -126,6 +128,7 @@ class Lowerer:
             raise _err("the plan has no start orbit", top,
                        "add a line such as `start circular 400 km inclination 51.6 deg`")
         r, v = self._start_state(self.start)
+        self._ends = self._entry_order(steps_ast)
         steps = []
         self.counts_before: list[dict[str, int]] = []  # default-name counts before each step
         for node in steps_ast:
@@ -410,11 +413,40 @@ class Lowerer:
         self.names[name] = node.span
         return name
 
+    def _entry_order(self, steps_ast) -> bool:
+        """Whether the plan ends with `entry`; an `entry` anywhere else is an error."""
+        for k, node in enumerate(steps_ast):
+            if isinstance(node, ast.Entry) and k < len(steps_ast) - 1:
+                after = steps_ast[k + 1]
+                raise _err("nothing may follow `entry`: the chain ends at the entry "
+                           f"interface (line {node.span.line})", after,
+                           "move this step before the `entry`: a plan ends where its craft "
+                           "comes down")
+        return bool(steps_ast) and isinstance(steps_ast[-1], ast.Entry)
+
     def _place(self, where: ast.Where | None) -> Place:
         if where is None:
             return HERE
+        if where.kind == "radius":
+            if where.distance is None:  # a rewrite that lost its distance proves nothing
+                raise _err("a radius place needs its altitude or radius", where)
+            R = self._radius(where.distance)
+            if R <= self.body.radius:
+                raise _err(f"{where.distance.quantity.text()} is at or under the surface of "
+                           f"{self.body.name} (radius {self.body.radius:g} km): no orbit passes "
+                           "there", where.distance,
+                           "to end the plan where the craft comes down, write `entry at 0 km` "
+                           "(the surface) or `entry at 120 km` (an entry interface); "
+                           + ALTITUDE_HINT)
+            text = ("radius " if where.distance.is_radius else "") + \
+                where.distance.quantity.text()
+            return Place("radius", radius=R, next=where.next, shown=text)
+        if where.next and where.kind == "crossing":
+            raise _err("`next` takes the next pass of an apsis, a node, an anomaly or a "
+                       "radius; `crossing` is already the cheaper of two crossings", where,
+                       "drop `next`, or name the node or anomaly to burn at")
         angle = where.angle.internal() if where.angle is not None else None
-        return Place(where.kind, angle)
+        return Place(where.kind, angle, next=where.next)
 
     def _options(self, node):
         engine, margin, seen = None, self.margin, {}
@@ -480,8 +512,10 @@ class Lowerer:
                                "give the burn `at crossing` instead, or coast `to node`")
                 return Coast(name, "to", place=self._place(node.where), span=node.span,
                              movable=free)
-            return Coast(name, "rev", revs=int(node.duration.value), span=node.span,
+            return Coast(name, "rev", revs=node.duration.value, span=node.span,
                          movable=free)
+        if isinstance(node, ast.Entry):
+            return self._entry(node)
         if isinstance(node, ast.Allow):
             return self._allow(node)
         if isinstance(node, ast.Drop):
@@ -521,6 +555,14 @@ class Lowerer:
         for k in ("periapsis", "apoapsis"):
             if k in goals:
                 kw[k] = self._radius(goals[k].value)
+                if k == "periapsis" and self._ends:
+                    if kw[k] > 0:
+                        continue  # a way down: the evaluator allows it only on the last burn
+                    raise _err(f"the periapsis target ({kw[k] - self.body.radius:.3f} km "
+                               f"altitude, radius {kw[k]:.3f} km) lies past the centre of "
+                               f"{self.body.name}: no orbit has it", goals[k],
+                               "the last burn before `entry` may put the periapsis under the "
+                               f"surface, down to an altitude above -{self.body.radius:.3f} km")
                 if kw[k] <= self.body.radius:
                     raise _err(f"the {k} target ({kw[k] - self.body.radius:.3f} km altitude, "
                                f"radius {kw[k]:.3f} km) is under the surface of "
@@ -551,6 +593,8 @@ class Lowerer:
             raise _err("`tangential` is an option of a one-apsis burn, not of a transfer",
                        self._tangential, "drop it: a transfer's burns are already tangential")
         self._crossing_needs_plane(node, goals, "transfer")
+        if "phase" in goals:
+            return self._phasing(node, name, goals, place, engine, margin, fixed)
         bad = [k for k in goals if k not in ("circular", "inclination", "raan")]
         if bad:
             raise _err(f"a transfer takes `circular`, `inclination to` and `raan to`, "
@@ -585,6 +629,46 @@ class Lowerer:
                        "add the raised apoapsis, or use `burn NAME at node: inclination to ...`")
         return Transfer(name, place, "plane-change", None, via, inc, raan, None, engine, margin,
                         node.span, fixed)
+
+    def _phasing(self, node: ast.Transfer, name, goals, place, engine, margin, fixed
+                 ) -> Transfer:
+        """`transfer NAME: phase ANGLE in N rev`: leave the orbit and come back to the same
+        point after N revolutions of the phasing orbit, ANGLE ahead (or behind)."""
+        goal = goals["phase"]
+        others = [g for k, g in goals.items() if k != "phase"]
+        if others:
+            raise _err(f"a phasing transfer comes back to the orbit it left: it takes no "
+                       f"`{others[0].kind}` goal", others[0],
+                       "phase in one transfer and change the orbit in another step")
+        if node.via is not None:
+            raise _err("a phasing transfer has no `via apoapsis`: the phasing orbit's size "
+                       "follows from the angle and the revolutions", node.via,
+                       "drop `via apoapsis ...`; more revolutions make a smaller detour")
+        if place.kind == "node":
+            raise _err("a phasing transfer needs one point: the angle is measured from where "
+                       "it burns, and the two nodes of an eccentric orbit give two "
+                       "different phasings", node.where,
+                       "write `at ascending node` or `at descending node`")
+        angle = goal.value.internal()
+        if not abs(angle) < 2 * np.pi:
+            raise _err(f"a phase angle is less than a full turn, got {goal.value.text()}",
+                       goal.value, "write an angle between -360 and 360 deg: positive to arrive "
+                       "ahead, negative to arrive behind")
+        return Transfer(name, place, "phasing", engine=engine, margin=margin, span=node.span,
+                        fixed=fixed, phase=angle, revs=int(goal.revs.value))
+
+    def _entry(self, node: ast.Entry) -> Entry:
+        name = self._name(node, "entry")
+        R = self._radius(node.interface)
+        if R < self.body.radius * (1 - 1e-12):
+            raise _err(f"the entry interface ({node.interface.quantity.text()}) is under the "
+                       f"surface of {self.body.name} (radius {self.body.radius:g} km)",
+                       node.interface,
+                       "give the interface altitude, 0 km or more: `entry at 120 km` is a "
+                       "common interface for the Earth, `entry at 0 km` an impact; "
+                       + ALTITUDE_HINT)
+        text = ("radius " if node.interface.is_radius else "") + node.interface.quantity.text()
+        return Entry(name, max(R, self.body.radius), text, node.span)
 
     def _allow(self, node: ast.Allow) -> Allow:
         name = self._name(node, "allow")

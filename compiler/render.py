@@ -228,6 +228,12 @@ def fit_lines(report: dict) -> list[str]:
     if "fuel_kg" in tot:
         out.append(f"components           fuel {sig(tot['fuel_kg'])} kg, oxidiser "
                    f"{sig(tot['oxidiser_kg'])} kg burnt")
+    for step in report["steps"]:
+        if "entry" in step:
+            e = step["entry"]
+            out.append(f"entry interface      {sig(e['altitude_km'])} km ({step['name']}): "
+                       f"{sig(e['speed_m_s'])} m/s, flight-path angle "
+                       f"{sig(e['flight_path_angle_deg'])} deg (inertial)")
     if not report.get("feasible", True) and "error" not in report:
         out.append(f"DOES NOT FIT         {shortfall_text(report)}"
                    + (" (steps marked * are not covered, priced as if the tanks held the "
@@ -347,7 +353,8 @@ STEP_CSV = ["index", "name", "kind", "at", "engine", "dv_m_s", "dv_with_margin_m
             "along_m_s", "cross_m_s", "radial_m_s", "propellant_kg", "mass_after_kg",
             "burn_time_s", "coast_time_s", "duration_s", "elapsed_s", "periapsis_alt_km",
             "apoapsis_alt_km", "sma_km", "ecc", "inclination_deg", "raan_deg", "argp_deg",
-            "anomaly_deg", "period_s", "covered", "fuel_kg", "oxidiser_kg"]
+            "anomaly_deg", "period_s", "covered", "fuel_kg", "oxidiser_kg",
+            "entry_speed_m_s", "entry_flight_path_angle_deg"]
 CHECK_CSV = ["check", "comparator", "expected", "tolerance", "actual", "unit", "passed"]
 MESSAGE_CSV = ["severity", "rule", "message"]
 CSV_COLUMNS = ["record", "source", *STEP_CSV, *CHECK_CSV, *MESSAGE_CSV]
@@ -367,9 +374,11 @@ def csv_records(report: dict) -> list[dict]:
     rows = []
     for s in report["steps"]:
         vec = s["vector_m_s"]
+        entry = s.get("entry", {})
         rows.append({**s, **s["orbit_after"], "record": "step", "source": src,
                      "along_m_s": vec["along"], "cross_m_s": vec["cross"],
-                     "radial_m_s": vec["radial"]})
+                     "radial_m_s": vec["radial"], "entry_speed_m_s": entry.get("speed_m_s"),
+                     "entry_flight_path_angle_deg": entry.get("flight_path_angle_deg")})
         for c in s.get("checks", []):
             rows.append({"record": "check", "source": src, "index": s["index"],
                          "name": s["name"], "kind": s["kind"], "check": c["kind"],

@@ -1,8 +1,9 @@
 """The reorder search: the cheapest ordering of each block of movable steps.
 
 A plan splits into blocks at its barriers: ``drop``, ``expect``, explicit-vector burns,
-timed coasts (``for``, ``rev``) and steps marked ``fixed`` stay where they are, unless
-the plan marks them ``movable``.  Inside a block the goal burns,
+timed coasts (``for``, ``rev``), phasing transfers (their timing is their purpose),
+``entry`` and the way down to it (from the last burn before it), and steps marked
+``fixed`` stay where they are, unless the plan marks them ``movable``.  Inside a block the goal burns,
 transfers and coasts to a place may be flown in any order, and each ordering is priced by
 the evaluator.  The orderings form a prefix tree: all orderings that start with the same
 steps share those steps' state, so each level of the tree is one batched ``apply`` per
@@ -26,7 +27,7 @@ import numpy as np
 
 from .evaluate import Batch, Context, apply, context_for, start_batch
 from .state import dot, elements_from_state, frame, norm
-from .steps import Allow, Burn, Coast, Drop, Expect, Program
+from .steps import Allow, Burn, Coast, Drop, Entry, Expect, Program, Transfer
 
 WORK_LIMIT = 500_000  # steps priced (one step on one partial order) per block
 WINDOW = 12  # blocks up to this many steps are searched whole
@@ -40,9 +41,11 @@ def is_barrier(step) -> bool:
         return True
     if getattr(step, "movable", False):  # freed by the plan with `movable`
         return False
-    if isinstance(step, (Drop, Expect, Allow)):
+    if isinstance(step, (Drop, Expect, Allow, Entry)):
         return True
     if isinstance(step, Burn) and step.vector is not None:
+        return True
+    if isinstance(step, Transfer) and step.form == "phasing":
         return True
     return bool(isinstance(step, Coast) and step.mode in ("for", "rev"))
 
@@ -50,8 +53,9 @@ def is_barrier(step) -> bool:
 def blocks(program: Program) -> list[list[int]]:
     """Runs of consecutive movable step indices with at least two steps."""
     out, run = [], []
+    down = program.descent_from
     for i, step in enumerate(program.steps):
-        if is_barrier(step):
+        if is_barrier(step) or (down is not None and i >= down):
             if len(run) > 1:
                 out.append(run)
             run = []

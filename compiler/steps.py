@@ -78,14 +78,20 @@ class Place:
 
     # here | periapsis | apoapsis | ascending node | descending node | node | anomaly |
     # crossing (where the current plane meets the plane the burn's goals name; the cheaper
-    # of the two, like `node`)
+    # of the two, like `node`) | radius (where the orbit crosses a radius, the next time)
     kind: str
     angle: float | None = None  # rad, for anomaly
+    radius: float | None = None  # km from the centre, for radius
+    next: bool = False  # the next pass, a revolution on when the craft stands there now
+    shown: str = ""  # a radius place as the plan wrote it (`500 km`, `radius 6878 km`)
 
     def label(self) -> str:
+        lead = "next " if self.next else ""
         if self.kind == "anomaly":
-            return f"anomaly {np.degrees(self.angle):g} deg"
-        return self.kind
+            return f"{lead}anomaly {np.degrees(self.angle):g} deg"
+        if self.kind == "radius":
+            return lead + (self.shown or f"radius {self.radius:g} km")
+        return lead + self.kind
 
 
 HERE = Place("here")
@@ -129,7 +135,7 @@ class Transfer:
 
     name: str
     place: Place
-    form: str  # hohmann | bielliptic | plane-change
+    form: str  # hohmann | bielliptic | plane-change | phasing
     radius: float | None = None  # target circular radius, km
     via: float | None = None  # intermediate apoapsis radius, km
     inclination: float | None = None
@@ -139,6 +145,8 @@ class Transfer:
     margin: float = 0.0
     span: Span | None = None
     fixed: bool = False
+    phase: float | None = None  # rad, phasing: ahead (> 0) or behind (< 0) on return
+    revs: int | None = None  # phasing: revolutions of the phasing orbit
     kind: str = field(default="transfer", init=False)
 
     @property
@@ -154,7 +162,7 @@ class Coast:
     mode: str  # for | to | rev
     duration: float | None = None  # s
     place: Place | None = None
-    revs: int | None = None
+    revs: float | None = None  # whole or fractional revolutions (periods of time)
     span: Span | None = None
     movable: bool = False
     kind: str = field(default="coast", init=False)
@@ -209,7 +217,19 @@ class Allow:
     kind: str = field(default="allow", init=False)
 
 
-Step = Burn | Transfer | Coast | Drop | Expect | Allow
+@dataclass(frozen=True)
+class Entry:
+    """The end of the chain: a coast down to the entry interface, the next time the
+    craft descends through that radius (the body's radius for an impact)."""
+
+    name: str
+    radius: float  # km from the centre
+    shown: str = ""  # as the plan wrote it: `120 km`
+    span: Span | None = None
+    kind: str = field(default="entry", init=False)
+
+
+Step = Burn | Transfer | Coast | Drop | Expect | Allow | Entry
 
 
 @dataclass(frozen=True)
@@ -248,3 +268,13 @@ class Program:
 
     def with_steps(self, steps) -> Program:
         return replace(self, steps=tuple(steps))
+
+    @property
+    def descent_from(self) -> int | None:
+        """Where a plan that ends with `entry` starts its way down: the index of its last
+        burn or transfer (-1 when it has none: the start orbit is already on its way).
+        From there on the conic may pass under the surface; None without an entry."""
+        if not self.steps or not isinstance(self.steps[-1], Entry):
+            return None
+        return max((i for i, s in enumerate(self.steps) if isinstance(s, Burn | Transfer)),
+                   default=-1)

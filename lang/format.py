@@ -135,10 +135,15 @@ def _value(v) -> str:
 
 
 def _where(w: ast.Where) -> str:
-    return f"{w.kind} {w.angle.text()}" if w.angle is not None else w.kind
+    lead = "next " if w.next else ""
+    if w.kind == "radius":
+        return lead + _value(w.distance)
+    return lead + (f"{w.kind} {w.angle.text()}" if w.angle is not None else w.kind)
 
 
 def _goal(g: ast.Goal) -> str:
+    if g.kind == "phase":
+        return f"phase {_value(g.value)} in {g.revs.number} rev"
     if g.kind in ("apoapsis", "periapsis", "inclination", "raan"):
         return f"{g.kind} to {_value(g.value)}"
     return g.kind if g.value is None else f"{g.kind} {_value(g.value)}"
@@ -236,6 +241,8 @@ def _step_parts(stmt) -> _StepParts:
         return _StepParts("coast", name, "", False, body, _free(stmt))
     if isinstance(stmt, ast.Drop):
         return _StepParts("drop", name, "", False, stmt.mass.text(), _free(stmt))
+    if isinstance(stmt, ast.Entry):
+        return _StepParts("entry", name, "", False, f"at {_value(stmt.interface)}", "")
     if isinstance(stmt, ast.Allow):
         body = stmt.amount.text()
         if stmt.duration is not None:

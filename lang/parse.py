@@ -256,6 +256,9 @@ def _slots() -> dict[str, Slot]:
         "goal.radial": Slot("radial component", "speed"),
         "option.margin": Slot("step margin", "ratio", NOT_NEGATIVE),
         "where.anomaly": Slot("anomaly", "angle"),
+        "where.radius": Slot("place altitude", "length"),
+        "goal.phase": Slot("phase angle", "angle"),
+        "entry": Slot("entry interface", "length"),
         "via": Slot("via apoapsis", "length"),
         "coast.for": Slot("coast duration", "time", POSITIVE),
         "drop": Slot("drop mass", "mass", POSITIVE),
@@ -365,6 +368,9 @@ def _unknown_unit(word: str, span: Span, slot: Slot | None = None) -> PlanError:
 # --- names ---------------------------------------------------------------------------
 
 _WORD = re.compile(r"[A-Za-z_%][A-Za-z0-9_\-/%]*")
+# Keywords that may still name a step: `in` stands only inside a phasing goal (`phase
+# 30 deg in 2 rev`), where no name can, and plans named steps `in` before it was a keyword.
+NAMEABLE = frozenset({"in"})
 _NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_-]*")
 
 
@@ -372,7 +378,7 @@ def _named(name: ast.Name | None, role: str) -> ast.Name | None:
     """``name`` when it can name ``role`` ("a step", "an engine", ...)."""
     if name is None:
         return None
-    if name.text in keywords():
+    if name.text in keywords() and name.text not in NAMEABLE:
         raise PlanError(f"`{name.text}` is a keyword and cannot name {role}", name.span,
                         hint=f"choose another name, such as `{name.text}-1`")
     if not _NAME.fullmatch(name.text):
@@ -498,11 +504,17 @@ class _ToSyntax(Transformer):
         return children[0]
 
     def where(self, meta, children):
-        kind = " ".join(str(c) for c in children if isinstance(c, Token))
-        angle = children[-1] if isinstance(children[-1], ast.Quantity) else None
+        words = [str(c) for c in children if isinstance(c, Token)]
+        later = words[:1] == ["next"]
+        kind = " ".join(words[1:] if later else words)
+        last = children[-1]
+        if isinstance(last, ast.Distance):  # where the orbit crosses that altitude or radius
+            return ast.Where("radius", None, _span(meta), _checked(last, SLOTS["where.radius"]),
+                             later)
+        angle = last if isinstance(last, ast.Quantity) else None
         if angle is not None:
             _checked(angle, SLOTS["where.anomaly"])
-        return ast.Where(kind, angle, _span(meta))
+        return ast.Where(kind, angle, _span(meta), None, later)
 
     def goal(self, meta, children):
         kind = str(children[0])
@@ -511,7 +523,18 @@ class _ToSyntax(Transformer):
             _checked(value, SLOTS[f"goal.{kind}"])
         return ast.Goal(kind, value, _span(meta))
 
-    transfer_goal = goal
+    def transfer_goal(self, meta, children):
+        if str(children[0]) != "phase":
+            return self.goal(meta, children)
+        _, angle, _, count, _ = children  # phase ANGLE in N rev
+        revs = ast.Quantity(str(count), "", _token_span(count))
+        if not (math.isfinite(revs.value) and revs.value >= 1 and revs.value.is_integer()):
+            raise PlanError(f"a phasing orbit is flown a whole number of times, got "
+                            f"`{count} rev`", revs.span,
+                            hint="write a whole number of revolutions, 1 or more, such as "
+                                 "`in 2 rev`: the craft comes back to the point of the burn "
+                                 "only after whole revolutions")
+        return ast.Goal("phase", _checked(angle, SLOTS["goal.phase"]), _span(meta), revs)
 
     def goals(self, meta, children):
         return tuple(children)
@@ -556,15 +579,20 @@ class _ToSyntax(Transformer):
     def coast_rev(self, meta, children):
         name, count, free = children
         revs = ast.Quantity(str(count), "", _token_span(count))
-        if not (math.isfinite(revs.value) and revs.value > 0 and revs.value.is_integer()):
-            raise PlanError(f"a coast counts whole revolutions, got `{count} rev`", revs.span,
-                            hint="write a positive whole number such as `2 rev`, or coast "
-                                 "`for` a time or `to` a point of the orbit")
+        if not (math.isfinite(revs.value) and revs.value > 0):
+            raise PlanError(f"a coast counts a positive number of revolutions, got "
+                            f"`{count} rev`", revs.span,
+                            hint="write a number above zero such as `2 rev` or `0.5 rev`, or "
+                                 "coast `for` a time or `to` a point of the orbit")
         return ast.Coast(name, "rev", revs, None, _span(meta), free)
 
     def drop(self, meta, children):
         name, mass, free = children
         return ast.Drop(name, _checked(mass, SLOTS["drop"]), _span(meta), free)
+
+    def entry(self, meta, children):
+        name, interface = children
+        return ast.Entry(name, _checked(interface, SLOTS["entry"]), _span(meta))
 
     def allow(self, meta, children):
         name, amount, duration, options = children

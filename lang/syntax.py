@@ -57,11 +57,18 @@ class Distance:
 
 @dataclass(frozen=True)
 class Where:
-    """Where a burn or a coast ends: an apsis, a node, a true anomaly, or here."""
+    """Where a burn or a coast ends: an apsis, a node, a true anomaly, a radius, or here.
+
+    ``next`` (`at next apoapsis`) takes the next pass of the place even when the craft
+    stands there now; ``distance`` is the altitude or radius of a ``radius`` place.
+    """
 
     kind: str  # periapsis | apoapsis | ascending node | descending node | node | crossing | anomaly
+    # | radius
     angle: Quantity | None
     span: Span
+    distance: Distance | None = None
+    next: bool = False
 
 
 @dataclass(frozen=True)
@@ -83,6 +90,7 @@ class Goal:
     kind: str
     value: Quantity | Distance | None
     span: Span
+    revs: Quantity | None = None  # `phase ANGLE in N rev`: the phasing orbit's revolutions
 
 
 @dataclass(frozen=True)
@@ -201,7 +209,7 @@ class Transfer:
 
 @dataclass(frozen=True)
 class Coast:
-    """``coast NAME for 3 h`` | ``coast NAME to apoapsis`` | ``coast NAME 2 rev``."""
+    """``coast NAME for 3 h`` | ``coast NAME to apoapsis`` | ``coast NAME 2.5 rev``."""
 
     name: Name | None
     mode: str  # for | to | rev
@@ -246,11 +254,21 @@ class Expect:
     movable: bool = False
 
 
+@dataclass(frozen=True)
+class Entry:
+    """``entry NAME at 120 km``: the chain ends where the craft comes down through the
+    entry interface (``0 km``: the surface)."""
+
+    name: Name | None
+    interface: Distance
+    span: Span
+
+
 Statement = (
     PlanTitle | Around | BodyDef | CraftDef | Setting | Start | Burn | Transfer | Coast | Drop
-    | Expect | Allow
+    | Expect | Allow | Entry
 )
-STEP_TYPES = (Burn, Transfer, Coast, Drop, Expect, Allow)
+STEP_TYPES = (Burn, Transfer, Coast, Drop, Expect, Allow, Entry)
 
 
 @dataclass(frozen=True)

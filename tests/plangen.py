@@ -157,7 +157,7 @@ def _step(draw, names: _Names, orbit: Orbit, engines: list[str], heavy: list[int
     if orbit.apoapsis - 300.0 - orbit.drift > low:
         kinds.append("periapsis")
     if heavy[0] < 3:
-        kinds += ["plane"] + (["transfer"] if orbit.circular else [])
+        kinds += ["plane"] + (["transfer", "phasing"] if orbit.circular else [])
     kind = draw(st.sampled_from(kinds))
     name = names.maybe()
     if kind == "coast":
@@ -166,9 +166,14 @@ def _step(draw, names: _Names, orbit: Orbit, engines: list[str], heavy: list[int
             unit = draw(st.sampled_from(("s", "min", "h", "d")))
             return ["coast", *name, "for", q(draw(numbers(1, 5, 1)), unit)]
         if form == "to":
-            return ["coast", *name, "to", *draw(st.sampled_from(
-                (["apoapsis"], ["periapsis"], ["anomaly", q("120", "deg")])))]
-        return ["coast", *name, str(draw(st.integers(1, 3))), "rev"]
+            places = [["apoapsis"], ["periapsis"], ["anomaly", q("120", "deg")],
+                      ["next", "apoapsis"], ["next", "node"]]
+            if orbit.apoapsis - orbit.periapsis > 4 * orbit.drift + 200.0:  # crossed twice
+                middle = q(_num(round((orbit.periapsis + orbit.apoapsis) / 2)), "km")
+                places += [[middle], ["next", "radius", q(_num(round(
+                    6378.137 + (orbit.periapsis + orbit.apoapsis) / 2)), "km")]]
+            return ["coast", *name, "to", *draw(st.sampled_from(places))]
+        return ["coast", *name, draw(st.sampled_from(("1", "2", "3", "0.5", "2.25"))), "rev"]
     if kind == "drop":
         return ["drop", *name, q(draw(numbers(0.1, 0.5, 1)), "kg")]
     if kind == "allow":
@@ -204,8 +209,8 @@ def _step(draw, names: _Names, orbit: Orbit, engines: list[str], heavy: list[int
     if kind == "apoapsis":
         target = orbit.periapsis + orbit.drift + float(draw(numbers(200, 30000, 0)))
         orbit.apoapsis, orbit.circular = target, False
-        return [*head, "at", "periapsis", ":", "apoapsis", "to", q(_num(target), "km"),
-                *_options(draw, engines)]
+        return [*head, "at", *draw(st.sampled_from((["periapsis"], ["next", "periapsis"]))),
+                ":", "apoapsis", "to", q(_num(target), "km"), *_options(draw, engines)]
     if kind == "periapsis":
         target = float(draw(numbers(low, orbit.apoapsis - 300.0 - orbit.drift, 0)))
         orbit.periapsis, orbit.circular = target, False
@@ -218,6 +223,10 @@ def _step(draw, names: _Names, orbit: Orbit, engines: list[str], heavy: list[int
         orbit.circular = True
         return [*head, "at", at, ":", "circular", *_options(draw, engines)]
     heavy[0] += 1
+    if kind == "phasing":  # ahead little enough to stay clear of the surface from 400 km
+        angle = draw(st.sampled_from(("20", "-40", "7.5", "-120")))
+        return ["transfer", *name, ":", "phase", q(angle, "deg"), "in",
+                str(draw(st.integers(3, 5))), "rev", *_options(draw, engines)]
     if kind == "plane":
         target = min(90.0, max(0.0, orbit.inclination + float(draw(numbers(-15, 15, 1)))))
         orbit.inclination = target
@@ -257,6 +266,12 @@ def drafts(draw, max_steps: int = 7) -> Draft:
     heavy = [0]
     for _ in range(draw(st.integers(0, max_steps))):
         d.statements.append(Statement(_flatten(_step(draw, names, orbit, engines, heavy))))
+    if draw(st.integers(0, 4)) == 0:  # the way down: a last burn under the interface, entry
+        d.statements.append(Statement(["burn", *names.maybe(), ":", "periapsis", "to",
+                                       q(draw(st.sampled_from(("50", "-20"))), "km")]))
+        d.statements.append(Statement(["entry", *names.maybe(), "at",
+                                       *draw(st.sampled_from(([q("120", "km")],
+                                                              ["radius", q("6500", "km")])))]))
     return d
 
 

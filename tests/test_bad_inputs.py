@@ -77,6 +77,33 @@ ASYMPTOTE_1_5 = math.degrees(math.acos(-1 / 1.5))
 
 HYPERBOLA = "start orbit periapsis 400 km ecc 1.5"
 
+# Phasing 180 deg ahead in one revolution from a 400 km circle needs half its period, an
+# orbit of sma R400 / 2^(2/3) whose periapsis is opposite the burn (Kepler's third law);
+# the lowest phasing orbit the surface allows has its periapsis on it, sma (RE + R400) / 2,
+# and N revolutions clear the surface once N (T - T_min) > T / 2.
+T400 = 2 * math.pi * math.sqrt(R400**3 / MU)
+HOP_PERIAPSIS = 2 * R400 / 2 ** (2 / 3) - R400 - RE
+_T_MIN = 2 * math.pi * math.sqrt(((RE + R400) / 2) ** 3 / MU)
+HOP_FEWEST = math.floor((T400 / 2) / (T400 - _T_MIN)) + 1
+
+
+def _down_to(alt: float) -> float:
+    """Time from the apoapsis of a 50 x 400 km orbit down to altitude ``alt`` (Kepler's
+    equation, from memory: M = E - e sin E, with E from r = a (1 - e cos E))."""
+    rp, ra, r = RE + 50.0, R400, RE + alt
+    a, e = (rp + ra) / 2, (ra - rp) / (ra + rp)
+    E = 2 * math.pi - math.acos((1 - r / a) / e)  # inbound: past apoapsis, before periapsis
+    M = E - e * math.sin(E)
+    return (M - math.pi) * math.sqrt(a**3 / MU)
+
+
+DOWN_TO_120_S = _down_to(120.0)
+
+
+def col(step: str, under: str) -> int:
+    """The column (from 1) where ``under`` first stands in a step's line."""
+    return step.index(under) + 1
+
 # --- the table ---------------------------------------------------------------------------
 
 
@@ -139,8 +166,8 @@ CASES = [
         ("out of range",), "ordinary number"),
     Bad("keyword-as-step-name", plan("burn apoapsis: along 5 m/s"), 10, 6, "apoapsis",
         ("is a keyword and cannot name a step",), "choose another name"),
-    Bad("fractional-revolutions", plan("coast wait 1.5 rev"), 10, 12, "1.5",
-        ("whole revolutions",), "`2 rev`"),
+    Bad("no-revolutions", plan("coast wait 0 rev"), 10, 12, "0",
+        ("a positive number of revolutions",), "`0.5 rev`"),
     # --- the craft and the body -------------------------------------------------------------
     Bad("negative-dry-mass", scene("dry 500 kg", "dry -500 kg"), 4, 9, "-500 kg",
         ("dry mass must be positive", "-500 kg"), "greater than zero"),
@@ -317,6 +344,76 @@ CASES = [
     Bad("ceiling-below-start", plan(start="ceiling 100 km\n" + START), 9, 1, "ceiling",
         ("the ceiling (100 km altitude) is below the start orbit",),
         "`ceiling radius 7400 km` is from the centre"),
+    # --- phasing, places and the way down to an entry ----------------------------------------
+    Bad("phasing-under-the-surface", plan(HOP := "transfer hop: phase 180 deg in 1 rev"),
+        10, 1, "transfer hop", ("hop:", "needs a phasing orbit of period",
+                                "under the surface"),
+        f"`phase 180 deg in {HOP_FEWEST} rev`",
+        numbers=((r"period ([\d.]+) s \(the orbit's is ([\d.]+) s\)", (T400 / 2, T400)),
+                 (r"periapsis falls to (-?[\d.]+) km altitude", (HOP_PERIAPSIS,)))),
+    Bad("phasing-from-an-open-orbit", plan("transfer hop: phase 30 deg in 1 rev",
+                                           start=HYPERBOLA), 10, 1, "transfer hop",
+        ("comes back to a closed orbit", "open"), "capture first"),
+    Bad("phasing-with-another-goal", plan(s := "transfer hop: phase 30 deg in 1 rev, circular 500 km"),
+        10, col(s, "circular"), "circular 500 km", ("takes no `circular` goal",),
+        "change the orbit in another step"),
+    Bad("phasing-via-apoapsis", plan(s := "transfer hop: phase 30 deg in 1 rev via apoapsis 900 km"),
+        10, col(s, "900 km"), "900 km", ("has no `via apoapsis`",), "more revolutions"),
+    Bad("phasing-at-either-node", plan(s := "transfer hop at node: phase 30 deg in 1 rev"),
+        10, col(s, "node"), "node", ("needs one point",), "`at ascending node`"),
+    Bad("phasing-a-full-turn", plan(s := "transfer hop: phase 360 deg in 2 rev"),
+        10, col(s, "360"), "360 deg", ("less than a full turn",), "between -360 and 360 deg"),
+    Bad("phasing-half-a-revolution", plan(s := "transfer hop: phase 30 deg in 1.5 rev"),
+        10, col(s, "1.5"), "1.5", ("a whole number of times",), "`in 2 rev`"),
+    Bad("phase-angle-as-a-length", plan(s := "transfer hop: phase 30 km in 2 rev"),
+        10, col(s, "30 km"), "30 km", ("phase angle needs an angle", "got a length"),
+        "`30 deg`"),
+    Bad("radius-never-reached", plan(s := "coast up to 900 km"), 10, 1, "coast up",
+        ("up:", "never reaches 900 km"), "between its periapsis and apoapsis",
+        numbers=((r"from periapsis ([\d.]+) km to apoapsis ([\d.]+) km", (400.0, 400.0)),)),
+    Bad("radius-passed-on-an-open-orbit", plan("coast back to 500 km",
+                                               start=HYPERBOLA + " anomaly 60 deg"),
+        10, 1, "coast back", ("back:", "has passed 500 km", "never comes back"),
+        "a radius ahead of the craft"),
+    Bad("next-periapsis-on-an-open-orbit", plan("coast again to next periapsis",
+                                                start=HYPERBOLA),
+        10, 1, "coast again", ("again:", "never reaches next periapsis"), "burn here"),
+    Bad("next-crossing", plan(s := "burn b at next crossing: raan to 40 deg"),
+        10, col(s, "next"), "next crossing", ("`next` takes the next pass",), "drop `next`"),
+    Bad("radius-place-under-the-surface", plan(s := "coast down to -10 km"),
+        10, col(s, "-10"), "-10 km", ("at or under the surface",), "`entry at 0 km`"),
+    Bad("step-after-entry", plan("burn down at periapsis: periapsis to 50 km",
+                                 "entry at 120 km", "drop junk 1 kg"),
+        12, 1, "drop junk", ("nothing may follow `entry`", "line 11"), "before the `entry`"),
+    Bad("entry-under-the-surface", plan(s := "entry at -5 km"), 10, col(s, "-5"), "-5 km",
+        ("the entry interface (-5 km) is under the surface",), "`entry at 0 km`"),
+    Bad("entry-as-an-angle", plan(s := "entry at 120 deg"), 10, col(s, "120"), "120 deg",
+        ("entry interface needs a length", "got an angle"), "`120 km`"),
+    Bad("entry-never-reached", plan("entry fall at 120 km"), 10, 1, "entry fall",
+        ("fall:", "never comes down to the entry interface (120 km)"),
+        "lower the periapsis under the interface",
+        numbers=((r"periapsis is at ([\d.]+) km altitude", (400.0,)),)),
+    Bad("entry-leaving-on-an-open-orbit",
+        plan("entry fall at 120 km", start="start orbit periapsis 50 km ecc 1.5 anomaly 30 deg"),
+        10, 1, "entry fall", ("fall:", "leaving on an open orbit"), "turn the craft back"),
+    Bad("entry-from-under-the-interface",
+        plan("burn up at periapsis: apoapsis to 1200 km", "entry fall at 120 km",
+             start="start orbit periapsis 100 km apoapsis 1000 km"),
+        11, 1, "entry fall", ("fall:", "already under the entry interface (120 km)"),
+        "end the plan with `entry` before",
+        numbers=((r"it is at ([\d.]+) km altitude", (100.0,)),)),
+    Bad("coast-through-the-interface",
+        plan("burn down: periapsis to 50 km", "coast wait for 2 h", "entry at 120 km"),
+        11, 1, "coast wait", ("wait:", "comes down through the entry interface (120 km)",
+                              "before it ends (7200.000 s)"), "coast for less",
+        numbers=((r"\(120 km\) ([\d.]+) s into this coast", (DOWN_TO_120_S,)),)),
+    Bad("way-down-past-the-centre", plan(s := "burn down: periapsis to -7000 km",
+                                         "entry at 120 km"),
+        10, col(s, "periapsis"), "periapsis to -7000 km", ("lies past the centre",),
+        "down to an altitude above -6378.137 km"),
+    Bad("under-the-surface-before-the-last-burn",
+        plan("burn down: periapsis to -30 km", "burn trim: along 1 m/s", "entry at 120 km"),
+        10, 1, "burn down", ("down:", "under the surface", "-30.000 km"), "raise the periapsis"),
 ]
 
 assert len(CASES) >= 30

@@ -305,3 +305,54 @@ def test_mars_loiter_is_two_capture_periods():
     loiter = step(rep, "loiter")
     assert loiter["elapsed_s"] - previous(rep, "loiter")["elapsed_s"] == pytest.approx(
         2 * period, rel=1e-6)
+
+
+# --- the dispenser: phased slots and the carrier's disposal ------------------------------
+
+
+def test_weft_slots_are_a_third_of_a_turn_apart():
+    """A craft left on the circle moves on at the mean motion n; the carrier comes back to
+    the point of its burn 15 phasing periods later, T' = T (1 + (120 / 360) / 15), so the
+    craft it left there is n 15 T' = 15 turns + 120 deg ahead of it (Kepler's third law)."""
+    rep = report("weft-slots")
+    mu, R = rep["body"]["gm_km3_s2"], rep["body"]["radius_km"]
+    r = R + 560.0
+    period = 2 * math.pi * math.sqrt(r**3 / mu)
+    drops = [step(rep, name)["elapsed_s"] for name in ("weft-a", "weft-b", "weft-c")]
+    ahead = lambda t: math.degrees(2 * math.pi * t / period) % 360.0
+    assert ahead(drops[1] - drops[0]) == pytest.approx(120.0, abs=1e-6)  # A ahead of B
+    assert ahead(drops[2] - drops[1]) == pytest.approx(120.0, abs=1e-6)  # B ahead of C
+    assert ahead(drops[2] - drops[0]) == pytest.approx(240.0, abs=1e-6)  # C 120 ahead of A
+    # each phasing orbit: vis-viva at the burn point, the period from Kepler's third law
+    t_phase = period * (1 + (120.0 / 360.0) / 15)
+    a_phase = (mu * (t_phase / (2 * math.pi)) ** 2) ** (1 / 3)
+    dv = (vis_viva(mu, r, a_phase) - circular_speed(mu, r)) * 1000.0
+    for name in ("slot-b/1", "slot-b/2", "slot-c/1", "slot-c/2"):
+        assert step(rep, name)["dv_m_s"] == close(dv)
+    assert step(rep, "slot-b/1")["orbit_after"]["apoapsis_alt_km"] == close(2 * a_phase - r - R)
+    assert step(rep, "slot-b/2")["coast_before_s"] == close(15 * t_phase)
+
+
+def test_weft_carrier_disposal_and_entry():
+    """The disposal burn lowers the perigee to -30 km from the 560 km circle (vis-viva on
+    the -30 x 560 km ellipse); the entry speed at 120 km is vis-viva there and the
+    flight-path angle follows from the angular momentum, cos(gamma) = h / (r v)."""
+    rep = report("weft-slots")
+    mu, R = rep["body"]["gm_km3_s2"], rep["body"]["radius_km"]
+    ra, rp, r = R + 560.0, R - 30.0, R + 120.0
+    a = 0.5 * (ra + rp)
+    v_apo = vis_viva(mu, ra, a)
+    deorbit = step(rep, "deorbit")
+    assert deorbit["dv_m_s"] == close((circular_speed(mu, ra) - v_apo) * 1000.0)
+    assert deorbit["vector_m_s"]["along"] < 0
+    entry = step(rep, "reentry")
+    assert entry["kind"] == "entry" and rep["steps"][-1] is entry
+    speed = vis_viva(mu, r, a)
+    gamma = -math.degrees(math.acos(ra * v_apo / (r * speed)))
+    assert entry["entry"]["speed_m_s"] == close(speed * 1000.0)
+    assert entry["entry"]["flight_path_angle_deg"] == pytest.approx(gamma, abs=1e-7)
+    # the time down from apoapsis to 120 km: Kepler's equation, E from r = a (1 - e cos E)
+    e = (ra - rp) / (ra + rp)
+    E = 2 * math.pi - math.acos((1 - r / a) / e)
+    t = (E - e * math.sin(E) - math.pi) * math.sqrt(a**3 / mu)
+    assert entry["coast_time_s"] == close(t)

@@ -158,6 +158,8 @@ def costlier_node(c: Checker) -> list[Finding]:
     for i, step in enumerate(c.program.steps):
         if not isinstance(step, (Burn, Transfer)) or step.place.kind not in other:
             continue
+        if getattr(step, "form", "") == "phasing":
+            continue  # its angle is measured from where it burns: another node is another phasing
         node = c.statements[i]
         moved = with_where(with_goals(node, c.pin_plane(node.goals, i)), other[step.place.kind])
         proposals.append((c.rewrite({i: [moved]}), lambda proof, step=step: c.finding(
