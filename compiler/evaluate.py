@@ -282,6 +282,8 @@ def goto(place: Place, r, v, mu, fails: Failures, sweep=None, radius: float = 0.
         d = np.where(sweep > TWO_PI - 1e-15, 0.0, sweep)
     else:
         d = _target_angle(place, r, v, mu, fails, radius, f)
+    if not d.any():  # already there, every element: no coast
+        return r, v, np.zeros(r.shape[0])
     dt, ok_t = kepler.time_of_flight(r, v, mu, d, f)
     r1, v1, ok_p = kepler.place(r, v, mu, d, f)
     fails.add(~(ok_t & ok_p), lambda i: (
