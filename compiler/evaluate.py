@@ -787,11 +787,12 @@ def _allow(step: Allow, index: int, batch: Batch, ctx: Context, fails: Failures,
                      covered=covered)]
 
 
-def measure(kind: str, batch: Batch, ctx: Context) -> np.ndarray:
-    """The value an expectation of ``kind`` reads from the state (internal units)."""
+def measure(kind: str, batch: Batch, ctx: Context, el=None) -> np.ndarray:
+    """The value an expectation of ``kind`` reads from the state (internal units);
+    ``el``: the state's elements if already at hand."""
     if kind in ("mass", "propellant"):
         return batch.mass if kind == "mass" else batch.propellant
-    el = elements_from_state(batch.r, batch.v, ctx.mu)
+    el = elements_from_state(batch.r, batch.v, ctx.mu) if el is None else el
     return {
         "periapsis": el.periapsis,
         "apoapsis": el.apoapsis,
@@ -824,7 +825,7 @@ def _expect(step: Expect, index: int, batch: Batch, ctx: Context, fails: Failure
             actual = np.where(np.abs(pe - check.target) >= np.abs(ap - check.target), pe, ap)
             passed = err <= check.tolerance
         else:
-            actual = measure(check.kind, batch, ctx)
+            actual = measure(check.kind, batch, ctx, el)
             if check.comparator == "at least":
                 passed = actual >= check.target
             elif check.comparator == "at most":
