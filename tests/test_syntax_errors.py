@@ -18,7 +18,7 @@ from hypothesis import strategies as st
 ERRORS = [
     # id, text, (line, column), message, part of the hint
     ("unexpected-character", "around earth\nburn x: circular 3 km )\n", (2, 23),
-     "unexpected character `)`", "expected `margin`, `,`, `using`, `fixed`, `movable`, `tangential`, `statistical` or end of line"),
+     "unexpected character `)`", "expected `margin`, `,`, `using`, `fixed`, `movable`, `tangential`, `statistical`, `frame` or end of line"),
     ("misspelt-goal", "burn raise at periapsis: apoapsys to 35786 km\n", (1, 26),
      "unexpected `apoapsys`", "did you mean `apoapsis`?"),
     ("misspelt-where", "burn raise at periapsys: apoapsis to 35786 km\n", (1, 15),
