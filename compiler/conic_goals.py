@@ -179,7 +179,7 @@ def conic_speeds(rmag, vr0, mu, p, e, failures: Failures, radius: float):
     # v_r^2 = (mu / p) ((1 + e) - p/r) (p/r - (1 - e)), each factor written to be exactly
     # zero at its apsis
     f1 = (1.0 + e) * np.maximum(rmag - rp, 0.0) / rmag
-    f2 = np.where(closed, (1.0 - e) * np.maximum(ra - rmag, 0.0) / rmag,
+    f2 = np.where(closed, (1.0 - e) * np.maximum(np.where(closed, ra, rmag) - rmag, 0.0) / rmag,
                   p / rmag + e - 1.0)
     vr = np.sqrt(mu / p * f1 * np.maximum(f2, 0.0))
     return np.where(vr0 < 0, -vr, vr), np.sqrt(mu * p) / rmag
@@ -272,7 +272,7 @@ def ecc_speeds(rmag, x0, y0, mu, E):
         def curve(s, Em=Em, nu_of=nu_of):
             nu, dnu = nu_of(s)
             c, sn = np.cos(nu), np.sin(nu)
-            Y = np.sqrt(np.maximum(1.0 + Em * c, 1e-300))
+            Y = np.sqrt(np.maximum(1.0 + Em * c, 1e-30))  # > 0 inside the asymptotes
             dY = -Em * sn / (2.0 * Y)
             X = Em * sn / Y
             dX = Em * c / Y + Em**2 * sn**2 / (2.0 * Y**3)

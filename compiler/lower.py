@@ -453,11 +453,14 @@ class Lowerer:
         """`at crossing` is where the current plane meets the plane the goals name."""
         if node.where is None or node.where.kind != "crossing":
             return
-        if "raan" not in goals and (kind != "burn" or "argp" not in goals):
-            also = " (or, for a burn, the orbit it turns to: an `argp to` goal)"
+        if kind == "burn" and "raan" not in goals and "argp" not in goals:
+            raise _err("`at crossing` needs a `raan to` goal (the plane the burn turns to, "
+                       "with or without `inclination to`) or an `argp to` goal (the orbit "
+                       "it turns to)", node.where,
+                       "for `inclination to` alone burn `at node`; every node reaches it")
+        if "raan" not in goals and kind != "burn":
             raise _err(f"`at crossing` needs the plane a {kind} turns to: a `raan to` goal "
-                       "(with or without `inclination to`)" + (also if kind == "burn" else ""),
-                       node.where,
+                       "(with or without `inclination to`)", node.where,
                        "for `inclination to` alone burn `at node`; every node reaches it")
     def _goals(self, node) -> dict:
         goals: dict = {}
@@ -508,10 +511,10 @@ class Lowerer:
                                        or ("periapsis" in goals) == ("apoapsis" in goals)
                                        or any(k in goals for k in burn_goals.CONIC_WORDS)):
             raise _err("`tangential` goes with one apsis goal (`apoapsis to` or "
-                       "`periapsis to`): it keeps the flight-path angle while that apsis "
-                       "moves", tangential,
+                       "`periapsis to`) and no other goal on the shape: it keeps the "
+                       "flight-path angle while that apsis moves", tangential,
                        "drop `tangential`; with both apsides or `circular` the burn is "
-                       "already fixed")
+                       "already fixed, and an energy goal alone is already tangential")
         self._crossing_needs_plane(node, goals, "burn")
         if explicit:
             other = [k for k in goals if k not in burn_goals.COMPONENT_WORDS]
