@@ -375,11 +375,18 @@ _WORD = re.compile(r"[A-Za-z_%][A-Za-z0-9_\-/%]*")
 _NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_-]*")
 
 
+# Keywords that came after plans could use them as names (`coast c3 for 2 h`): they may
+# still name things, since no name stands where they do; only an `expect` step cannot be
+# named after one of its checks (`expect c3 ...` reads the check).
+LATER_KEYWORDS = frozenset({"c3", "elapsed", "velocity", "normal", "binormal", "transverse",
+                            "frame"})
+
+
 def _named(name: ast.Name | None, role: str) -> ast.Name | None:
     """``name`` when it can name ``role`` ("a step", "an engine", ...)."""
     if name is None:
         return None
-    if name.text in keywords():
+    if name.text in keywords() and name.text not in LATER_KEYWORDS:
         raise PlanError(f"`{name.text}` is a keyword and cannot name {role}", name.span,
                         hint=f"choose another name, such as `{name.text}-1`")
     if not _NAME.fullmatch(name.text):
