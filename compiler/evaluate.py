@@ -347,6 +347,11 @@ def _apse_crossing(step: Burn, r, v, ctx: Context, normal=None) -> BurnOutcome:
     p2, e2 = conic_goals.apse_target(r, v, ctx.mu, goals, ctx.radius, found)
     first, second = conic_goals.apse_crossings(r, v, ctx.mu, p2, e2, step.argp, found,
                                                ctx.radius)
+    ahead = kepler.place(r, v, ctx.mu, first)[2] | kepler.place(r, v, ctx.mu, second)[2]
+    found.add(~ahead, lambda i: (
+        ("the two orbits cross only behind the craft or beyond the asymptote of this open "
+         "orbit"),
+        "turn the apse line on the way in (before periapsis), or change the shape first"))
     out = _cheaper(_burn_at(step, step.place, r, v, ctx, normal, first),
                    _burn_at(step, step.place, r, v, ctx, normal, second))
     found.merge(np.ones(r.shape[0], dtype=bool), out.fails)

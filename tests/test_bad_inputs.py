@@ -384,6 +384,9 @@ CASES = [
                                   "apoapsis to 4000 km", start=ELLIPSE), 10, 1, "burn b",
         ("does not meet the current orbit", "no single burn reaches it"),
         "change the size or shape first"),
+    Bad("argp-crossings-behind-an-open-orbit",
+        plan("burn b at crossing: argp to 20 deg", start=HYPERBOLA + " anomaly 40 deg"), 10, 1,
+        "burn b", ("cross only behind the craft",), "on the way in"),
     # --- burn frames ---------------------------------------------------------------------------
     Bad("unknown-frame", plan("burn b: radial 1 m/s frame rnt"), 10, 28, "rnt",
         ("unknown frame `rnt`",), "did you mean `rtn`?"),
