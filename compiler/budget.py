@@ -12,6 +12,7 @@ import math
 import numpy as np
 
 from .evaluate import PRICED_KINDS, Result, Row
+from .frames import NAMES, components
 from .state import elements_from_state
 
 CAUTION = ("Preliminary-design estimates under the impulsive two-body approximation; "
@@ -84,6 +85,11 @@ def _step_dict(i: int, row: Row, mu: float, radius: float) -> dict:
         "elapsed_s": finite(row.after.t[0], 6),
         "orbit_after": orbit_dict(row.after.r, row.after.v, mu, radius),
     }
+    if row.kind == "burn":
+        out["frame"] = row.frame
+        rtn = components("rtn", row.after.r[:1], row.v_before[:1],
+                         row.after.v[:1] - row.v_before[:1])[0] * 1000.0
+        out["vector_rtn_m_s"] = {k: finite(x, 6) for k, x in zip(NAMES["rtn"], rtn)}
     if burn:
         out["covered"] = bool(row.covered[0])
         out["engine"] = row.engine.name
@@ -114,14 +120,15 @@ def _coast_time(row: Row) -> float:
 
 UNIT_OF_CHECK = {"periapsis": "km", "apoapsis": "km", "circular": "km", "sma": "km",
                  "ecc": "", "inclination": "deg", "raan": "deg", "argp": "deg",
-                 "period": "s", "mass": "kg", "propellant": "kg"}
+                 "period": "s", "mass": "kg", "propellant": "kg", "vinf": "km/s",
+                 "c3": "km2/s2", "elapsed": "s", "anomaly": "deg"}
 
 
 def check_value(kind: str, x: float, radius: float) -> float | None:
     """A check's number in its display unit (altitudes above the equatorial radius)."""
     if kind in ("periapsis", "apoapsis", "circular"):
         return finite(x - radius, 6)
-    if kind in ("raan", "argp"):
+    if kind in ("raan", "argp", "anomaly"):
         return degrees_wrapped(x)
     if kind == "inclination":
         return finite(np.degrees(x), 9)
@@ -130,7 +137,7 @@ def check_value(kind: str, x: float, radius: float) -> float | None:
 
 def _check_dict(c, radius: float) -> dict:
     tol = c.tolerance
-    if c.kind in ("inclination", "raan", "argp"):
+    if c.kind in ("inclination", "raan", "argp", "anomaly"):
         tol = np.degrees(tol)
     missing = c.missing(0)
     out = {

@@ -156,10 +156,12 @@ class Checker:
                 last, row = row.after, next(rows, None)
             self._before[k] = last
         self._skeleton = _skeleton(self.text, self.statements)
-        # past the last expectation on mass or propellant a re-converged chain is carried
+        # past the last expectation on mass, propellant or elapsed time a re-converged chain
+        # is carried (those depend on more than the orbit state)
         self._mass_checked = max((i for i, st in enumerate(self.program.steps)
                                   if isinstance(st, Expect) and any(
-                                      ch.kind in ("mass", "propellant") for ch in st.checks)),
+                                      ch.kind in ("mass", "propellant", "elapsed")
+                                      for ch in st.checks)),
                                  default=-1)
         self._lines = [self.statement_text(k) for k in range(len(self.statements))]
         self._own = {id(node): k for k, node in enumerate(self.statements)}

@@ -15,7 +15,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 from apsidal.lang.errors import PlanError
 
-from . import kepler
+from . import conic_goals, frames, kepler
 from .solvers import (
     Failures,
     Shape,
@@ -122,6 +122,9 @@ class CheckResult:
         """Why element ``i`` has no value to compare, or None when it has one."""
         if self.undefined is None or not self.undefined[i]:
             return None
+        if self.kind in CLOSED_UNDEFINED:
+            return (f"the orbit is closed (eccentricity {self.ecc[i]:.6f}): it has no "
+                    "hyperbolic excess speed")
         what = {"period": "period", "circular": "apoapsis"}.get(self.kind, self.kind)
         return (f"the orbit is open (eccentricity {self.ecc[i]:.6f}): it has no {what}")
 
@@ -135,7 +138,7 @@ class Row:
     kind: str  # burn | coast | drop | expect | allow | entry
     at: str
     after: Batch
-    dv_vec: np.ndarray | None = None  # (B, 3) along, cross, radial in km/s
+    dv_vec: np.ndarray | None = None  # (B, 3) along, cross, radial (vnb) in km/s
     dv: np.ndarray | None = None
     dv_margin: np.ndarray | None = None
     propellant: np.ndarray | None = None
@@ -147,6 +150,7 @@ class Row:
     checks: list[CheckResult] = field(default_factory=list)
     v_before: np.ndarray | None = None  # (B, 3) velocity just before a burn
     covered: np.ndarray | None = None  # (B,) the load still covers this burn
+    frame: str = "vnb"  # the frame the plan gave this burn in (frames.NAMES)
 
     def take(self, idx, step: int | None = None) -> Row:
         """The row for the batch elements ``idx`` (a slice or index array keeps the
@@ -311,9 +315,7 @@ def _solve_burn(step: Burn, r, v, ctx: Context, fails: Failures, normal=None):
     """Velocity after the burn at the current position."""
     mu = ctx.mu
     if step.vector is not None:
-        along, normal, radial = local_frame(r, v)
-        a, c, rd = step.vector
-        return v + a * along + c * normal + rd * radial
+        return v + frames.inertial(step.frame, r, v, step.vector)
     rmag = norm(r)
     if step.circular:
         if step.circular_radius is not None:
@@ -337,7 +339,11 @@ def _solve_burn(step: Burn, r, v, ctx: Context, fails: Failures, normal=None):
         normal = np.broadcast_to(np.asarray(step.normal), r.shape)
     if normal is None and (step.inclination is not None or step.raan is not None):
         normal = normal_for(r, v, step.inclination, step.raan, fails)
-    v_new = new_velocity(r, v, mu, shape, normal, fails, ctx.radius)
+    goals = conic_goals.ConicGoals.of(step)
+    if goals is not None:
+        v_new = conic_goals.new_velocity(r, v, mu, goals, normal, fails, ctx.radius)
+    else:
+        v_new = new_velocity(r, v, mu, shape, normal, fails, ctx.radius)
     return np.where(fails.ok[:, None], v_new, v)
 
 
@@ -376,11 +382,34 @@ def burn_outcome(step: Burn, r, v, ctx: Context, normal=None) -> BurnOutcome:
         asc = _burn_at(step, replace(step.place, kind="ascending node"), r, v, ctx, normal)
         desc = _burn_at(step, replace(step.place, kind="descending node"), r, v, ctx, normal)
         return _cheaper(asc, desc)
+    if step.place.kind == "crossing" and step.argp is not None:
+        return _apse_crossing(step, r, v, ctx, normal)
     if step.place.kind == "crossing":
         first, second = crossings(r, v, target_plane(r, v, step.inclination, step.raan))
         return _cheaper(_burn_at(step, step.place, r, v, ctx, normal, first),
                         _burn_at(step, step.place, r, v, ctx, normal, second))
     return _burn_at(step, step.place, r, v, ctx, normal)
+
+
+def _apse_crossing(step: Burn, r, v, ctx: Context, normal=None) -> BurnOutcome:
+    """An `argp to` burn where the current orbit meets the turned one: both crossings
+    priced, the cheaper flown (the sooner on a tie)."""
+    found = Failures(r.shape[0])
+    goals = conic_goals.ConicGoals.of(step)
+    p2, e2 = conic_goals.apse_target(r, v, ctx.mu, goals, ctx.radius, found)
+    first, second = conic_goals.apse_crossings(r, v, ctx.mu, p2, e2, step.argp, found,
+                                               ctx.radius)
+    ahead = kepler.place(r, v, ctx.mu, first)[2] | kepler.place(r, v, ctx.mu, second)[2]
+    found.add(~ahead, lambda i: (
+        ("the two orbits cross only behind the craft or beyond the asymptote of this open "
+         "orbit"),
+        "turn the apse line on the way in (before periapsis), or change the shape first"))
+    out = _cheaper(_burn_at(step, step.place, r, v, ctx, normal, first),
+                   _burn_at(step, step.place, r, v, ctx, normal, second))
+    found.merge(np.ones(r.shape[0], dtype=bool), out.fails)
+    out.fails = found
+    out.v_after = np.where(found.ok[:, None], out.v_after, out.v_before)
+    return out
 
 
 def propellant_for(mass, dv_margin, exhaust_speed):
@@ -498,7 +527,7 @@ def _burn_rows(step: Burn, index: int, name: str, batch: Batch, ctx: Context, fa
                                                          ctx, fails, name)
     row = Row(index, name, "burn", out.at or step.place.label(), new, vec, dv, dvm, prop, burn_time,
               out.coast, out.coast, _engine(step, ctx), margin, v_before=out.v_before,
-              covered=covered)
+              covered=covered, frame=step.frame)
     return new, row
 
 
@@ -567,7 +596,7 @@ def _merge_rows(a: Row, b: Row, take_a: np.ndarray) -> Row:
                *(pick(getattr(a, f), getattr(b, f)) for f in
                  ("dv_vec", "dv", "dv_margin", "propellant", "burn_time", "coast_time",
                   "duration")), a.engine, a.margin, v_before=pick(a.v_before, b.v_before),
-               covered=pick(a.covered, b.covered))
+               covered=pick(a.covered, b.covered), frame=a.frame)
 
 
 def _either(b_up: Burn, b_down: Burn, up, index, batch: Batch, ctx: Context, fails, normal,
@@ -792,7 +821,12 @@ def measure(kind: str, batch: Batch, ctx: Context, el=None) -> np.ndarray:
     ``el``: the state's elements if already at hand."""
     if kind in ("mass", "propellant"):
         return batch.mass if kind == "mass" else batch.propellant
+    if kind == "elapsed":
+        return batch.t
     el = elements_from_state(batch.r, batch.v, ctx.mu) if el is None else el
+    if kind in ("vinf", "c3"):  # c3 = v^2 - 2 mu / r = 2 energy; vinf^2 = c3 (open orbits)
+        c3 = 2.0 * el.energy
+        return c3 if kind == "c3" else np.sqrt(np.maximum(c3, 0.0))
     return {
         "periapsis": el.periapsis,
         "apoapsis": el.apoapsis,
@@ -802,13 +836,15 @@ def measure(kind: str, batch: Batch, ctx: Context, el=None) -> np.ndarray:
         "raan": el.raan,
         "argp": el.argp,
         "period": el.period,
+        "anomaly": el.anomaly,
     }[kind]
 
 
-ANGLES = {"inclination", "raan", "argp"}
+ANGLES = {"inclination", "raan", "argp", "anomaly"}
 
 
 OPEN_UNDEFINED = {"apoapsis", "period", "circular"}  # no value on an open orbit
+CLOSED_UNDEFINED = {"vinf"}  # no value on a closed orbit
 
 
 def _expect(step: Expect, index: int, batch: Batch, ctx: Context, fails: Failures):
@@ -816,7 +852,8 @@ def _expect(step: Expect, index: int, batch: Batch, ctx: Context, fails: Failure
     ok = np.ones(batch.size, dtype=bool)
     el = elements_from_state(batch.r, batch.v, ctx.mu)
     for check in step.checks:
-        undefined = ~el.closed if check.kind in OPEN_UNDEFINED else np.zeros(batch.size, bool)
+        undefined = (~el.closed if check.kind in OPEN_UNDEFINED else
+                     el.closed if check.kind in CLOSED_UNDEFINED else np.zeros(batch.size, bool))
         apsides = None
         if check.kind == "circular":
             pe, ap = el.periapsis, el.apoapsis

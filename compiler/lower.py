@@ -14,7 +14,7 @@ import numpy as np
 from apsidal.lang import syntax as ast
 from apsidal.lang.errors import PlanError, Span, did_you_mean
 
-from . import bodies
+from . import bodies, burn_goals
 from .state import state_from_elements
 from .steps import (
     HERE,
@@ -45,6 +45,10 @@ DEFAULT_TOLERANCE = {
     "inclination": np.radians(0.01), "raan": np.radians(0.01), "argp": np.radians(0.01),
     "period": 1.0,  # s
     "mass": 0.1, "propellant": 0.1,  # kg
+    "vinf": 1e-4,  # km/s (0.1 m/s)
+    "c3": 1e-3,  # km2/s2
+    "elapsed": 1.0,  # s
+    "anomaly": np.radians(0.01),
 }
 
 
@@ -458,7 +462,7 @@ class Lowerer:
             if opt.key == "statistical":
                 raise _err("`statistical` marks an allowance (`allow NAME ...`), not a burn",
                            opt, "drop it; a burn's delta-v comes from its goals")
-            if opt.key in ("fixed", "movable", "tangential"):
+            if opt.key in ("fixed", "movable", "tangential", "frame"):
                 continue
             if opt.key == "using":
                 engine = self.craft.engine(opt.value.text)
@@ -474,13 +478,19 @@ class Lowerer:
             raise _err("a step cannot be both `fixed` and `movable`", seen["movable"],
                        "keep the one you mean")
         self._tangential = seen.get("tangential")
+        self._frame = seen.get("frame")
         return engine, margin, "fixed" in seen, "movable" in seen
 
     def _crossing_needs_plane(self, node, goals, kind: str):
         """`at crossing` is where the current plane meets the plane the goals name."""
         if node.where is None or node.where.kind != "crossing":
             return
-        if "raan" not in goals:
+        if kind == "burn" and "raan" not in goals and "argp" not in goals:
+            raise _err("`at crossing` needs a `raan to` goal (the plane the burn turns to, "
+                       "with or without `inclination to`) or an `argp to` goal (the orbit "
+                       "it turns to)", node.where,
+                       "for `inclination to` alone burn `at node`; every node reaches it")
+        if "raan" not in goals and kind != "burn":
             raise _err(f"`at crossing` needs the plane a {kind} turns to: a `raan to` goal "
                        "(with or without `inclination to`)", node.where,
                        "for `inclination to` alone burn `at node`; every node reaches it")
@@ -530,24 +540,24 @@ class Lowerer:
         engine, margin, fixed, movable = self._options(node)
         place = self._place(node.where)
         tangential = self._tangential
-        explicit = [k for k in ("along", "cross", "radial") if k in goals]
+        explicit = [k for k in goals if k in burn_goals.COMPONENT_WORDS]
         if tangential is not None and (explicit or "circular" in goals
-                                       or ("periapsis" in goals) == ("apoapsis" in goals)):
+                                       or ("periapsis" in goals) == ("apoapsis" in goals)
+                                       or any(k in goals for k in burn_goals.CONIC_WORDS)):
             raise _err("`tangential` goes with one apsis goal (`apoapsis to` or "
-                       "`periapsis to`): it keeps the flight-path angle while that apsis "
-                       "moves", tangential,
+                       "`periapsis to`) and no other goal on the shape: it keeps the "
+                       "flight-path angle while that apsis moves", tangential,
                        "drop `tangential`; with both apsides or `circular` the burn is "
-                       "already fixed")
+                       "already fixed, and an energy goal alone is already tangential")
         self._crossing_needs_plane(node, goals, "burn")
         if explicit:
-            other = [k for k in goals if k not in ("along", "cross", "radial")]
+            other = [k for k in goals if k not in burn_goals.COMPONENT_WORDS]
             if other:
                 raise _err("a burn gives either goals or explicit components, not both",
                            goals[other[0]], "split it into two burns")
-            vec = tuple(goals[k].value.internal() if k in goals else 0.0
-                        for k in ("along", "cross", "radial"))
+            vec, frame = burn_goals.components(goals, self._frame, node)
             return Burn(name, place, vector=vec, engine=engine, margin=margin, span=node.span,
-                        fixed=fixed, movable=movable)
+                        fixed=fixed, movable=movable, frame=frame)
         if "circular" in goals and ("periapsis" in goals or "apoapsis" in goals):
             raise _err("`circular` already sets both apsides", goals["circular"],
                        "drop `circular`, or drop the apsis goal")
@@ -581,8 +591,10 @@ class Lowerer:
                        "180 deg", goals["inclination"],
                        "a retrograde orbit has an inclination above 90 deg; to move the node "
                        "instead, use `raan to`")
+        kw.update(burn_goals.conic(goals, kw, self.body.gm, self.body.radius))
+        frame = self._frame.value.text if self._frame is not None else "vnb"
         return Burn(name, place, engine=engine, margin=margin, span=node.span, fixed=fixed,
-                    tangential=tangential is not None, **kw)
+                    tangential=tangential is not None, frame=frame, **kw)
 
     def _transfer(self, node: ast.Transfer) -> Transfer:
         name = self._name(node, "transfer")
@@ -592,6 +604,10 @@ class Lowerer:
         if self._tangential is not None:
             raise _err("`tangential` is an option of a one-apsis burn, not of a transfer",
                        self._tangential, "drop it: a transfer's burns are already tangential")
+        if self._frame is not None:
+            raise _err("`frame` is an option of a burn, not of a transfer", self._frame,
+                       "drop it: a transfer's burns are reported in the vnb frame (and in "
+                       "rtn in the JSON report)")
         self._crossing_needs_plane(node, goals, "transfer")
         if "phase" in goals:
             return self._phasing(node, name, goals, place, engine, margin, fixed)
@@ -673,7 +689,7 @@ class Lowerer:
     def _allow(self, node: ast.Allow) -> Allow:
         name = self._name(node, "allow")
         statistical = any(o.key == "statistical" for o in node.options)
-        others = [o for o in node.options if o.key in ("fixed", "tangential")]
+        others = [o for o in node.options if o.key in ("fixed", "tangential", "frame")]
         if others:
             raise _err(f"`{others[0].key}` is not an option of an allowance", others[0],
                        "an allowance takes `using`, `margin`, `statistical` and `movable`")

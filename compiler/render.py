@@ -353,8 +353,9 @@ STEP_CSV = ["index", "name", "kind", "at", "engine", "dv_m_s", "dv_with_margin_m
             "along_m_s", "cross_m_s", "radial_m_s", "propellant_kg", "mass_after_kg",
             "burn_time_s", "coast_time_s", "duration_s", "elapsed_s", "periapsis_alt_km",
             "apoapsis_alt_km", "sma_km", "ecc", "inclination_deg", "raan_deg", "argp_deg",
-            "anomaly_deg", "period_s", "covered", "fuel_kg", "oxidiser_kg",
-            "entry_speed_m_s", "entry_flight_path_angle_deg"]
+            "anomaly_deg", "period_s", "covered", "fuel_kg", "oxidiser_kg", "frame",
+            "rtn_radial_m_s", "rtn_transverse_m_s", "rtn_normal_m_s", "entry_speed_m_s",
+            "entry_flight_path_angle_deg"]
 CHECK_CSV = ["check", "comparator", "expected", "tolerance", "actual", "unit", "passed"]
 MESSAGE_CSV = ["severity", "rule", "message"]
 CSV_COLUMNS = ["record", "source", *STEP_CSV, *CHECK_CSV, *MESSAGE_CSV]
@@ -375,9 +376,12 @@ def csv_records(report: dict) -> list[dict]:
     for s in report["steps"]:
         vec = s["vector_m_s"]
         entry = s.get("entry", {})
+        rtn = s.get("vector_rtn_m_s", {})
         rows.append({**s, **s["orbit_after"], "record": "step", "source": src,
                      "along_m_s": vec["along"], "cross_m_s": vec["cross"],
-                     "radial_m_s": vec["radial"], "entry_speed_m_s": entry.get("speed_m_s"),
+                     "radial_m_s": vec["radial"], "frame": s.get("frame"),
+                     **{f"rtn_{k}_m_s": x for k, x in rtn.items()},
+                     "entry_speed_m_s": entry.get("speed_m_s"),
                      "entry_flight_path_angle_deg": entry.get("flight_path_angle_deg")})
         for c in s.get("checks", []):
             rows.append({"record": "check", "source": src, "index": s["index"],

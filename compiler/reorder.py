@@ -81,8 +81,10 @@ def advance(program: Program, batch: Batch, ctx: Context, indices, ok=None):
 
 
 def orientation_matters(program: Program) -> bool:
+    """An expectation names raan or argp, or a burn turns the apse line (`argp to`)."""
     return any(c.kind in ("raan", "argp") for s in program.steps if isinstance(s, Expect)
-               for c in s.checks)
+               for c in s.checks) or any(isinstance(s, Burn) and s.argp is not None
+                                          for s in program.steps)
 
 
 def same_orbit(a: Batch, ref: Batch, mu: float, orientation: bool) -> np.ndarray:

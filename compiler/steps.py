@@ -77,8 +77,9 @@ class Place:
     """Where a burn happens or a coast ends."""
 
     # here | periapsis | apoapsis | ascending node | descending node | node | anomaly |
-    # crossing (where the current plane meets the plane the burn's goals name; the cheaper
-    # of the two, like `node`) | radius (where the orbit crosses a radius, the next time)
+    # crossing (where the current plane meets the plane the burn's goals name, or with an
+    # `argp to` goal where the current orbit meets the orbit they name; the cheaper of the
+    # two, like `node`) | radius (where the orbit crosses a radius, the next time)
     kind: str
     angle: float | None = None  # rad, for anomaly
     radius: float | None = None  # km from the centre, for radius
@@ -112,12 +113,19 @@ class Burn:
     normal: tuple[float, float, float] | None = None  # explicit target plane normal
     apsis_here: bool = False  # the current point becomes the other apsis (transfer burns)
     tangential: bool = False  # one apsis goal flown keeping the flight-path angle
-    vector: tuple[float, float, float] | None = None  # along, cross, radial, km/s
+    # km/s in ``frame``: vnb (velocity, normal, binormal: today's along, cross, radial)
+    # or rtn (radial, transverse, normal)
+    vector: tuple[float, float, float] | None = None
     engine: EngineSpec | None = None
     margin: float = 0.0
     span: Span | None = None
     fixed: bool = False  # pinned in place: the reorder search does not move it
     movable: bool = False  # an explicit-vector burn the plan lets the search move
+    energy: float | None = None  # specific orbital energy, km2/s2 (sma, period, vinf or c3)
+    energy_goal: str | None = None  # the goal that named it, for messages
+    ecc: float | None = None  # target eccentricity
+    argp: float | None = None  # rad: rotate the apse line to this argument of periapsis
+    frame: str = "vnb"  # the frame of ``vector`` and of the reported components: vnb | rtn
     kind: str = field(default="burn", init=False)
 
     @property
@@ -126,7 +134,14 @@ class Burn:
 
     @property
     def changes_shape(self) -> bool:
-        return self.circular or self.periapsis is not None or self.apoapsis is not None
+        return (self.circular or self.periapsis is not None or self.apoapsis is not None
+                or self.energy is not None or self.ecc is not None or self.argp is not None)
+
+    @property
+    def one_apsis(self) -> bool:
+        """Only one apsis is named (the other is free): no other goal on size or shape."""
+        return ((self.periapsis is None) != (self.apoapsis is None) and not self.circular
+                and self.energy is None and self.ecc is None and self.argp is None)
 
 
 @dataclass(frozen=True)
@@ -184,6 +199,7 @@ class CheckSpec:
     """One condition of an expectation, in internal units."""
 
     kind: str  # periapsis apoapsis circular sma ecc inclination raan argp period mass propellant
+               # vinf c3 elapsed anomaly
     target: float  # internal units; radii for periapsis/apoapsis/circular
     comparator: str  # within | at least | at most
     tolerance: float

@@ -52,7 +52,7 @@ FIELD_ORDER = {
     ast.Start: ("circular", "periapsis", "apoapsis", "sma", "ecc", "vinf",
                 "inclination", "raan", "argp", "anomaly"),
 }
-OPTION_ORDER = ("using", "margin", "tangential", "statistical", "fixed", "movable")
+OPTION_ORDER = ("frame", "using", "margin", "tangential", "statistical", "fixed", "movable")
 
 
 class FormatError(Exception):
@@ -144,7 +144,8 @@ def _where(w: ast.Where) -> str:
 def _goal(g: ast.Goal) -> str:
     if g.kind == "phase":
         return f"phase {_value(g.value)} in {g.revs.number} rev"
-    if g.kind in ("apoapsis", "periapsis", "inclination", "raan"):
+    if g.kind in ("apoapsis", "periapsis", "inclination", "raan", "sma", "ecc", "argp",
+                  "period", "vinf", "c3"):
         return f"{g.kind} to {_value(g.value)}"
     return g.kind if g.value is None else f"{g.kind} {_value(g.value)}"
 

@@ -251,9 +251,17 @@ def _slots() -> dict[str, Slot]:
         "goal.circular": Slot("circular goal", "length"),
         "goal.inclination": Slot("inclination goal", "angle"),
         "goal.raan": Slot("raan goal", "angle"),
+        "goal.sma": Slot("sma goal", "length"),
+        "goal.ecc": Slot("ecc goal", "number", NOT_NEGATIVE),
+        "goal.argp": Slot("argp goal", "angle"),
+        "goal.period": Slot("period goal", "time", POSITIVE),
+        "goal.vinf": Slot("vinf goal", "speed", POSITIVE),
+        "goal.c3": Slot("c3 goal", "specific energy"),
         "goal.along": Slot("along component", "speed"),
         "goal.cross": Slot("cross component", "speed"),
         "goal.radial": Slot("radial component", "speed"),
+        **{f"goal.{k}": Slot(f"{k} component", "speed")
+           for k in ("velocity", "normal", "binormal", "transverse")},
         "option.margin": Slot("step margin", "ratio", NOT_NEGATIVE),
         "where.anomaly": Slot("anomaly", "angle"),
         "where.radius": Slot("place altitude", "length"),
@@ -269,7 +277,9 @@ def _slots() -> dict[str, Slot]:
                "circular": ("length", ""), "sma": ("length", ""),
                "ecc": ("number", NOT_NEGATIVE), "inclination": ("angle", ""),
                "raan": ("angle", ""), "argp": ("angle", ""), "period": ("time", POSITIVE),
-               "mass": ("mass", NOT_NEGATIVE), "propellant": ("mass", NOT_NEGATIVE)}
+               "mass": ("mass", NOT_NEGATIVE), "propellant": ("mass", NOT_NEGATIVE),
+               "vinf": ("speed", NOT_NEGATIVE), "c3": ("specific energy", ""),
+               "elapsed": ("time", NOT_NEGATIVE), "anomaly": ("angle", "")}
     for kind, (dimension, sign) in checked.items():
         slots[f"expect.{kind}"] = Slot(f"expect {kind}", dimension, sign)
         slots[f"tolerance.{kind}"] = Slot(f"expect {kind} tolerance", dimension, NOT_NEGATIVE)
@@ -374,11 +384,18 @@ NAMEABLE = frozenset({"in"})
 _NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_-]*")
 
 
+# Keywords that came after plans could use them as names (`coast c3 for 2 h`): they may
+# still name things, since no name stands where they do; only an `expect` step cannot be
+# named after one of its checks (`expect c3 ...` reads the check).
+LATER_KEYWORDS = frozenset({"c3", "elapsed", "velocity", "normal", "binormal", "transverse",
+                            "frame"})
+
+
 def _named(name: ast.Name | None, role: str) -> ast.Name | None:
     """``name`` when it can name ``role`` ("a step", "an engine", ...)."""
     if name is None:
         return None
-    if name.text in keywords() and name.text not in NAMEABLE:
+    if name.text in keywords() and name.text not in NAMEABLE | LATER_KEYWORDS:
         raise PlanError(f"`{name.text}` is a keyword and cannot name {role}", name.span,
                         hint=f"choose another name, such as `{name.text}-1`")
     if not _NAME.fullmatch(name.text):
@@ -387,6 +404,20 @@ def _named(name: ast.Name | None, role: str) -> ast.Name | None:
             hint += "; `/` is kept for the burns a transfer expands into (`geo/1`)"
         raise PlanError(f"`{name.text}` cannot name {role}", name.span, hint=hint)
     return name
+
+
+FRAMES = ("rtn", "vnb")  # radial-transverse-normal, velocity-normal-binormal
+
+
+def _frame_name(name: ast.Name) -> ast.Name:
+    """The frame of a burn's components: ``rtn`` or ``vnb``."""
+    if name.text in FRAMES:
+        return name
+    guess = did_you_mean(name.text, FRAMES)
+    raise PlanError(f"unknown frame `{name.text}`", name.span,
+                    hint=(f"did you mean `{guess}`? " if guess else "") +
+                    "the frames are `rtn` (radial, transverse, normal) and `vnb` (velocity, "
+                    "normal, binormal)")
 
 
 # --- the tree to syntax nodes --------------------------------------------------------
@@ -551,6 +582,8 @@ class _ToSyntax(Transformer):
         value = children[1]
         if key == "using":
             return ast.Option(key, _named(value, "an engine"), _span(meta))
+        if key == "frame":
+            return ast.Option(key, _frame_name(value), _span(meta))
         return ast.Option(key, _checked(value, SLOTS["option.margin"]), _span(meta))
 
     def via(self, meta, children):
@@ -722,9 +755,11 @@ _MISTAKES: tuple[_Mistake, ...] = (
         "the `{prev}` goal needs `to` before its value",
         "write `{prev} to ...`, e.g. `apoapsis to 35786 km` or `inclination to 0 deg`",
         _anywhere(*(f"burn: {g} 1 km" for g in ("apoapsis", "periapsis", "inclination",
-                                                 "raan")),
+                                                 "raan", "sma", "ecc", "argp", "period",
+                                                 "vinf", "c3")),
                   *(f"burn: circular, {g} 1 km" for g in ("apoapsis", "periapsis",
-                                                           "inclination", "raan")),
+                                                           "inclination", "raan", "sma", "ecc",
+                                                           "argp", "period", "vinf", "c3")),
                   *(f"transfer: {g} 1 deg" for g in ("inclination", "raan")),
                   *(f"transfer: circular, {g} 1 deg" for g in ("inclination", "raan"))),
     ),
@@ -768,9 +803,10 @@ _MISTAKES: tuple[_Mistake, ...] = (
 )
 
 _GOAL_WORDS = ("apoapsis", "periapsis", "circular", "inclination", "raan", "along", "cross",
-               "radial")
+               "radial", "sma", "ecc", "argp", "period", "vinf", "c3", "velocity", "normal",
+               "binormal", "transverse")
 _CHECK_WORDS = ("periapsis", "apoapsis", "circular", "sma", "ecc", "inclination", "raan",
-                "argp", "period", "mass", "propellant")
+                "argp", "period", "mass", "propellant", "vinf", "c3", "elapsed", "anomaly")
 
 _CRAFT = "craft relay { dry 640 kg  propellant 910 kg  engine main isp 321 s thrust 440 N }"
 _BODY = "body rock { gm 17.3 km3/s2  radius 262 km }"

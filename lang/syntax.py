@@ -84,7 +84,9 @@ class Field:
 class Goal:
     """A burn or transfer goal, or an explicit component.
 
-    kind: apoapsis | periapsis | circular | inclination | raan | along | cross | radial
+    kind: apoapsis | periapsis | circular | inclination | raan | sma | ecc | argp | period |
+    vinf | c3 (goals), along | cross | radial | velocity | normal | binormal | transverse
+    (explicit components)
     """
 
     kind: str
@@ -95,9 +97,9 @@ class Goal:
 
 @dataclass(frozen=True)
 class Option:
-    """A trailing step option: ``using trim``, ``margin 20 %`` or ``fixed``."""
+    """A trailing step option: ``using trim``, ``margin 20 %``, ``frame rtn`` or ``fixed``."""
 
-    key: str  # using | margin | tangential | fixed | movable
+    key: str  # using | margin | frame | tangential | statistical | fixed | movable
     value: Name | Quantity | None  # None for the bare words
     span: Span
 

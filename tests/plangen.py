@@ -21,6 +21,7 @@ from dataclasses import dataclass, field
 from hypothesis import strategies as st
 
 # Step names that are no keyword of the language.
+EARTH_RADIUS = 6378.137  # km, the radius of both bodies the plans fly around
 NAME_WORDS = ("raise", "lift", "circ", "tweak", "settle", "wait", "cover", "turn", "lower",
               "kick", "probe", "loiter", "shift", "hop")
 COMMENT_WORDS = ("note", "see", "review", "TODO", "{", "}", '"quoted"', "#", ":", ",", "5 %",
@@ -154,6 +155,8 @@ def _step(draw, names: _Names, orbit: Orbit, engines: list[str], heavy: list[int
     """One step that can be flown from ``orbit``; updates ``orbit``."""
     low = 300.0 + orbit.drift
     kinds = ["coast", "drop", "expect", "vector", "apoapsis", "circularise", "allow"]
+    if orbit.apoapsis - orbit.periapsis < 1000.0 + orbit.drift:  # ecc rises: see `ecc`
+        kinds.append("ecc")
     if orbit.apoapsis - 300.0 - orbit.drift > low:
         kinds.append("periapsis")
     if heavy[0] < 3:
@@ -191,6 +194,9 @@ def _step(draw, names: _Names, orbit: Orbit, engines: list[str], heavy: list[int
              q("180", "deg")],
             ["ecc", "at", "most", "0.99"],
             ["apoapsis", "at", "most", "radius", q("100000", "km")],
+            ["elapsed", "at", "least", q("0", "s")],
+            ["c3", "at", "most", q("0", "km2/s2")],
+            ["anomaly", q("0", "deg"), "within", q("180", "deg")],
         )), min_size=1, max_size=3))
         body = []
         for k, c in enumerate(checks):
@@ -198,14 +204,27 @@ def _step(draw, names: _Names, orbit: Orbit, engines: list[str], heavy: list[int
         return ["expect", *name, *body]
     head = ["burn", *name]
     if kind == "vector":
-        parts = draw(st.lists(st.sampled_from(("along", "cross", "radial")), min_size=1,
-                              max_size=3, unique=True))
+        frame = draw(st.sampled_from((None, "vnb", "rtn")))
+        words = {None: ("along", "cross", "radial"), "vnb": ("velocity", "normal", "binormal"),
+                 "rtn": ("radial", "transverse", "normal")}[frame]
+        parts = draw(st.lists(st.sampled_from(words), min_size=1, max_size=3, unique=True))
         goals = []
         for k, p in enumerate(parts):
             goals += ([","] if k else []) + [p, q(draw(numbers(-2, 2, 1)), "m/s")]
         orbit.circular = False
         orbit.drift += 15.0
-        return [*head, ":", *goals, *_options(draw, engines)]
+        return [*head, ":", *goals, *_options(draw, engines),
+                *(["frame", frame] if frame else [])]
+    if kind == "ecc":
+        # at periapsis a larger eccentricity keeps the periapsis (the tangential burn):
+        # the apoapsis radius becomes rp (1 + E) / (1 - E)
+        target = round(float(draw(numbers(0.05, 0.5, 2))), 2)
+        rp = orbit.periapsis + EARTH_RADIUS
+        orbit.apoapsis = rp * (1 + target) / (1 - target) - EARTH_RADIUS
+        orbit.circular = False
+        orbit.drift += 50.0
+        return [*head, "at", "periapsis", ":", "ecc", "to", _num(target),
+                *_options(draw, engines)]
     if kind == "apoapsis":
         target = orbit.periapsis + orbit.drift + float(draw(numbers(200, 30000, 0)))
         orbit.apoapsis, orbit.circular = target, False

@@ -76,6 +76,11 @@ LAT_20_MIN = _latitude_after(1200.0, 30.0)
 ASYMPTOTE_1_5 = math.degrees(math.acos(-1 / 1.5))
 
 HYPERBOLA = "start orbit periapsis 400 km ecc 1.5"
+ELLIPSE = "start orbit periapsis 400 km apoapsis 900 km"  # argp 0: its periapsis on the x axis
+
+# The shortest period of a closed orbit through a point at radius r: sma r / 2 (vis-viva
+# with the craft at rest), T = 2 pi sqrt((r / 2)^3 / mu) (Kepler's third law).
+SHORTEST_PERIOD_400 = 2 * math.pi * math.sqrt((R400 / 2) ** 3 / MU)
 
 # Phasing 180 deg ahead in one revolution from a 400 km circle needs half its period, an
 # orbit of sma R400 / 2^(2/3) whose periapsis is opposite the burn (Kepler's third law);
@@ -256,7 +261,7 @@ CASES = [
                                             start="start circular 400 km"),
         10, 1, "burn swing", ("equatorial orbit has no node line",), "inclination to I, raan"),
     Bad("crossing-without-raan", plan("burn tilt at crossing: inclination to 40 deg"),
-        10, 14, "crossing", ("`at crossing` needs the plane",), "`at node`"),
+        10, 14, "crossing", ("`at crossing` needs a `raan to` goal",), "`at node`"),
     Bad("crossing-on-a-coast", plan("coast wait to crossing"), 10, 15, "crossing",
         ("a coast has no plane to cross",), "`at crossing`"),
     Bad("tangential-with-both-apsides",
@@ -414,6 +419,88 @@ CASES = [
     Bad("under-the-surface-before-the-last-burn",
         plan("burn down: periapsis to -30 km", "burn trim: along 1 m/s", "entry at 120 km"),
         10, 1, "burn down", ("down:", "under the surface", "-30.000 km"), "raise the periapsis"),
+    # --- goals on the conic: energy, eccentricity, apse line -------------------------------
+    Bad("c3-below-the-well", plan("burn b: c3 to -200 km2/s2"), 10, 1, "burn b",
+        ("b:", "c3 -200 km2/s2 cannot be reached"), "give a larger c3",
+        numbers=((r"at least -2 mu / r = (-[\d.]+) km2/s2", (-2 * MU / R400,)),)),
+    Bad("sma-below-half-the-radius", plan("burn b: sma to 3000 km"), 10, 1, "burn b",
+        ("sma 3000 km cannot be reached",), "give a larger sma",
+        numbers=((r"sma of at least ([\d.]+) km", (R400 / 2,)),)),
+    Bad("period-below-the-least", plan("burn b: period to 20 min"), 10, 1, "burn b",
+        ("period 1200 s cannot be reached",), "give a longer period",
+        numbers=((r"period of at least ([\d.]+) s", (SHORTEST_PERIOD_400,)),)),
+    Bad("two-energy-goals", plan("burn b: sma to 9000 km, vinf to 2 km/s"), 10, 25,
+        "vinf to 2 km/s", ("`sma to` and `vinf to` both set the orbit's energy",),
+        "keep one of them"),
+    Bad("three-shape-goals", plan("burn b: periapsis to 300 km, apoapsis to 900 km, ecc to 0.1"),
+        10, 50, "ecc to 0.1", ("name the orbit's size and shape more than once",), "keep two"),
+    Bad("circular-with-sma", plan("burn b: circular, sma to 9000 km"), 10, 9, "circular",
+        ("`circular` already fixes the size and shape",), "drop `sma to`"),
+    Bad("energy-goal-on-an-open-orbit-apoapsis", plan("burn b: vinf to 1 km/s, apoapsis to 900 km"),
+        10, 9, "vinf to 1 km/s", ("names an open orbit, which has no apoapsis",),
+        "give the periapsis instead"),
+    Bad("ecc-against-energy", plan("burn b: ecc to 0.5, vinf to 1 km/s"), 10, 9, "ecc to 0.5",
+        ("ecc 0.5 names a closed orbit but vinf 1 km/s names an open one",),
+        "ecc below 1 has a negative energy"),
+    Bad("sma-below-the-periapsis-goal", plan("burn b: sma to 7000 km, periapsis to 1000 km"),
+        10, 9, "sma to 7000 km", ("cannot have its periapsis at 1000.000 km",),
+        "lower the periapsis goal",
+        numbers=((r"at most at ([\d.]+) km", (7000.0 - RE,)),)),
+    Bad("conic-not-through-the-craft", plan("burn b: periapsis to 600 km, ecc to 0.01"), 10, 1,
+        "burn b", ("b:", "does not pass through the craft's altitude 400.000 km"),
+        "burn where the craft is between those altitudes",
+        numbers=((r"apoapsis ([\d.]+) km\)", ((RE + 600.0) * 1.01 / 0.99 - RE,)),)),
+    Bad("energy-with-a-plane-turned-past-90-deg",
+        plan("burn b at node: sma to 9000 km, inclination to 150 deg"), 10, 1, "burn b",
+        ("plane turned by 90 deg or more", "has no least burn"), "turn the plane in a burn"),
+    Bad("sma-of-zero", plan("burn b: sma to 0 km"), 10, 9, "sma to 0 km",
+        ("an sma of zero names no orbit",), "measured from the centre"),
+    Bad("vinf-zero", plan("burn b: vinf to 0 km/s"), 10, 17, "0 km/s",
+        ("vinf goal must be positive",), "greater than zero"),
+    Bad("ecc-negative", plan("burn b: ecc to -0.1"), 10, 16, "-0.1",
+        ("ecc goal cannot be negative",), "zero or more"),
+    Bad("tangential-with-an-ecc-goal", plan("burn b: apoapsis to 900 km, ecc to 0.1 tangential"),
+        10, 40, "tangential", ("`tangential` goes with one apsis goal",), "drop `tangential`"),
+    Bad("crossing-without-raan-or-argp", plan("burn b at crossing: sma to 9000 km"), 10, 11,
+        "crossing", ("`at crossing` needs a `raan to` goal", "an `argp to` goal"), "`at node`"),
+    Bad("argp-with-a-plane-goal",
+        plan("burn b at crossing: argp to 30 deg, inclination to 10 deg", start=ELLIPSE), 10, 37,
+        "inclination to 10 deg", ("cannot share a burn with a plane change",),
+        "turn the plane in a burn of its own"),
+    Bad("argp-with-one-shape-goal", plan("burn b at crossing: argp to 30 deg, ecc to 0.1"),
+        10, 21, "argp to 30 deg", ("leaves the rest of the shape free",),
+        "give a second shape goal"),
+    Bad("argp-on-a-circular-orbit", plan("burn b at crossing: argp to 30 deg"), 10, 1, "burn b",
+        ("b:", "the orbit is circular", "no apse line to turn"), "give the new shape as well"),
+    Bad("argp-off-the-crossing", plan("burn b: argp to 30 deg", start=ELLIPSE), 10, 1, "burn b",
+        ("does not pass through the craft's position",),
+        # the same orbit turned by W crosses the old one where the true anomaly is W / 2
+        # and W / 2 + 180 deg (the radius is the same where cos nu = cos(nu - W))
+        "`at anomaly 15.000000 deg` or `at anomaly 195.000000 deg`"),
+    Bad("argp-orbits-apart", plan("burn b at crossing: argp to 30 deg, periapsis to 3000 km, "
+                                  "apoapsis to 4000 km", start=ELLIPSE), 10, 1, "burn b",
+        ("does not meet the current orbit", "no single burn reaches it"),
+        "change the size or shape first"),
+    Bad("argp-crossings-behind-an-open-orbit",
+        plan("burn b at crossing: argp to 20 deg", start=HYPERBOLA + " anomaly 40 deg"), 10, 1,
+        "burn b", ("cross only behind the craft",), "on the way in"),
+    # --- burn frames ---------------------------------------------------------------------------
+    Bad("unknown-frame", plan("burn b: radial 1 m/s frame rnt"), 10, 28, "rnt",
+        ("unknown frame `rnt`",), "did you mean `rtn`?"),
+    Bad("rtn-component-without-its-frame", plan("burn b: radial 1 m/s, transverse 2 m/s"),
+        10, 23, "transverse", ("`transverse` is a component of the rtn frame",),
+        "add `frame rtn`"),
+    Bad("normal-without-a-frame", plan("burn b: normal 1 m/s"), 10, 9, "normal",
+        ("`normal` is a component of the named frames",), "`cross` (the normal)"),
+    Bad("along-in-the-rtn-frame", plan("burn b: along 1 m/s frame rtn"), 10, 9, "along",
+        ("`along` is not a component of the rtn frame",), "`radial`, `transverse`, `normal`"),
+    Bad("radial-in-the-vnb-frame", plan("burn b: radial 1 m/s frame vnb"), 10, 9, "radial",
+        ("the components are `velocity`, `normal` and `binormal`, not `radial`",),
+        "write `binormal`"),
+    Bad("frame-on-a-transfer", plan("transfer t: circular 900 km frame rtn"), 10, 29, "frame",
+        ("`frame` is an option of a burn, not of a transfer",), "drop it"),
+    Bad("expect-vinf-as-a-length", plan("expect vinf 3 km"), 10, 13, "3 km",
+        ("expect vinf needs a speed",), "`3 m/s`"),
 ]
 
 assert len(CASES) >= 30

@@ -5,14 +5,14 @@ from __future__ import annotations
 import numpy as np
 from apsidal.lang import syntax as ast
 
-from .. import kepler
+from .. import frames, kepler
 from ..check import Checker, Finding, rule, saving_text, with_goals
 from ..evaluate import start_batch
 from ..reorder import same_orbit
-from ..state import elements_from_state, local_frame
+from ..state import elements_from_state
 from ..steps import Burn
 
-SHAPE = {"apoapsis", "periapsis", "circular"}
+SHAPE = {"apoapsis", "periapsis", "circular", "sma", "period", "vinf", "c3", "ecc", "argp"}
 HERE_S = 1e-6  # s: a burn this soon after the one before is at the same point
 
 
@@ -62,18 +62,20 @@ def merge_burns(c: Checker) -> list[Finding]:
 
 def _merge_vectors(c: Checker, i: int, a, b) -> list:
     """Two explicit-vector burns at one point as one: the inertial sum of the two changes,
-    in the frame before the first (components to a nanometre per second)."""
+    in the first burn's frame before it (components to a nanometre per second)."""
     default = c.program.craft.default_engine
     if (a.engine or default) != (b.engine or default) or a.margin != b.margin:
         return []
     first, second = c.rows_of(i)[0], c.rows_of(i + 1)[0]
     total = second.after.v[0] - first.v_before[0]
-    along, normal, radial = local_frame(first.after.r, first.v_before)
-    parts = [float(total @ axis[0]) * 1000.0 for axis in (along, normal, radial)]
+    axes = frames.axes(a.frame, first.after.r, first.v_before)
+    parts = [float(total @ axis[0]) * 1000.0 for axis in axes]
     node = c.statements[i]
     span = node.span
+    words = frames.NAMES[a.frame] if any(o.key == "frame" for o in node.options) \
+        else frames.LEGACY
     goals = [ast.Goal(k, ast.Quantity(f"{x:.9f}", "m/s", span), span)
-             for k, x in zip(("along", "cross", "radial"), parts)]
+             for k, x in zip(words, parts)]
     return [(c.rewrite({i: [with_goals(node, goals)], i + 1: []}),
              lambda proof: c.finding(
                  "merge-burns", "warning", (a.name, b.name),

@@ -226,7 +226,7 @@ def _burn_pairs(c: Checker) -> list[Finding]:
                 and a.vector is None and b.vector is None):
             continue
         target = a.apoapsis if a.apoapsis is not None else a.periapsis
-        if target is None or a.circular or (a.apoapsis is not None and a.periapsis is not None):
+        if target is None or not a.one_apsis:  # one apsis goal and nothing else on the shape
             continue
         far = "apoapsis" if a.apoapsis is not None else "periapsis"
         closes = b.circular or (b.periapsis if far == "apoapsis" else b.apoapsis) is not None
