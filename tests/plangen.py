@@ -371,3 +371,24 @@ class _Writer:
 def plan_texts(draw, tidy: bool = False, max_steps: int = 7) -> str:
     """The text of a valid plan (see the module docstring)."""
     return _Writer(draw, tidy).text(draw(drafts(max_steps)))
+
+
+def start_orbits(inclinations, hyperbolas: bool = False):
+    """Random `start` lines: an ellipse with every angle drawn, a circle at one of
+    ``inclinations``, and with ``hyperbolas`` an open orbit near its periapsis."""
+    kinds = [
+        st.builds(lambda pe, dap, i, raan, argp, nu:
+                  f"start orbit periapsis {pe:.3f} km apoapsis {pe + dap:.3f} km "
+                  f"inclination {i:.4f} deg raan {raan:.4f} deg argp {argp:.4f} deg "
+                  f"anomaly {nu:.4f} deg",
+                  st.floats(300, 5000), st.floats(0, 40000), st.floats(0, 180),
+                  st.floats(0, 359), st.floats(0, 359), st.floats(0, 359)),
+        st.builds(lambda alt, i: f"start circular {alt:.3f} km inclination {i:.4f} deg",
+                  st.floats(300, 40000), st.sampled_from(list(inclinations))),
+    ]
+    if hyperbolas:
+        kinds.append(st.builds(lambda pe, e, i, nu: f"start orbit periapsis {pe:.3f} km "
+                               f"ecc {e:.4f} inclination {i:.4f} deg anomaly {nu:.4f} deg",
+                               st.floats(300, 5000), st.floats(1.05, 3.0),
+                               st.floats(0, 180), st.floats(-60, 60)))
+    return st.one_of(*kinds)

@@ -28,6 +28,7 @@ from apsidal.compiler.reorder import orientation_matters
 from apsidal.lang.errors import PlanError
 from hypothesis import HealthCheck, event, given, settings
 from hypothesis import strategies as st
+from plangen import start_orbits
 from scipy.optimize import brentq, minimize
 from test_goals_met import ECC, MU, RE, REL, burn_rows, coe, dv_of, final, fly, plan
 
@@ -418,20 +419,7 @@ def test_expectations_on_vinf_c3_elapsed_and_anomaly(tmp_path, capsys):
 
 # --- every goal met or refused: a property over random orbits and goals -----------------
 
-starts = st.one_of(
-    st.builds(lambda pe, dap, i, raan, argp, nu:
-              f"start orbit periapsis {pe:.3f} km apoapsis {pe + dap:.3f} km "
-              f"inclination {i:.4f} deg raan {raan:.4f} deg argp {argp:.4f} deg "
-              f"anomaly {nu:.4f} deg",
-              st.floats(300, 5000), st.floats(0, 40000), st.floats(0, 180),
-              st.floats(0, 359), st.floats(0, 359), st.floats(0, 359)),
-    st.builds(lambda alt, i: f"start circular {alt:.3f} km inclination {i:.4f} deg",
-              st.floats(300, 40000), st.sampled_from([0.0, 28.5, 98.0])),
-    st.builds(lambda pe, e, i, nu: f"start orbit periapsis {pe:.3f} km ecc {e:.4f} "
-              f"inclination {i:.4f} deg anomaly {nu:.4f} deg",
-              st.floats(300, 5000), st.floats(1.05, 3.0), st.floats(0, 180),
-              st.floats(-60, 60)),
-)
+starts = start_orbits([0.0, 28.5, 98.0], hyperbolas=True)
 places = st.sampled_from(["", " at periapsis", " at apoapsis", " at ascending node",
                           " at node", " at anomaly 77 deg", " at anomaly 250 deg"])
 
