@@ -171,6 +171,9 @@ def shortfall_text(report: dict) -> str:
         where = f"the load runs out at {first}"
     else:
         where = "every burn is covered but the reserve is not"
+    if tot.get("propellant_needed_kg") is None:  # the plan stops part-way: no sizing
+        return (f"{where}, before the step the plan cannot fly; the load that flies the "
+                "whole plan is known once every step can be flown")
     if "fuel_needed_kg" in tot:
         adds = [f"{tot[k + '_shortfall_kg']:,.3f} kg of {k}" for k in ("fuel", "oxidiser")
                 if tot[k + "_shortfall_kg"] > 0]

@@ -353,3 +353,17 @@ def test_a_mass_ratio_past_any_load_is_reported_not_a_crash(tmp_path, capsys, co
     why = out["totals"]["no_load_fits"] if command == "run" else out["why"]
     ratio = 2.0 / (0.01 * G0)
     assert f"e^{ratio:.6g}" in why and "specific impulse" in why
+
+
+def test_a_plan_out_of_its_load_that_then_cannot_be_flown_is_a_located_error(tmp_path, capsys):
+    # the load runs out at the first burn, and the second cannot be flown (an apoapsis
+    # below the craft): the geometry error is the answer (exit 2), the load finding says
+    # the shortfall is not sized for a plan that stops part-way, and nothing crashes
+    path = tmp_path / "stops.aps"
+    path.write_text(plan("burn big: along 2000 m/s",
+                         "burn low at periapsis: apoapsis to 300 km"))
+    assert main(["run", str(path)]) == 2
+    out = capsys.readouterr()
+    assert "stops.aps:10:1" in out.err and "apoapsis 300.000 km" in out.err
+    assert "the load runs out at big, before the step the plan cannot fly" in " ".join(
+        out.out.split())
