@@ -1,0 +1,522 @@
+"""`apsidal sweep PLAN`: trade studies (``compiler/sweep.py``) on the command line.
+
+The numbers come from the evaluator through ``sweep.price``; this module reads the
+options (or the plan's `trade` statement), words and lays out the results: a table that
+fits the terminal, strict CSV, or JSON (docs/output.md, docs/schema/sweep.schema.json).
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+import re
+import sys
+
+from .cliutil import EXIT_BAD_INPUT, EXIT_OK, UsageError, screen_width
+
+RANGE_OPTIONS = ("--vary", "--disperse", "--tolerance")  # their unit may come apart
+_NUM = r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?"
+_VARY = re.compile(rf"\s*([^=\s]+)\s*=\s*({_NUM})\s*(\S*?)\s*\.\.\s*({_NUM})\s*(\S*)\s*")
+_DISPERSE = re.compile(rf"\s*([^=\s]+)\s*=\s*(?:±|\+-|\+/-)?\s*({_NUM})\s*(\S*)\s*")
+_AMOUNT = re.compile(rf"\s*({_NUM})\s*(\S*)\s*")
+
+
+def register(sub) -> None:
+    p = sub.add_parser(
+        "sweep", help="price a plan over ranges of its quantities (a trade study)",
+        description="Price a plan for many values of its quantities in one batch: a grid "
+        "(--vary), the best value of one quantity (--minimise) or normal dispersions "
+        "(--disperse).  NAME.FIELD names a quantity as the plan writes it: a step and "
+        "its goal (`geo.circular`, `tilt.inclination`, `geo.via`, `NAME.margin`, a "
+        "coast's `for`, a drop's `mass`, an allowance's `dv`), `craft.dry`, "
+        "`craft.propellant`, an engine's `isp` or `thrust` (`main.isp`), `start.FIELD`, "
+        "`plan.margin`, `plan.reserve`.  Without options the plan's `trade` statement is "
+        "read.  Exit 2 for bad input; variants that cannot be flown are marked with "
+        "their reason.")
+    p.add_argument("plan", help="plan file (.aps); `-` reads standard input")
+    p.add_argument("--vary", action="append", default=[], metavar="NAME.FIELD=LOW..HIGH UNIT",
+                   help="a range of one quantity, e.g. 'geo.circular=30000..42000 km'; "
+                   "several make a grid")
+    p.add_argument("--points", type=int, default=None, metavar="N",
+                   help="values per range, ends included (default 11)")
+    p.add_argument("--minimise", "--minimize", choices=("propellant", "dv", "elapsed"),
+                   default=None, help="find the value of the one --vary quantity that "
+                   "minimises this total")
+    p.add_argument("--tolerance", default=None, metavar="AMOUNT",
+                   help="how closely --minimise finds the value, in the range's unit "
+                   "(default a billionth of the range)")
+    p.add_argument("--disperse", action="append", default=[],
+                   metavar="NAME.FIELD=±SIGMA UNIT",
+                   help="a normal dispersion (1-sigma) of one quantity about the plan's "
+                   "value, e.g. 'start.periapsis=±5 km'")
+    p.add_argument("--samples", type=int, default=None, metavar="N",
+                   help="samples of --disperse (default 10000)")
+    p.add_argument("--seed", type=int, default=None, help="seed of the samples (default 1)")
+    p.add_argument("--trade", default=None, metavar="NAME",
+                   help="the plan's `trade NAME` statement to run (the first by default)")
+    p.add_argument("--format", choices=("table", "json", "csv"), default="table")
+    p.add_argument("--chunk", type=int, default=None, help=argparse_suppress())
+    p.set_defaults(func=cmd_sweep)
+
+
+def argparse_suppress():
+    import argparse
+
+    return argparse.SUPPRESS
+
+
+def join_ranges(argv: list[str]) -> list[str]:
+    """``--vary geo.circular=30000..42000 km`` with the unit apart, as one argument.
+
+    >>> join_ranges(["sweep", "a.aps", "--vary", "g.circular=1..2", "km", "--points", "3"])
+    ['sweep', 'a.aps', '--vary', 'g.circular=1..2 km', '--points', '3']
+    """
+    from apsidal.lang.units import UNITS
+
+    out, i = [], 0
+    while i < len(argv):
+        out.append(argv[i])
+        if (argv[i] in RANGE_OPTIONS and i + 2 < len(argv) and argv[i + 2]
+                and argv[i + 2] in UNITS and not argv[i + 1].endswith(tuple(u for u in UNITS if u))):
+            out.append(f"{argv[i + 1]} {argv[i + 2]}")
+            i += 3
+            continue
+        i += 1
+    return out
+
+
+# --- reading the study ----------------------------------------------------------------
+
+
+class Study:
+    """What to price: the plan, the knobs and their values, from options or a statement."""
+
+    def __init__(self):
+        self.vary: list[tuple[str, float, float, str, object]] = []  # target lo hi unit span
+        self.disperse: list[tuple[str, float, str, object]] = []  # target sigma unit span
+        self.points: int | None = None
+        self.minimise: str | None = None
+        self.tolerance: tuple[float, str] | None = None
+        self.samples: int | None = None
+        self.seed: int | None = None
+        self.span = None  # the statement's span, when read from the plan
+
+
+def _vary_option(text: str):
+    m = _VARY.fullmatch(text)
+    if not m:
+        raise UsageError(f"--vary `{text}` is not NAME.FIELD=LOW..HIGH UNIT; e.g. "
+                         "--vary 'geo.circular=30000..42000 km'")
+    target, lo, u1, hi, u2 = m.groups()
+    if u1 and u2 and u1 != u2:
+        raise UsageError(f"--vary `{text}` gives two units (`{u1}` and `{u2}`); give one "
+                         "after the range")
+    return target, float(lo), float(hi), u2 or u1
+
+
+def _disperse_option(text: str):
+    m = _DISPERSE.fullmatch(text)
+    if not m:
+        raise UsageError(f"--disperse `{text}` is not NAME.FIELD=±SIGMA UNIT; e.g. "
+                         "--disperse 'start.periapsis=±5 km'")
+    return m.group(1), float(m.group(2)), m.group(3)
+
+
+def study_from_args(args, plan) -> Study:
+    s = Study()
+    for text in args.vary:
+        s.vary.append((*_vary_option(text), None))
+    for text in args.disperse:
+        s.disperse.append((*_disperse_option(text), None))
+    if not s.vary and not s.disperse:
+        from .trade import study_from_plan
+
+        s = study_from_plan(plan, args.trade, Study)
+    elif args.trade is not None:
+        raise UsageError("--trade picks a trade written in the plan; leave it out with "
+                         "--vary or --disperse")
+    if args.points is not None:
+        s.points = args.points
+    if args.minimise is not None:
+        s.minimise = args.minimise
+    if args.tolerance is not None:
+        m = _AMOUNT.fullmatch(args.tolerance)
+        if not m:
+            raise UsageError(f"--tolerance `{args.tolerance}` is not an amount; e.g. "
+                             "--tolerance '1 km'")
+        s.tolerance = (float(m.group(1)), m.group(2))
+    if args.samples is not None:
+        s.samples = args.samples
+    if args.seed is not None:
+        s.seed = args.seed
+    return s
+
+
+# --- running it -------------------------------------------------------------------------
+
+
+class Progress:
+    """A bar on standard error while variants are priced, when it is a terminal."""
+
+    def __init__(self, total: int, what: str = "variants"):
+        self.total, self.what = total, what
+        self.on = total > 0 and sys.stderr.isatty()
+
+    def __call__(self, done: int) -> None:
+        if not self.on:
+            return
+        width = 30
+        full = int(width * done / self.total)
+        sys.stderr.write(f"\rpricing {done:,}/{self.total:,} {self.what} "
+                         f"[{'#' * full}{' ' * (width - full)}] {100 * done / self.total:3.0f}%")
+        sys.stderr.flush()
+
+    def close(self) -> None:
+        if self.on:
+            sys.stderr.write("\r\033[K")
+            sys.stderr.flush()
+
+
+def cmd_sweep(args) -> int:
+    from apsidal.lang.errors import PlanError
+    from apsidal.lang.parse import parse
+
+    from . import sweep
+    from .lower import lower
+
+    path = args.plan
+    if path == "-":
+        text, path = sys.stdin.read().removeprefix("\ufeff"), "<stdin>"
+    else:
+        try:
+            with open(path, encoding="utf-8") as fh:
+                text = fh.read().removeprefix("\ufeff")
+        except OSError as err:
+            raise UsageError(f"cannot read {path}: {err.strerror}") from None
+    plan = parse(text, path)
+    program = lower(plan)
+    if program.craft.components:
+        raise UsageError("sweep prices a craft that loads one propellant; this craft loads "
+                         "fuel and oxidiser apart, which `run` and `size` price (their "
+                         "stores are not yet tracked over a batch)")
+    study = study_from_args(args, plan)
+    if study.vary and study.disperse:
+        raise _where(study, "a trade either varies quantities over ranges or disperses "
+                     "them, not both", "run the two as two studies", plan)
+    source = plan.source
+    if study.points is not None and study.points < 1:
+        raise _where(study, f"points must be at least 1, got {study.points}", None, plan)
+    knobs, units = [], []
+    entries = study.vary or study.disperse
+    for entry in entries:
+        target, unit, span = entry[0], entry[-2], entry[-1]
+        knob = sweep.locate(plan, program, target, span)
+        if not unit and knob.quantity.unit and knob.dimension != "number":
+            raise sweep._complain(f"the values of `{target}` need a unit",
+                                  f"the plan gives `{knob.quantity.text()}`", span, source)
+        sweep.check_unit(knob, unit, span, source)
+        knobs.append(knob)
+        units.append(unit)
+    if len({k.target for k in knobs}) < len(knobs):
+        raise _where(study, "a quantity is named twice", "name each once", plan)
+    chunk = args.chunk or sweep.CHUNK
+    if study.vary:
+        for target, lo, hi, unit, span in study.vary:
+            if not (math.isfinite(lo) and math.isfinite(hi)) or lo > hi:
+                raise sweep._complain(f"the range of `{target}` is empty ({sweep.number_text(lo)}"
+                                      f"..{sweep.number_text(hi)})",
+                                      "give the low end first", span, source)
+        points = study.points or 11
+        extremes = [(lo, hi) for _, lo, hi, _, _ in study.vary]
+        model = sweep.Model(text, path, knobs, units, extremes, study.span)
+        if study.minimise:
+            if len(knobs) != 1:
+                raise _where(study, "--minimise searches one quantity; the study varies "
+                             f"{len(knobs)}", "give one --vary", plan)
+            tol = None
+            if study.tolerance is not None:
+                value, tu = study.tolerance
+                if tu and tu != units[0]:
+                    from apsidal.lang.units import UNITS
+
+                    if tu not in UNITS or UNITS[tu][0] != UNITS[units[0]][0]:
+                        raise UsageError(f"--tolerance is in `{tu}`, the range in `{units[0]}`")
+                    value = value * UNITS[tu][1] / UNITS[units[0]][1]
+                if not value > 0:
+                    raise UsageError("--tolerance must be positive")
+                tol = value
+            lo, hi = extremes[0]
+            X, priced, best = sweep.minimise(model, lo, hi, points, study.minimise, tol)
+            report = sweep_report(model, X, priced, plan, points)
+            report["best"] = best_dict(model, best, study.minimise)
+        else:
+            X = sweep.grid([(lo, hi, points) for lo, hi in extremes])
+            bar = Progress(X.shape[0])
+            try:
+                priced = sweep.price(model, X, bar, chunk)
+            finally:
+                bar.close()
+            report = sweep_report(model, X, priced, plan, points)
+        emit(report, args.format, sweep_table, sweep_csv)
+        return EXIT_OK
+    n = study.samples or 10000
+    seed = 1 if study.seed is None else study.seed
+    if n < 2:
+        raise _where(study, f"a dispersion needs at least 2 samples, got {n}", None, plan)
+    sigmas = [s for _, s, _, _ in study.disperse]
+    for (target, s, _, span) in study.disperse:
+        if not (math.isfinite(s) and s > 0):
+            raise sweep._complain(f"the dispersion of `{target}` must be positive", None,
+                                  span, source)
+    bases = [k.base(u) for k, u in zip(knobs, units)]
+    X = sweep.samples(bases, sigmas, n, seed)
+    extremes = [(float(X[:, j].min()), float(X[:, j].max())) for j in range(len(knobs))]
+    model = sweep.Model(text, path, knobs, units, extremes, study.span)
+    bar = Progress(n, "samples")
+    try:
+        priced = sweep.price(model, X, bar, chunk)
+    finally:
+        bar.close()
+    report = dispersion_report(model, X, priced, plan, sigmas, seed)
+    emit(report, args.format, dispersion_table, dispersion_csv)
+    return EXIT_OK
+
+
+def _where(study, message, hint, plan):
+    from . import sweep
+
+    return sweep._complain(message, hint, study.span, plan.source)
+
+
+# --- reports --------------------------------------------------------------------------
+
+
+def _caution() -> str:
+    from .budget import CAUTION
+
+    return CAUTION
+
+
+def sweep_report(model, X, priced, plan, points: int) -> dict:
+    from .sweep import FLAGS, TOTALS, finite_or_none
+
+    names = [k.target for k in model.knobs]
+    variants = []
+    for i in range(X.shape[0]):
+        values = {name: float(X[i, j]) for j, name in enumerate(names)}
+        flown = bool(priced.flown[i])
+        v = {"values": values,
+             "totals": ({k: finite_or_none(priced.totals[k][i]) for k in TOTALS}
+                        | {k: bool(priced.totals[k][i]) for k in FLAGS}) if flown else None,
+             "flown": flown,
+             "feasible": bool(priced.feasible[i])}
+        if not v["feasible"]:
+            v["reason"] = priced.reason(i)
+        variants.append(v)
+    return {
+        "plan": model.base.title,
+        "source": model.base.source.path,
+        "axes": [{"name": k.target, "unit": u, "low": float(X[:, j].min()),
+                  "high": float(X[:, j].max()), "points": int(len(set(X[:, j].tolist())))}
+                 for j, (k, u) in enumerate(zip(model.knobs, model.units))],
+        "variants": variants,
+        "not_flown": int((~priced.flown).sum()),
+        "caution": _caution(),
+    }
+
+
+def best_dict(model, best, objective: str) -> dict:
+    from .sweep import OBJECTIVES, finite_or_none
+
+    return {"name": model.knobs[0].target, "unit": model.units[0], "value": best.value,
+            "tolerance": best.tolerance, "objective": objective,
+            OBJECTIVES[objective]: finite_or_none(best.objective),
+            "at_end_of_range": best.at_end, "evaluations": best.evaluations,
+            "plan_text": model.text_with([best.value])}
+
+
+def dispersion_report(model, X, priced, plan, sigmas, seed: int) -> dict:
+    import numpy as np
+
+    from .sweep import statistics
+
+    ok = priced.flown
+    steps = []
+    for k, name in enumerate(priced.step_names):
+        steps.append({"name": name,
+                      "dv_m_s": statistics(priced.step_dv[ok, k]),
+                      "propellant_kg": statistics(priced.step_propellant[ok, k])})
+    total = {key: statistics(priced.totals[key][ok])
+             for key in ("dv_m_s", "dv_with_margin_m_s", "propellant_kg")}
+    n = X.shape[0]
+    return {
+        "plan": model.base.title,
+        "source": model.base.source.path,
+        "dispersions": [{"name": k.target, "unit": u, "base": k.base(u), "sigma": s}
+                        for k, u, s in zip(model.knobs, model.units, sigmas)],
+        "samples": n,
+        "seed": seed,
+        "not_flown": int((~ok).sum()),
+        "not_flown_share": float((~ok).sum()) / n,
+        "not_feasible_share": float((~priced.feasible).sum()) / n,
+        "first_not_flown_reason": (priced.reason(int(np.argmin(ok))) if not ok.all()
+                                   else None),
+        "steps": steps,
+        "total": total,
+        "caution": _caution(),
+    }
+
+
+def emit(report: dict, fmt: str, table, to_csv) -> None:
+    if fmt == "json":
+        from .render import to_json
+
+        sys.stdout.write(to_json(report) + "\n")
+    elif fmt == "csv":
+        sys.stdout.write(to_csv(report))
+    else:
+        sys.stdout.write(table(report, screen_width(sys.stdout) or 100))
+
+
+def _csv(rows: list[list]) -> str:
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerows(rows)
+    return buf.getvalue()
+
+
+def _cell(x) -> str:
+    if x is None:
+        return ""
+    if isinstance(x, bool):
+        return "true" if x else "false"
+    if isinstance(x, float):
+        return repr(x)
+    return str(x)
+
+
+def _unit_key(name: str, unit: str) -> str:
+    return f"{name}_{unit.replace('/', '_').replace('%', 'pct')}" if unit else name
+
+
+def sweep_csv(report: dict) -> str:
+    from .sweep import FLAGS, TOTALS
+
+    axes = report["axes"]
+    head = ([_unit_key(a["name"], a["unit"]) for a in axes] + list(TOTALS) + list(FLAGS)
+            + ["flown", "feasible", "reason"])
+    rows = [head]
+    for v in report["variants"]:
+        t = v["totals"] or {}
+        rows.append([_cell(v["values"][a["name"]]) for a in axes]
+                    + [_cell(t.get(k)) for k in TOTALS + FLAGS]
+                    + [_cell(v["flown"]), _cell(v["feasible"]), _cell(v.get("reason"))])
+    return _csv(rows)
+
+
+def dispersion_csv(report: dict) -> str:
+    from .sweep import PERCENTILES, _pct_key
+
+    keys = ["mean", "std"] + [_pct_key(p) for p in PERCENTILES]
+    rows = [["step", "quantity"] + keys]
+    for s in report["steps"]:
+        for q in ("dv_m_s", "propellant_kg"):
+            rows.append([s["name"], q] + [_cell(s[q][k]) for k in keys])
+    for q, stats in report["total"].items():
+        rows.append(["total", q] + [_cell(stats[k]) for k in keys])
+    return _csv(rows)
+
+
+def _layout(head: list[str], rows: list[list[str]], right: list[bool]) -> list[str]:
+    widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h)
+              for i, h in enumerate(head)]
+    fmt = lambda cells: "  ".join((c.rjust(w) if r else c.ljust(w))
+                                  for c, w, r in zip(cells, widths, right)).rstrip()
+    return [fmt(head), fmt(["-" * w for w in widths])] + [fmt(r) for r in rows]
+
+
+def sweep_table(report: dict, width: int = 100) -> str:
+    from .textfmt import duration, sig
+
+    axes = report["axes"]
+    n = len(report["variants"])
+    lines = [report["plan"],
+             f"{n:,} variant{'s' if n != 1 else ''}"
+             + (f", {report['not_flown']:,} cannot be flown" if report["not_flown"] else "")]
+    head = [f"{a['name']} {a['unit']}".rstrip() for a in axes] + [
+        "dv m/s", "dv+margin m/s", "propellant kg", "left kg", "elapsed", "status"]
+    notes: dict[str, int] = {}
+    rows = []
+    for v in report["variants"]:
+        t = v["totals"]
+        if v["feasible"]:
+            status = "ok"
+        else:
+            reason = v.get("reason") or ""
+            mark = notes.setdefault(reason, len(notes) + 1)
+            status = ("not flown" if not v["flown"] else "short") + f" [{mark}]"
+        vals = [sig(v["values"][a["name"]], 6) for a in axes]
+        if t is None:
+            rows.append(vals + ["-"] * 5 + [status])
+        else:
+            rows.append(vals + [sig(t["dv_m_s"]), sig(t["dv_with_margin_m_s"]),
+                                sig(t["propellant_kg"]), sig(t["propellant_left_kg"]),
+                                duration(t["elapsed_s"]), status])
+    right = [True] * (len(head) - 1) + [False]
+    out = lines + [""] + _layout(head, rows, right)
+    for reason, mark in notes.items():
+        out.append(_wrap(f"[{mark}] {reason}", width))
+    best = report.get("best")
+    if best is not None:
+        key = [k for k in best if k.endswith(("_kg", "_m_s", "_s")) and k != "tolerance"][0]
+        out += ["", _wrap(f"best {best['name']}: {sig(best['value'], 9)} {best['unit']} "
+                          f"(within {sig(best['tolerance'], 2)} {best['unit']}), "
+                          f"{best['objective']} {sig(best[key], 7)} "
+                          f"{key.rsplit('_', 1)[-1] if not key.endswith('m_s') else 'm/s'}"
+                          + ("; at the end of the range: widen it" if best["at_end_of_range"]
+                             else ""), width),
+                "", "the plan with that value:", "", best["plan_text"].rstrip("\n")]
+    out += ["", _wrap(report["caution"], width)]
+    return "\n".join(out) + "\n"
+
+
+def _wrap(text: str, width: int) -> str:
+    import textwrap
+
+    return "\n".join(textwrap.wrap(text, max(width, 40), subsequent_indent="    "))
+
+
+def dispersion_table(report: dict, width: int = 100) -> str:
+    from .sweep import PERCENTILES, _pct_key
+    from .textfmt import sig
+
+    d = report["dispersions"]
+    lines = [report["plan"],
+             _wrap(f"{report['samples']:,} samples (seed {report['seed']}) of "
+                   + ", ".join(f"{x['name']} {sig(x['base'], 6)} ± {sig(x['sigma'])} "
+                               f"{x['unit']} (1-sigma)".replace("  ", " ") for x in d), width),
+             f"cannot be flown: {100 * report['not_flown_share']:.2f}% of the samples"
+             + (f" ({report['first_not_flown_reason']})" if report["not_flown"] else ""), ""]
+    keys = ["mean", "std"] + [_pct_key(p) for p in PERCENTILES]
+    head = ["step", "quantity", "mean", "std"] + [f"p{p:g}" for p in PERCENTILES]
+    rows = []
+    for s in report["steps"]:
+        for q, label in (("dv_m_s", "dv m/s"), ("propellant_kg", "prop kg")):
+            rows.append([s["name"], label] + [sig(s[q][k]) for k in keys])
+    for q, label in (("dv_m_s", "dv m/s"), ("dv_with_margin_m_s", "dv+mgn m/s"),
+                     ("propellant_kg", "prop kg")):
+        rows.append(["total", label] + [sig(report["total"][q][k]) for k in keys])
+    out = lines + _layout(head, rows, [False, False] + [True] * len(keys))
+    out += ["", _wrap("The p99.7 of a correction's delta-v is its 3-sigma figure: the one to "
+                      "write as `allow NAME X m/s statistical` (statistical lines combine by "
+                      "root-sum-square).", width), "", _wrap(report["caution"], width)]
+    return "\n".join(out) + "\n"
+
+
+def dumps(report: dict) -> str:  # pragma: no cover - for a notebook
+    return json.dumps(report, indent=2)
+
+
+__all__ = ["register", "cmd_sweep", "EXIT_BAD_INPUT"]
