@@ -377,7 +377,10 @@ def emit(report: dict, fmt: str, table, to_csv) -> None:
     elif fmt == "csv":
         sys.stdout.write(to_csv(report))
     else:
-        sys.stdout.write(table(report, screen_width(sys.stdout) or 100))
+        import shutil
+
+        width = screen_width(sys.stdout) or shutil.get_terminal_size((100, 24)).columns
+        sys.stdout.write(table(report, width))
 
 
 def _csv(rows: list[list]) -> str:
@@ -429,12 +432,27 @@ def dispersion_csv(report: dict) -> str:
     return _csv(rows)
 
 
-def _layout(head: list[str], rows: list[list[str]], right: list[bool]) -> list[str]:
+def _layout(head: list[str], rows: list[list[str]], right: list[bool], width: int = 0,
+            give_way: tuple[int, ...] = ()) -> list[str]:
+    """Columns laid out two spaces apart; the columns ``give_way`` (in that order) are
+    left out while the lines are wider than ``width``."""
+    keep = list(range(len(head)))
+    for drop in give_way:
+        if not width or _width(head, rows, keep) <= width:
+            break
+        keep.remove(drop)
+    head, right = [head[i] for i in keep], [right[i] for i in keep]
+    rows = [[r[i] for i in keep] for r in rows]
     widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h)
               for i, h in enumerate(head)]
     fmt = lambda cells: "  ".join((c.rjust(w) if r else c.ljust(w))
                                   for c, w, r in zip(cells, widths, right)).rstrip()
     return [fmt(head), fmt(["-" * w for w in widths])] + [fmt(r) for r in rows]
+
+
+def _width(head, rows, keep) -> int:
+    return sum(max(len(head[i]), *(len(r[i]) for r in rows)) if rows else len(head[i])
+               for i in keep) + 2 * (len(keep) - 1)
 
 
 def sweep_table(report: dict, width: int = 100) -> str:
@@ -465,7 +483,8 @@ def sweep_table(report: dict, width: int = 100) -> str:
                                 sig(t["propellant_kg"]), sig(t["propellant_left_kg"]),
                                 duration(t["elapsed_s"]), status])
     right = [True] * (len(head) - 1) + [False]
-    out = lines + [""] + _layout(head, rows, right)
+    k = len(axes)  # left kg, elapsed, dv+margin give way first, in that order
+    out = lines + [""] + _layout(head, rows, right, width, (k + 3, k + 4, k + 1))
     for reason, mark in notes.items():
         out.append(_wrap(f"[{mark}] {reason}", width))
     best = report.get("best")
@@ -508,7 +527,8 @@ def dispersion_table(report: dict, width: int = 100) -> str:
     for q, label in (("dv_m_s", "dv m/s"), ("dv_with_margin_m_s", "dv+mgn m/s"),
                      ("propellant_kg", "prop kg")):
         rows.append(["total", label] + [sig(report["total"][q][k]) for k in keys])
-    out = lines + _layout(head, rows, [False, False] + [True] * len(keys))
+    out = lines + _layout(head, rows, [False, False] + [True] * len(keys), width,
+                          (5, 3))
     out += ["", _wrap("The p99.7 of a correction's delta-v is its 3-sigma figure: the one to "
                       "write as `allow NAME X m/s statistical` (statistical lines combine by "
                       "root-sum-square).", width), "", _wrap(report["caution"], width)]
