@@ -81,6 +81,35 @@ KNOBS = [
 ]
 
 
+# Goals of other kinds: an eccentricity, explicit components, a phasing transfer, an
+# energy goal written as C3 (energy = C3 / 2: affine in the value).
+PLAN_B = """\
+plan "Sweep test craft, other goals"
+around earth
+craft kite {
+    dry 500 kg
+    propellant 2600 kg
+    engine main isp 320 s thrust 400 N
+}
+start orbit periapsis 350 km apoapsis 420 km inclination 28.5 deg
+burn shape at periapsis: ecc to 0.1
+burn nudge: along 5 m/s, cross -2 m/s, radial 1 m/s
+transfer hop at periapsis: phase 30 deg in 2 rev
+burn energy: c3 to -20 km2/s2
+coast spin 1.5 rev
+"""
+KNOBS_B = [
+    ("shape.ecc", "", 0.01, 0.3),
+    ("nudge.along", "m/s", -10.0, 10.0),
+    ("nudge.cross", "m/s", -10.0, 10.0),
+    ("nudge.radial", "m/s", -5.0, 5.0),
+    ("hop.phase", "deg", -60.0, 60.0),
+    ("energy.c3", "km2/s2", -25.0, -15.0),
+    ("start.inclination", "deg", 0.0, 90.0),
+]
+CASES = [(PLAN, KNOBS), (PLAN_B, KNOBS_B)]
+
+
 def separate_run(text: str) -> dict | None:
     """What a separate `run` of the plan text gives: None when it cannot be flown."""
     result = run(load_text(text))
@@ -93,14 +122,19 @@ def separate_run(text: str) -> dict | None:
             "message": result.error.message if result.error else None}
 
 
-@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(st.lists(st.sampled_from(range(len(KNOBS))), min_size=1, max_size=2, unique=True),
-       st.lists(st.floats(0.0, 1.0), min_size=3, max_size=6), st.data())
-def test_every_variant_is_a_separate_run(picks, fractions, data):
-    program = load_text(PLAN)
-    chosen = [KNOBS[k] for k in picks]
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.sampled_from(CASES), st.lists(st.floats(0.0, 1.0), min_size=3, max_size=6),
+       st.data())
+def test_every_variant_is_a_separate_run(case, fractions, data):
+    """Random variants of random quantities (one or two at once), in chunks of several
+    sizes: each equals a separate run of the plan text with its values written in."""
+    text, table = case
+    picks = data.draw(st.lists(st.sampled_from(range(len(table))), min_size=1, max_size=2,
+                               unique=True))
+    program = load_text(text)
+    chosen = [table[k] for k in picks]
     knobs = [sweep.locate(program.plan, program, t) for t, *_ in chosen]
-    model = sweep.Model(PLAN, "<plan>", knobs, [u for _, u, _, _ in chosen],
+    model = sweep.Model(text, "<plan>", knobs, [u for _, u, _, _ in chosen],
                         [(lo, hi) for _, _, lo, hi in chosen])
     cols = [[lo + f * (hi - lo) for f in fractions] for _, _, lo, hi in chosen]
     if len(cols) == 2:  # a second column in another order
