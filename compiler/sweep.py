@@ -512,7 +512,7 @@ def minimise(model: Model, lo: float, hi: float, points: int, objective: str,
     k = int(np.argmin(cost))
     xs = X[:, 0]
     a, b = xs[max(k - 1, 0)], xs[min(k + 1, len(xs) - 1)]
-    tol = tolerance if tolerance is not None else abs(hi - lo) * 1e-9
+    tol = tolerance if tolerance is not None else abs(hi - lo) * 1e-6
     evaluations = len(xs)
 
     def f(x: float) -> float:
@@ -536,7 +536,7 @@ def minimise(model: Model, lo: float, hi: float, points: int, objective: str,
     fbest = f(best)
     # an end of the range that beats the interior: the range decides, say so
     for end, cend in ((xs[0], cost[0]), (xs[-1], cost[-1])):
-        if cend < fbest:
+        if cend <= fbest:
             best, fbest = end, float(cend)
     at_end = bool(abs(best - xs[0]) <= 2 * tol or abs(best - xs[-1]) <= 2 * tol)
     return X, P, Optimum(float(best), float(tol), float(fbest), at_end, evaluations)

@@ -46,7 +46,7 @@ def register(sub) -> None:
                    "minimises this total")
     p.add_argument("--tolerance", default=None, metavar="AMOUNT",
                    help="how closely --minimise finds the value, in the range's unit "
-                   "(default a billionth of the range)")
+                   "(default a millionth of the range)")
     p.add_argument("--disperse", action="append", default=[],
                    metavar="NAME.FIELD=±SIGMA UNIT",
                    help="a normal dispersion (1-sigma) of one quantity about the plan's "
