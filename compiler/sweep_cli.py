@@ -470,12 +470,12 @@ def sweep_table(report: dict, width: int = 100) -> str:
     for v in report["variants"]:
         t = v["totals"]
         if v["feasible"]:
-            status = "ok"
+            status = "ok" if t["expectations_met"] else "expect fails"
         else:
             reason = v.get("reason") or ""
             mark = notes.setdefault(reason, len(notes) + 1)
             status = ("not flown" if not v["flown"] else "short") + f" [{mark}]"
-        vals = [sig(v["values"][a["name"]], 6) for a in axes]
+        vals = [_value_text(v["values"][a["name"]]) for a in axes]
         if t is None:
             rows.append(vals + ["-"] * 5 + [status])
         else:
@@ -499,6 +499,15 @@ def sweep_table(report: dict, width: int = 100) -> str:
                 "", "the plan with that value:", "", best["plan_text"].rstrip("\n")]
     out += ["", _wrap(report["caution"], width)]
     return "\n".join(out) + "\n"
+
+
+def _value_text(x: float) -> str:
+    """A varied value as the grid holds it: up to ten significant digits, no padding.
+
+    >>> _value_text(1000.0), _value_text(28.5 / 8), _value_text(1 / 3)
+    ('1,000', '3.5625', '0.3333333333')
+    """
+    return format(x, ",.10g")
 
 
 def _wrap(text: str, width: int) -> str:

@@ -382,3 +382,77 @@ def test_a_non_linear_quantity_is_refused_by_name(tmp_path, capsys):
     code = main(["sweep", str(path), "--vary", "kick.sma=25000..35000 km"])
     assert code == 2
     assert "non-linearly" in capsys.readouterr().err
+
+
+# --- the trade statement ----------------------------------------------------------------
+
+TRADES = """\
+trade size: vary geo.circular 20000..40000 km points 3
+trade split: vary geo.inclination 0..28.5 deg, minimise propellant, points 7
+trade launch: disperse start.periapsis 5 km, disperse main.isp 1 s, samples 400, seed 9
+"""
+
+
+def test_a_trade_in_the_plan_is_read_by_sweep_and_ignored_by_run(tmp_path, capsys):
+    plain, traded = tmp_path / "a.aps", tmp_path / "b.aps"
+    plain.write_text(PLAN)
+    traded.write_text(PLAN + TRADES)
+    main(["run", str(plain), "--format", "json"])
+    one = strict_json(capsys.readouterr().out)
+    main(["run", str(traded), "--format", "json"])
+    two = strict_json(capsys.readouterr().out)
+    assert one["totals"] == two["totals"] and one["steps"] == two["steps"]
+    assert main(["sweep", str(traded), "--format", "json"]) == 0  # the first trade
+    doc = strict_json(capsys.readouterr().out)
+    assert [v["values"]["geo.circular"] for v in doc["variants"]] == [20000.0, 30000.0, 40000.0]
+    assert main(["sweep", str(traded), "--trade", "launch", "--format", "json"]) == 0
+    doc = strict_json(capsys.readouterr().out)
+    assert doc["samples"] == 400 and doc["seed"] == 9
+    assert [d["name"] for d in doc["dispersions"]] == ["start.periapsis", "main.isp"]
+    assert main(["sweep", str(traded), "--trade", "split", "--format", "json"]) == 0
+    assert strict_json(capsys.readouterr().out)["best"]["objective"] == "propellant"
+
+
+@pytest.mark.parametrize("line, at, words", [
+    ("trade t: vary geo.circulr 1..2 km", "geo.", ["no quantity `circulr`", "circular"]),
+    ("trade t: vary geo.circular 30000..20000 km", "3", ["is empty"]),
+    ("trade t: vary geo.circular 1..2 kms", "kms", ["unknown unit `kms`"]),
+    ("trade t: vary geo.circular 20000..30000 s", "geo.", ["is a length"]),
+    ("trade t: vari geo.circular 1..2 km", "vari", ["no item `vari`", "did you mean `vary`"]),
+    ("trade t: minimise propellant", "trade", ["neither varies nor disperses"]),
+    ("trade t: disperse start.periapsis 0 km", "0", ["must be positive"]),
+    ("trade t: vary geo.circular 2e4..3e4 km, minimise mass", "minimise", ["`minimise` takes"]),
+])
+def test_a_mistake_in_a_trade_statement_is_located(tmp_path, capsys, line, at, words):
+    col = line.index(at) + 1
+    path = tmp_path / "p.aps"
+    path.write_text(PLAN + line + "\n")
+    assert main(["sweep", str(path)]) == 2
+    err = capsys.readouterr().err
+    row = PLAN.count("\n") + 1
+    assert err.startswith(f"{path}:{row}:{col}: error:"), err
+    assert "^" in err and "Traceback" not in err
+    for w in words:
+        assert w in err
+
+
+def test_fmt_keeps_a_trade_and_diff_shows_it_changed(tmp_path, capsys):
+    from apsidal.lang.format import format_text
+
+    messy = PLAN + "trade   size :vary geo.circular   20000..40000 km points 3,minimise  dv\n"
+    text = format_text(messy)
+    assert "trade size: vary geo.circular 20000..40000 km points 3, minimise dv\n" in text
+    assert format_text(text) == text
+    old, new = tmp_path / "old.aps", tmp_path / "new.aps"
+    old.write_text(text)
+    new.write_text(text.replace("points 3", "points 5"))
+    main(["diff", str(old), str(new), "--format", "json"])
+    doc = strict_json(capsys.readouterr().out)
+    assert doc["trades"] == [{"name": "size", "status": "changed",
+                              "old": "trade size: vary geo.circular 20000..40000 km points 3, "
+                                     "minimise dv",
+                              "new": "trade size: vary geo.circular 20000..40000 km points 5, "
+                                     "minimise dv"}]
+    assert all(s["status"] == "same" for s in doc["steps"])  # a trade is no priced step
+    main(["diff", str(old), str(new)])
+    assert "trade size changed" in capsys.readouterr().out
