@@ -14,6 +14,8 @@ import math
 import re
 import sys
 
+import numpy as np
+
 from .cliutil import EXIT_BAD_INPUT, EXIT_OK, UsageError, screen_width
 
 RANGE_OPTIONS = ("--vary", "--disperse", "--tolerance")  # their unit may come apart
@@ -249,6 +251,9 @@ def cmd_sweep(args) -> int:
                 tol = value
             lo, hi = extremes[0]
             X, priced, best = sweep.minimise(model, lo, hi, points, study.minimise, tol)
+            if args.format == "csv":  # the grid that bracketed it; the best is in the table
+                sys.stdout.write(sweep_csv_of(model, X, priced))
+                return EXIT_OK
             report = sweep_report(model, X, priced, plan, points)
             report["best"] = best_dict(model, best, study.minimise)
         else:
@@ -258,8 +263,11 @@ def cmd_sweep(args) -> int:
                 priced = sweep.price(model, X, bar, chunk)
             finally:
                 bar.close()
+            if args.format == "csv":
+                sys.stdout.write(sweep_csv_of(model, X, priced))
+                return EXIT_OK
             report = sweep_report(model, X, priced, plan, points)
-        emit(report, args.format, sweep_table, sweep_csv)
+        emit(report, args.format, sweep_table, None)
         return EXIT_OK
     n = study.samples or 10000
     seed = 1 if study.seed is None else study.seed
@@ -299,32 +307,69 @@ def _caution() -> str:
     return CAUTION
 
 
+def _columns(X, priced, names) -> tuple[dict, dict, list, list, dict]:
+    """The variants' figures as Python lists, column by column (one conversion per
+    column, not per cell): values, totals, flown, feasible, reasons by variant."""
+    from .sweep import FLAGS, TOTALS
+
+    values = {name: X[:, j].tolist() for j, name in enumerate(names)}
+    totals = {k: priced.totals[k].tolist() for k in TOTALS}
+    totals |= {k: priced.totals[k].astype(bool).tolist() for k in FLAGS}
+    feasible = priced.feasible.tolist()
+    reasons = {i: priced.reason(i) for i in np.flatnonzero(~priced.feasible).tolist()}
+    return values, totals, priced.flown.tolist(), feasible, reasons
+
+
 def sweep_report(model, X, priced, plan, points: int) -> dict:
-    from .sweep import FLAGS, TOTALS, finite_or_none
+    from .sweep import FLAGS, TOTALS
 
     names = [k.target for k in model.knobs]
+    values, totals, flown, feasible, reasons = _columns(X, priced, names)
+    keys = TOTALS + FLAGS
     variants = []
     for i in range(X.shape[0]):
-        values = {name: float(X[i, j]) for j, name in enumerate(names)}
-        flown = bool(priced.flown[i])
-        v = {"values": values,
-             "totals": ({k: finite_or_none(priced.totals[k][i]) for k in TOTALS}
-                        | {k: bool(priced.totals[k][i]) for k in FLAGS}) if flown else None,
-             "flown": flown,
-             "feasible": bool(priced.feasible[i])}
-        if not v["feasible"]:
-            v["reason"] = priced.reason(i)
+        v = {"values": {name: values[name][i] for name in names},
+             "totals": {k: totals[k][i] for k in keys} if flown[i] else None,
+             "flown": flown[i], "feasible": feasible[i]}
+        if not feasible[i]:
+            v["reason"] = reasons[i]
         variants.append(v)
     return {
         "plan": model.base.title,
         "source": model.base.source.path,
         "axes": [{"name": k.target, "unit": u, "low": float(X[:, j].min()),
-                  "high": float(X[:, j].max()), "points": int(len(set(X[:, j].tolist())))}
+                  "high": float(X[:, j].max()), "points": int(len(np.unique(X[:, j])))}
                  for j, (k, u) in enumerate(zip(model.knobs, model.units))],
         "variants": variants,
         "not_flown": int((~priced.flown).sum()),
         "caution": _caution(),
     }
+
+
+def sweep_csv_of(model, X, priced) -> str:
+    """The variants as CSV, straight from the arrays: one row per variant, the varied
+    values, the totals (empty for a variant that cannot be flown), flown, feasible and
+    the reason."""
+    from .sweep import FLAGS, TOTALS
+
+    names = [k.target for k in model.knobs]
+    values, totals, flown, feasible, reasons = _columns(X, priced, names)
+    word = {True: "true", False: "false"}
+    cols = [list(map(repr, values[n])) for n in names]
+    for k in TOTALS:
+        cols.append([repr(x) if ok else "" for x, ok in zip(totals[k], flown)])
+    for k in FLAGS:
+        cols.append([word[x] if ok else "" for x, ok in zip(totals[k], flown)])
+    cols.append([word[x] for x in flown])
+    cols.append([word[x] for x in feasible])
+    cols.append([reasons.get(i) or "" for i in range(X.shape[0])])
+    head = [_unit_key(n, u) for n, u in zip(names, model.units)] + list(TOTALS + FLAGS) + [
+        "flown", "feasible", "reason"]
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(head)
+    w.writerows(zip(*cols))
+    return buf.getvalue()
 
 
 def best_dict(model, best, objective: str) -> dict:
@@ -402,21 +447,6 @@ def _cell(x) -> str:
 
 def _unit_key(name: str, unit: str) -> str:
     return f"{name}_{unit.replace('/', '_').replace('%', 'pct')}" if unit else name
-
-
-def sweep_csv(report: dict) -> str:
-    from .sweep import FLAGS, TOTALS
-
-    axes = report["axes"]
-    head = ([_unit_key(a["name"], a["unit"]) for a in axes] + list(TOTALS) + list(FLAGS)
-            + ["flown", "feasible", "reason"])
-    rows = [head]
-    for v in report["variants"]:
-        t = v["totals"] or {}
-        rows.append([_cell(v["values"][a["name"]]) for a in axes]
-                    + [_cell(t.get(k)) for k in TOTALS + FLAGS]
-                    + [_cell(v["flown"]), _cell(v["feasible"]), _cell(v.get("reason"))])
-    return _csv(rows)
 
 
 def dispersion_csv(report: dict) -> str:
