@@ -288,6 +288,16 @@ def cmd_sweep(args) -> int:
     finally:
         bar.close()
     report = dispersion_report(model, X, priced, plan, sigmas, seed)
+    nominal = sweep.price(model, np.array([bases]))  # the plan as written
+    report["nominal"] = ({k: sweep.finite_or_none(nominal.totals[k][0]) for k in
+                          ("dv_m_s", "dv_with_margin_m_s", "propellant_kg")}
+                         if nominal.flown[0] else None)
+    # what a statistical line beside the plan as written must cover: the mean's shift from
+    # the nominal plus three standard deviations of the spread (docs/physics.md, "Trades")
+    stats = report["total"]["dv_m_s"]
+    report["statistical_line_m_s"] = (
+        None if stats["std"] is None or report["nominal"] is None else
+        stats["mean"] - report["nominal"]["dv_m_s"] + 3.0 * stats["std"])
     emit(report, args.format, dispersion_table, dispersion_csv)
     return EXIT_OK
 
@@ -553,8 +563,9 @@ def dispersion_table(report: dict, width: int = 100) -> str:
     d = report["dispersions"]
     lines = [report["plan"],
              _wrap(f"{report['samples']:,} samples (seed {report['seed']}) of "
-                   + ", ".join(f"{x['name']} {sig(x['base'], 6)} ± {sig(x['sigma'])} "
-                               f"{x['unit']} (1-sigma)".replace("  ", " ") for x in d), width),
+                   + ", ".join(f"{x['name']} {_value_text(x['base'])} ± "
+                               f"{_value_text(x['sigma'])} {x['unit']} (1-sigma)"
+                               .replace("  ", " ") for x in d), width),
              f"cannot be flown: {100 * report['not_flown_share']:.2f}% of the samples"
              + (f" ({report['first_not_flown_reason']})" if report["not_flown"] else ""), ""]
     keys = ["mean", "std"] + [_pct_key(p) for p in PERCENTILES]
@@ -568,9 +579,14 @@ def dispersion_table(report: dict, width: int = 100) -> str:
         rows.append(["total", label] + [sig(report["total"][q][k]) for k in keys])
     out = lines + _layout(head, rows, [False, False] + [True] * len(keys), width,
                           (5, 3))
-    out += ["", _wrap("The p99.7 of a correction's delta-v is its 3-sigma figure: the one to "
-                      "write as `allow NAME X m/s statistical` (statistical lines combine by "
-                      "root-sum-square).", width), "", _wrap(report["caution"], width)]
+    line = report.get("statistical_line_m_s")
+    nominal = report.get("nominal")
+    if line is not None and nominal is not None:
+        out += ["", _wrap(f"the plan as written: {sig(nominal['dv_m_s'])} m/s of delta-v; its "
+                          f"3-sigma cover, mean - nominal + 3 std: {sig(line)} m/s, the figure "
+                          f"for an `allow NAME {sig(line)} m/s statistical` line beside it "
+                          "(statistical lines combine by root-sum-square)", width)]
+    out += ["", _wrap(report["caution"], width)]
     return "\n".join(out) + "\n"
 
 

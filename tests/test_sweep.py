@@ -328,6 +328,21 @@ def test_csv_is_strict_with_one_row_per_variant(plan_file, capsys):
     assert all(float(r["dv_m_s"]) > 0 and r["flown"] == "true" for r in rows)
 
 
+def test_the_statistical_line_of_a_linear_case_is_three_sigma(plan_file, capsys):
+    """An allowance dispersed by 4 m/s (1-sigma) adds one for one to the total: the line
+    that covers it beside the plan as written is 3 sigma, 12 m/s, to sampling error."""
+    assert main(["sweep", str(plan_file), "--disperse", "trims.dv=±4 m/s", "--samples",
+                 "40000", "--seed", "5", "--format", "json"]) == 0
+    doc = strict_json(capsys.readouterr().out)
+    schema = json.loads((ROOT / "docs" / "schema" / "sweep.schema.json").read_text())
+    Draft202012Validator(schema).validate(doc)
+    n = 40000
+    # mean within 5 standard errors, std within 5 of its standard errors (normal theory)
+    assert doc["statistical_line_m_s"] == pytest.approx(
+        12.0, abs=5 * 4 / math.sqrt(n) + 15 * 4 / math.sqrt(2 * n))
+    assert doc["nominal"]["dv_m_s"] == pytest.approx(separate_run(PLAN)["dv_m_s"], rel=1e-12)
+
+
 def test_dispersion_table_fits_and_names_the_statistical_line(plan_file, capsys):
     code = main(["sweep", str(plan_file), "--disperse", "start.periapsis=±5 km",
                  "--samples", "500", "--seed", "3"])
