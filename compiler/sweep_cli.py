@@ -251,8 +251,9 @@ def cmd_sweep(args) -> int:
                 tol = value
             lo, hi = extremes[0]
             X, priced, best = sweep.minimise(model, lo, hi, points, study.minimise, tol)
-            if args.format == "csv":  # the grid that bracketed it; the best is in the table
-                sys.stdout.write(sweep_csv_of(model, X, priced))
+            if args.format == "csv":  # the grid that bracketed it, then the best
+                at = np.array([[best.value]])
+                sys.stdout.write(sweep_csv_of(model, X, priced, (at, sweep.price(model, at))))
                 return EXIT_OK
             report = sweep_report(model, X, priced, plan, points)
             report["best"] = best_dict(model, best, study.minimise)
@@ -356,29 +357,39 @@ def sweep_report(model, X, priced, plan, points: int) -> dict:
     }
 
 
-def sweep_csv_of(model, X, priced) -> str:
-    """The variants as CSV, straight from the arrays: one row per variant, the varied
-    values, the totals (empty for a variant that cannot be flown), flown, feasible and
-    the reason."""
+def sweep_csv_of(model, X, priced, best: tuple | None = None) -> str:
+    """The variants as CSV, straight from the arrays.
+
+    One header, and a `record` column saying what each row is: `variant` (the varied
+    values, the totals, empty for a variant that cannot be flown, flown, feasible and
+    the reason), with --minimise one `best` (the value found and its totals), and the
+    `caution` (in `message`)."""
     from .sweep import FLAGS, TOTALS
 
     names = [k.target for k in model.knobs]
-    values, totals, flown, feasible, reasons = _columns(X, priced, names)
-    word = {True: "true", False: "false"}
-    cols = [list(map(repr, values[n])) for n in names]
-    for k in TOTALS:
-        cols.append([repr(x) if ok else "" for x, ok in zip(totals[k], flown)])
-    for k in FLAGS:
-        cols.append([word[x] if ok else "" for x, ok in zip(totals[k], flown)])
-    cols.append([word[x] for x in flown])
-    cols.append([word[x] for x in feasible])
-    cols.append([reasons.get(i) or "" for i in range(X.shape[0])])
-    head = [_unit_key(n, u) for n, u in zip(names, model.units)] + list(TOTALS + FLAGS) + [
-        "flown", "feasible", "reason"]
+    rows = [(X, priced, "variant")]
+    if best is not None:
+        rows.append(best + ("best",))
+    head = (["record"] + [_unit_key(n, u) for n, u in zip(names, model.units)]
+            + list(TOTALS + FLAGS) + ["flown", "feasible", "reason", "message"])
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(head)
-    w.writerows(zip(*cols))
+    word = {True: "true", False: "false"}
+    for values_x, got, record in rows:
+        values, totals, flown, feasible, reasons = _columns(values_x, got, names)
+        n = values_x.shape[0]
+        cols = [[record] * n] + [list(map(repr, values[name])) for name in names]
+        for k in TOTALS:
+            cols.append([repr(x) if ok else "" for x, ok in zip(totals[k], flown)])
+        for k in FLAGS:
+            cols.append([word[x] if ok else "" for x, ok in zip(totals[k], flown)])
+        cols.append([word[x] for x in flown])
+        cols.append([word[x] for x in feasible])
+        cols.append([reasons.get(i) or "" for i in range(n)])
+        cols.append([""] * n)
+        w.writerows(zip(*cols))
+    w.writerow(["caution"] + [""] * (len(head) - 2) + [_caution()])
     return buf.getvalue()
 
 
@@ -460,15 +471,17 @@ def _unit_key(name: str, unit: str) -> str:
 
 
 def dispersion_csv(report: dict) -> str:
+    """Records `step` (one per priced step and quantity), `total` and `caution`."""
     from .sweep import PERCENTILES, _pct_key
 
     keys = ["mean", "std"] + [_pct_key(p) for p in PERCENTILES]
-    rows = [["step", "quantity"] + keys]
+    rows = [["record", "step", "quantity"] + keys + ["message"]]
     for s in report["steps"]:
         for q in ("dv_m_s", "propellant_kg"):
-            rows.append([s["name"], q] + [_cell(s[q][k]) for k in keys])
+            rows.append(["step", s["name"], q] + [_cell(s[q][k]) for k in keys] + [""])
     for q, stats in report["total"].items():
-        rows.append(["total", q] + [_cell(stats[k]) for k in keys])
+        rows.append(["total", "", q] + [_cell(stats[k]) for k in keys] + [""])
+    rows.append(["caution", "", ""] + [""] * len(keys) + [report["caution"]])
     return _csv(rows)
 
 

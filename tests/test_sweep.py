@@ -323,7 +323,8 @@ def test_csv_is_strict_with_one_row_per_variant(plan_file, capsys):
     main(["sweep", str(plan_file), "--vary", "main.isp=300..330", "s",
           "--vary", "craft.dry=400..600 kg", "--points", "3", "--format", "csv"])
     rows = list(csv.DictReader(io.StringIO(capsys.readouterr().out), strict=True))
-    assert len(rows) == 9
+    assert [r["record"] for r in rows] == ["variant"] * 9 + ["caution"]
+    rows = rows[:-1]
     assert {r["main.isp_s"] for r in rows} == {"300.0", "315.0", "330.0"}
     assert all(float(r["dv_m_s"]) > 0 and r["flown"] == "true" for r in rows)
 
@@ -341,6 +342,20 @@ def test_the_statistical_line_of_a_linear_case_is_three_sigma(plan_file, capsys)
     assert doc["statistical_line_m_s"] == pytest.approx(
         12.0, abs=5 * 4 / math.sqrt(n) + 15 * 4 / math.sqrt(2 * n))
     assert doc["nominal"]["dv_m_s"] == pytest.approx(separate_run(PLAN)["dv_m_s"], rel=1e-12)
+
+
+def test_minimise_and_dispersion_csv_are_strict(plan_file, capsys):
+    main(["sweep", str(plan_file), "--vary", "geo.inclination=0..28.5 deg", "--minimise",
+          "dv", "--points", "5", "--format", "csv"])
+    rows = list(csv.DictReader(io.StringIO(capsys.readouterr().out), strict=True))
+    assert [r["record"] for r in rows] == ["variant"] * 5 + ["best", "caution"]
+    best = rows[5]
+    assert float(best["dv_m_s"]) <= min(float(r["dv_m_s"]) for r in rows[:5] if r["dv_m_s"])
+    main(["sweep", str(plan_file), "--disperse", "main.isp=±2 s", "--samples", "50",
+          "--format", "csv"])
+    rows = list(csv.DictReader(io.StringIO(capsys.readouterr().out), strict=True))
+    assert {r["record"] for r in rows} == {"step", "total", "caution"}
+    assert all(float(r["p99_7"]) >= float(r["p50"]) for r in rows if r["record"] != "caution")
 
 
 def test_dispersion_table_fits_and_names_the_statistical_line(plan_file, capsys):
