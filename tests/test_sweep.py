@@ -486,3 +486,61 @@ def test_fmt_keeps_a_trade_and_diff_shows_it_changed(tmp_path, capsys):
     assert all(s["status"] == "same" for s in doc["steps"])  # a trade is no priced step
     main(["diff", str(old), str(new)])
     assert "trade size changed" in capsys.readouterr().out
+
+
+# --- generated plans ---------------------------------------------------------------------
+
+
+def _knobs_of(plan, program) -> list[tuple[str, object]]:
+    """Every NAME.FIELD of a plan a trade can try, with its quantity."""
+    out = []
+    owners = [("plan", s) for s in plan.statements if isinstance(s, sweep.ast.Setting)
+              and s.key in ("margin", "reserve")]
+    for s in plan.statements:
+        if isinstance(s, sweep.ast.Start):
+            owners.append(("start", s))
+        elif isinstance(s, sweep.ast.CraftDef):
+            owners.append(("craft", s))
+            owners += [(e.name.text, e) for e in s.engines]
+    owners += [(step.name, st) for st, step in zip(plan.steps(), program.steps)]
+    for name, st in owners:
+        for key, value in sweep._fields_of(st).items():
+            q = value.quantity if isinstance(value, sweep.ast.Distance) else value
+            out.append((f"{name}.{key}", q))
+    return out
+
+
+@settings(max_examples=30, deadline=None,
+          suppress_health_check=[HealthCheck.too_slow, HealthCheck.filter_too_much])
+@given(st.data())
+def test_variants_of_generated_plans_are_separate_runs(data):
+    """Any quantity of a generated plan (tests/plangen.py), moved a little either way:
+    each variant equals a separate run of its text, or is refused as that run is."""
+    from hypothesis import assume
+    from plangen import plan_texts
+
+    text = data.draw(plan_texts(tidy=True))
+    program = load_text(text)
+    knobs = _knobs_of(program.plan, program)
+    target, q = data.draw(st.sampled_from(knobs))
+    base = q.value
+    step = abs(base) * 0.02 if base else 0.5
+    values = sorted(data.draw(st.lists(st.floats(base - step, base + step), min_size=2,
+                                       max_size=4)))
+    try:
+        knob = sweep.locate(program.plan, program, target)  # a statistical line is refused
+        model = sweep.Model(text, "<plan>", [knob], [q.unit], [(values[0], values[-1])])
+    except (sweep.UsageError, sweep.PlanError):
+        assume(False)  # the range reaches past what lowering accepts, or is not affine
+    X = np.array(values)[:, None]
+    priced = sweep.price(model, X)
+    for i, x in enumerate(values):
+        result = run(load_text(model.text_with([x])))
+        if not result.ok:
+            assert not priced.flown[i]
+            continue
+        assert priced.flown[i], (target, x, priced.reason(i))
+        f = result.final
+        assert priced.totals["dv_m_s"][i] == pytest.approx(f.dv[0] * 1000, rel=1e-9, abs=1e-9)
+        assert priced.totals["elapsed_s"][i] == pytest.approx(f.t[0], rel=1e-9, abs=1e-6)
+        assert priced.totals["final_mass_kg"][i] == pytest.approx(f.mass[0], rel=1e-9)
