@@ -53,14 +53,14 @@ from .steps import (
     Transfer,
 )
 
+HERE_TOL = 1e-9  # rad: a place this close ahead is "here"
+PRICED_KINDS = ("burn", "allow")  # rows that carry delta-v and propellant
+
+
 def element(x, i: int) -> float:
     """Element ``i`` of a step's value: a number, or an array over the batch (a trade's
     variants), for a message worded on demand."""
     return float(x[i]) if np.ndim(x) else float(x)
-
-
-HERE_TOL = 1e-9  # rad: a place this close ahead is "here"
-PRICED_KINDS = ("burn", "allow")  # rows that carry delta-v and propellant
 
 
 @dataclass(frozen=True)

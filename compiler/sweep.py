@@ -35,7 +35,7 @@ import numpy as np
 from apsidal.lang import syntax as ast
 from apsidal.lang.errors import PlanError, Span, did_you_mean
 from apsidal.lang.parse import parse
-from apsidal.lang.units import UNITS, to_internal
+from apsidal.lang.units import UNITS
 
 from .cliutil import UsageError
 from .evaluate import _check_surface, apply, context_for, descending, start_batch

@@ -7,16 +7,16 @@ fits the terminal, strict CSV, or JSON (docs/output.md, docs/schema/sweep.schema
 
 from __future__ import annotations
 
+import argparse
 import csv
 import io
-import json
 import math
 import re
 import sys
 
 import numpy as np
 
-from .cliutil import EXIT_BAD_INPUT, EXIT_OK, UsageError, screen_width
+from .cliutil import EXIT_OK, UsageError, screen_width
 
 RANGE_OPTIONS = ("--vary", "--disperse", "--tolerance")  # their unit may come apart
 _NUM = r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?"
@@ -59,14 +59,8 @@ def register(sub) -> None:
     p.add_argument("--trade", default=None, metavar="NAME",
                    help="the plan's `trade NAME` statement to run (the first by default)")
     p.add_argument("--format", choices=("table", "json", "csv"), default="table")
-    p.add_argument("--chunk", type=int, default=None, help=argparse_suppress())
+    p.add_argument("--chunk", type=int, default=None, help=argparse.SUPPRESS)
     p.set_defaults(func=cmd_sweep)
-
-
-def argparse_suppress():
-    import argparse
-
-    return argparse.SUPPRESS
 
 
 def join_ranges(argv: list[str]) -> list[str]:
@@ -182,7 +176,6 @@ class Progress:
 
 
 def cmd_sweep(args) -> int:
-    from apsidal.lang.errors import PlanError
     from apsidal.lang.parse import parse
 
     from . import sweep
@@ -349,7 +342,7 @@ def sweep_report(model, X, priced, plan, points: int) -> dict:
         "plan": model.base.title,
         "source": model.base.source.path,
         "axes": [{"name": k.target, "unit": u, "low": float(X[:, j].min()),
-                  "high": float(X[:, j].max()), "points": int(len(np.unique(X[:, j])))}
+                  "high": float(X[:, j].max()), "points": len(np.unique(X[:, j]))}
                  for j, (k, u) in enumerate(zip(model.knobs, model.units))],
         "variants": variants,
         "not_flown": int((~priced.flown).sum()),
@@ -542,7 +535,7 @@ def sweep_table(report: dict, width: int = 100) -> str:
         out.append(_wrap(f"[{mark}] {reason}", width))
     best = report.get("best")
     if best is not None:
-        key = [k for k in best if k.endswith(("_kg", "_m_s", "_s")) and k != "tolerance"][0]
+        key = next(k for k in best if k.endswith(("_kg", "_m_s", "_s")))
         out += ["", _wrap(f"best {best['name']}: {sig(best['value'], 9)} {best['unit']} "
                           f"(within {sig(best['tolerance'], 2)} {best['unit']}), "
                           f"{best['objective']} {sig(best[key], 7)} "
@@ -602,9 +595,3 @@ def dispersion_table(report: dict, width: int = 100) -> str:
     out += ["", _wrap(report["caution"], width)]
     return "\n".join(out) + "\n"
 
-
-def dumps(report: dict) -> str:  # pragma: no cover - for a notebook
-    return json.dumps(report, indent=2)
-
-
-__all__ = ["register", "cmd_sweep", "EXIT_BAD_INPUT"]

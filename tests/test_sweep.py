@@ -502,9 +502,9 @@ def _knobs_of(plan, program) -> list[tuple[str, object]]:
         elif isinstance(s, sweep.ast.CraftDef):
             owners.append(("craft", s))
             owners += [(e.name.text, e) for e in s.engines]
-    owners += [(step.name, st) for st, step in zip(plan.steps(), program.steps)]
-    for name, st in owners:
-        for key, value in sweep._fields_of(st).items():
+    owners += [(step.name, node) for node, step in zip(plan.steps(), program.steps)]
+    for name, node in owners:
+        for key, value in sweep._fields_of(node).items():
             q = value.quantity if isinstance(value, sweep.ast.Distance) else value
             out.append((f"{name}.{key}", q))
     return out
