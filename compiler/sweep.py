@@ -377,6 +377,16 @@ class Priced:
     _why: list[tuple[int, int, str, Failures, np.ndarray]] = field(default_factory=list)
     _short: list[tuple[int, np.ndarray, list[str]]] = field(default_factory=list)
 
+    def take(self, part: slice) -> Priced:
+        """The variants of ``part`` (a slice), their reasons kept."""
+        start = part.start or 0
+        why = [(offset - start, n, name, fails, mask) for offset, n, name, fails, mask
+               in self._why]
+        short = [(offset - start, first, names) for offset, first, names in self._short]
+        return Priced({k: v[part] for k, v in self.totals.items()}, self.flown[part],
+                      self.feasible[part], self.step_names, self.step_dv[part],
+                      self.step_propellant[part], why, short)
+
     def reason(self, i: int) -> str | None:
         """Why variant ``i`` is not feasible (None when it is)."""
         for offset, n, name, fails, mask in self._why:

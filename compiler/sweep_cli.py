@@ -246,7 +246,7 @@ def cmd_sweep(args) -> int:
             X, priced, best = sweep.minimise(model, lo, hi, points, study.minimise, tol)
             if args.format == "csv":  # the grid that bracketed it, then the best
                 at = np.array([[best.value]])
-                sys.stdout.write(sweep_csv_of(model, X, priced, (at, sweep.price(model, at))))
+                sweep_csv_of(model, X, priced, (at, sweep.price(model, at)), sys.stdout)
                 return EXIT_OK
             report = sweep_report(model, X, priced, plan, points)
             report["best"] = best_dict(model, best, study.minimise)
@@ -258,7 +258,7 @@ def cmd_sweep(args) -> int:
             finally:
                 bar.close()
             if args.format == "csv":
-                sys.stdout.write(sweep_csv_of(model, X, priced))
+                sweep_csv_of(model, X, priced, out=sys.stdout)
                 return EXIT_OK
             report = sweep_report(model, X, priced, plan, points)
         emit(report, args.format, sweep_table, None)
@@ -350,8 +350,11 @@ def sweep_report(model, X, priced, plan, points: int) -> dict:
     }
 
 
-def sweep_csv_of(model, X, priced, best: tuple | None = None) -> str:
-    """The variants as CSV, straight from the arrays.
+def sweep_csv_of(model, X, priced, best: tuple | None = None, out=None,
+                 block: int = 1 << 16) -> str | None:
+    """The variants as CSV, straight from the arrays, written ``block`` rows at a time to
+    ``out`` (returned as a string without it), so a million rows never stand in memory
+    as text at once.
 
     One header, and a `record` column saying what each row is: `variant` (the varied
     values, the totals, empty for a variant that cannot be flown, flown, feasible and
@@ -360,30 +363,33 @@ def sweep_csv_of(model, X, priced, best: tuple | None = None) -> str:
     from .sweep import FLAGS, TOTALS
 
     names = [k.target for k in model.knobs]
-    rows = [(X, priced, "variant")]
+    parts = [(X, priced, "variant")]
     if best is not None:
-        rows.append(best + ("best",))
+        parts.append(best + ("best",))
     head = (["record"] + [_unit_key(n, u) for n, u in zip(names, model.units)]
             + list(TOTALS + FLAGS) + ["flown", "feasible", "reason", "message"])
-    buf = io.StringIO()
+    buf = io.StringIO() if out is None else out
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(head)
     word = {True: "true", False: "false"}
-    for values_x, got, record in rows:
-        values, totals, flown, feasible, reasons = _columns(values_x, got, names)
-        n = values_x.shape[0]
-        cols = [[record] * n] + [list(map(repr, values[name])) for name in names]
-        for k in TOTALS:
-            cols.append([repr(x) if ok else "" for x, ok in zip(totals[k], flown)])
-        for k in FLAGS:
-            cols.append([word[x] if ok else "" for x, ok in zip(totals[k], flown)])
-        cols.append([word[x] for x in flown])
-        cols.append([word[x] for x in feasible])
-        cols.append([reasons.get(i) or "" for i in range(n)])
-        cols.append([""] * n)
-        w.writerows(zip(*cols))
+    for values_x, got, record in parts:
+        for start in range(0, values_x.shape[0], block):
+            part = slice(start, start + block)
+            values, totals, flown, feasible, reasons = _columns(values_x[part],
+                                                                 got.take(part), names)
+            n = len(flown)
+            cols = [[record] * n] + [list(map(repr, values[name])) for name in names]
+            for k in TOTALS:
+                cols.append([repr(x) if ok else "" for x, ok in zip(totals[k], flown)])
+            for k in FLAGS:
+                cols.append([word[x] if ok else "" for x, ok in zip(totals[k], flown)])
+            cols.append([word[x] for x in flown])
+            cols.append([word[x] for x in feasible])
+            cols.append([reasons.get(i) or "" for i in range(n)])
+            cols.append([""] * n)
+            w.writerows(zip(*cols))
     w.writerow(["caution"] + [""] * (len(head) - 2) + [_caution()])
-    return buf.getvalue()
+    return buf.getvalue() if out is None else None
 
 
 def best_dict(model, best, objective: str) -> dict:

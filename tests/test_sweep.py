@@ -544,3 +544,17 @@ def test_variants_of_generated_plans_are_separate_runs(data):
         assert priced.totals["dv_m_s"][i] == pytest.approx(f.dv[0] * 1000, rel=1e-9, abs=1e-9)
         assert priced.totals["elapsed_s"][i] == pytest.approx(f.t[0], rel=1e-9, abs=1e-6)
         assert priced.totals["final_mass_kg"][i] == pytest.approx(f.mass[0], rel=1e-9)
+
+
+def test_csv_written_in_blocks_is_the_same_text():
+    from apsidal.compiler.sweep_cli import sweep_csv_of
+
+    program = load_text(PLAN)
+    knob = sweep.locate(program.plan, program, "kick.apoapsis")
+    model = sweep.Model(PLAN, "<plan>", [knob], ["km"], [(39000.0, 41000.0)])
+    X = sweep.grid([(39000.0, 41000.0, 9)])
+    priced = sweep.price(model, X, chunk=4)
+    whole = sweep_csv_of(model, X, priced)
+    assert sweep_csv_of(model, X, priced, block=2) == whole
+    rows = list(csv.DictReader(io.StringIO(whole), strict=True))
+    assert [r["reason"] != "" for r in rows[:-1]] == [not f for f in priced.feasible]
