@@ -507,7 +507,15 @@ def _width(head, rows, keep) -> int:
                for i in keep) + 2 * (len(keep) - 1)
 
 
+TABLE_TOTALS = (  # key, heading, what the line of totals the same in every variant says
+    ("dv_m_s", "dv m/s", "delta-v"), ("dv_with_margin_m_s", "dv+margin m/s", "with margin"),
+    ("propellant_kg", "propellant kg", "propellant"), ("propellant_left_kg", "left kg", "left"),
+    ("elapsed_s", "elapsed", "elapsed"))
+
+
 def sweep_table(report: dict, width: int = 100) -> str:
+    """One row per variant: the varied values and the totals that change from one variant
+    to another (those that do not are said once, above the table), and a status."""
     from .textfmt import duration, sig
 
     axes = report["axes"]
@@ -515,8 +523,20 @@ def sweep_table(report: dict, width: int = 100) -> str:
     lines = [report["plan"],
              f"{n:,} variant{'s' if n != 1 else ''}"
              + (f", {report['not_flown']:,} cannot be flown" if report["not_flown"] else "")]
-    head = [f"{a['name']} {a['unit']}".rstrip() for a in axes] + [
-        "dv m/s", "dv+margin m/s", "propellant kg", "left kg", "elapsed", "status"]
+    text = lambda key, x: duration(x) if key == "elapsed_s" else sig(x)
+    flown = [v["totals"] for v in report["variants"] if v["totals"] is not None]
+    shown, same = [], []
+    for key, heading, word in TABLE_TOTALS:
+        xs = [t[key] for t in flown]
+        if len(xs) > 1 and max(xs) - min(xs) <= 1e-12 * max(abs(x) for x in xs):
+            unit = "" if key == "elapsed_s" else " " + heading.rsplit(" ", 1)[-1]
+            same.append(f"{word} {text(key, xs[0])}{unit}")
+        else:
+            shown.append((key, heading))
+    if same:
+        lines.append(_wrap("the same in every variant flown: " + ", ".join(same), width))
+    head = [f"{a['name']} {a['unit']}".rstrip() for a in axes] + [h for _, h in shown] + [
+        "status"]
     notes: dict[str, int] = {}
     rows = []
     for v in report["variants"]:
@@ -528,15 +548,13 @@ def sweep_table(report: dict, width: int = 100) -> str:
             mark = notes.setdefault(reason, len(notes) + 1)
             status = ("not flown" if not v["flown"] else "short") + f" [{mark}]"
         vals = [_value_text(v["values"][a["name"]]) for a in axes]
-        if t is None:
-            rows.append(vals + ["-"] * 5 + [status])
-        else:
-            rows.append(vals + [sig(t["dv_m_s"]), sig(t["dv_with_margin_m_s"]),
-                                sig(t["propellant_kg"]), sig(t["propellant_left_kg"]),
-                                duration(t["elapsed_s"]), status])
+        cells = (["-"] * len(shown) if t is None else [text(k, t[k]) for k, _ in shown])
+        rows.append(vals + cells + [status])
     right = [True] * (len(head) - 1) + [False]
     k = len(axes)  # left kg, elapsed, dv+margin give way first, in that order
-    out = lines + [""] + _layout(head, rows, right, width, (k + 3, k + 4, k + 1))
+    order = [k + i for key in ("propellant_left_kg", "elapsed_s", "dv_with_margin_m_s")
+             for i, (have, _) in enumerate(shown) if have == key]
+    out = lines + [""] + _layout(head, rows, right, width, tuple(order))
     for reason, mark in notes.items():
         out.append(_wrap(f"[{mark}] {reason}", width))
     best = report.get("best")
