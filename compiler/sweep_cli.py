@@ -250,6 +250,8 @@ def cmd_sweep(args) -> int:
                 return EXIT_OK
             report = sweep_report(model, X, priced, plan, points)
             report["best"] = best_dict(model, best, study.minimise)
+            emit(report, args.format, sweep_table, None)
+            return EXIT_OK
         else:
             X = sweep.grid([(lo, hi, points) for lo, hi in extremes])
             bar = Progress(X.shape[0])
@@ -259,9 +261,11 @@ def cmd_sweep(args) -> int:
                 bar.close()
             if args.format == "csv":
                 sweep_csv_of(model, X, priced, out=sys.stdout)
-                return EXIT_OK
-            report = sweep_report(model, X, priced, plan, points)
-        emit(report, args.format, sweep_table, None)
+            elif args.format == "json":
+                write_json(sweep_report(model, X, priced, plan, points, variants=False),
+                           variants_of(model, X, priced), sys.stdout)
+            else:
+                emit(sweep_report(model, X, priced, plan, points), "table", sweep_table, None)
         return EXIT_OK
     n = study.samples or 10000
     seed = 1 if study.seed is None else study.seed
@@ -321,33 +325,57 @@ def _columns(X, priced, names) -> tuple[dict, dict, list, list, dict]:
     totals |= {k: priced.totals[k].astype(bool).tolist() for k in FLAGS}
     feasible = priced.feasible.tolist()
     reasons = {i: priced.reason(i) for i in np.flatnonzero(~priced.feasible).tolist()}
+    # (a variant's reason is worded only when it is written)
     return values, totals, priced.flown.tolist(), feasible, reasons
 
 
-def sweep_report(model, X, priced, plan, points: int) -> dict:
+def variants_of(model, X, priced, block: int = 1 << 16):
+    """The variants as the JSON contract lays them out, ``block`` at a time."""
     from .sweep import FLAGS, TOTALS
 
     names = [k.target for k in model.knobs]
-    values, totals, flown, feasible, reasons = _columns(X, priced, names)
     keys = TOTALS + FLAGS
-    variants = []
-    for i in range(X.shape[0]):
-        v = {"values": {name: values[name][i] for name in names},
-             "totals": {k: totals[k][i] for k in keys} if flown[i] else None,
-             "flown": flown[i], "feasible": feasible[i]}
-        if not feasible[i]:
-            v["reason"] = reasons[i]
-        variants.append(v)
+    for start in range(0, X.shape[0], block):
+        part = slice(start, start + block)
+        values, totals, flown, feasible, reasons = _columns(X[part], priced.take(part), names)
+        for i in range(len(flown)):
+            v = {"values": {name: values[name][i] for name in names},
+                 "totals": {k: totals[k][i] for k in keys} if flown[i] else None,
+                 "flown": flown[i], "feasible": feasible[i]}
+            if not feasible[i]:
+                v["reason"] = reasons[i]
+            yield v
+
+
+def sweep_report(model, X, priced, plan, points: int, variants: bool = True) -> dict:
+    """The sweep's report; ``variants`` False leaves them to ``write_json``."""
     return {
         "plan": model.base.title,
         "source": model.base.source.path,
         "axes": [{"name": k.target, "unit": u, "low": float(X[:, j].min()),
                   "high": float(X[:, j].max()), "points": len(np.unique(X[:, j]))}
                  for j, (k, u) in enumerate(zip(model.knobs, model.units))],
-        "variants": variants,
+        "variants": list(variants_of(model, X, priced)) if variants else [],
         "not_flown": int((~priced.flown).sum()),
         "caution": _caution(),
     }
+
+
+def write_json(report: dict, variants, out) -> None:
+    """``report`` as JSON with ``variants`` (an iterable) written in as they come, one a
+    line, so a million of them never stand in memory at once."""
+    import json
+
+    from .render import to_json
+
+    mark = "\0variants\0"
+    before, after = to_json({**report, "variants": mark}).split(json.dumps(mark), 1)
+    out.write(before + "[")
+    first = True
+    for v in variants:
+        out.write(("\n" if first else ",\n") + "    " + json.dumps(v, allow_nan=False))
+        first = False
+    out.write(("\n  ]" if not first else "]") + after + "\n")
 
 
 def sweep_csv_of(model, X, priced, best: tuple | None = None, out=None,
