@@ -558,3 +558,22 @@ def test_csv_written_in_blocks_is_the_same_text():
     assert sweep_csv_of(model, X, priced, block=2) == whole
     rows = list(csv.DictReader(io.StringIO(whole), strict=True))
     assert [r["reason"] != "" for r in rows[:-1]] == [not f for f in priced.feasible]
+
+
+def test_progress_goes_to_a_terminal_only(plan_file, capsys, monkeypatch):
+    import sys
+
+    class Tty(io.StringIO):
+        def isatty(self):
+            return True
+
+    err = Tty()
+    monkeypatch.setattr(sys, "stderr", err)
+    assert main(["sweep", str(plan_file), "--vary", "main.isp=300..330 s", "--points", "5",
+                 "--chunk", "2", "--format", "csv"]) == 0
+    text = err.getvalue()
+    assert "pricing 2/5 variants" in text and "pricing 5/5 variants" in text
+    assert text.endswith("\r\033[K")  # the bar is cleared, nothing left on the screen
+    monkeypatch.undo()
+    main(["sweep", str(plan_file), "--vary", "main.isp=300..330 s", "--points", "5"])
+    assert "pricing" not in capsys.readouterr().err  # not a terminal: no bar
