@@ -12,9 +12,10 @@ numbers written in and priced by the same evaluator, all variants in one batch:
   probes fix it exactly; a number that does not move affinely (an `sma to` goal becomes
   an energy) is refused by name.  The start state is not affine in the elements: it is
   computed per element from the start orbit's fields (``start_states``) and checked
-  against the probes.  Lowering at the ends also runs every check lowering makes (a
-  target under the surface, an inclination past 180 deg): bounds are intervals, so a
-  range whose ends lower lowers throughout.
+  against the probes.  Lowering at the ends (and at every corner of a grid's box) also
+  runs every check lowering makes (a target under the surface, an inclination past
+  180 deg, a bi-elliptic apoapsis below its target): those bounds are linear in the
+  values, so a box whose corners lower lowers throughout.
 * the lowered program is rebuilt with those numbers as arrays over the batch
   (``Model.program``): the steps' goals, masses, engines and margins hold one value per
   variant, and the evaluator broadcasts them.
@@ -27,6 +28,7 @@ A variant that cannot be flown keeps its place with the reason, worded on demand
 from __future__ import annotations
 
 import dataclasses
+import itertools
 import math
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
@@ -49,6 +51,7 @@ OBJECTIVES = {"propellant": "propellant_kg", "dv": "dv_m_s", "elapsed": "elapsed
 TOTALS = ("dv_m_s", "dv_with_margin_m_s", "propellant_kg", "final_mass_kg",
           "propellant_left_kg", "dv_capacity_left_m_s", "elapsed_s")
 FLAGS = ("reserve_met", "expectations_met")
+MAX_KNOBS = 8  # quantities a trade moves at once: 256 corners lowered
 AFFINE_RTOL = 1e-11  # how closely a moved number must follow a straight line in the value
 
 
@@ -303,9 +306,13 @@ class Model:
                         and np.allclose(v, want_v, rtol=1e-12, atol=1e-12)):  # pragma: no cover
                     raise UsageError(f"`{knob.target}`: this start orbit's form cannot be "
                                      "varied in one batch")
-        if len(knobs) > 1:  # the ends together: still lowers, and the effects still add
-            for end in (0, 1):
-                xs = [e[end] for e in extremes]
+        if len(knobs) > MAX_KNOBS:
+            raise _complain(f"a trade moves at most {MAX_KNOBS} quantities at once, this one "
+                            f"{len(knobs)}", "split it into several", span, self.source)
+        if len(knobs) > 1:  # every corner of the box: it lowers, and the effects add there
+            # (lowering's bounds are linear in the values, so a box whose corners lower
+            # lowers throughout)
+            for xs in itertools.product(*extremes):
                 got = dict(leaves(self._lower(dict(enumerate(xs)))))
                 mine = self._numbers(np.array([xs]))
                 for p, y in mine.items():
