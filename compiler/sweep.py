@@ -394,6 +394,18 @@ class Priced:
                       self.feasible[part], self.step_names, self.step_dv[part],
                       self.step_propellant[part], why, short)
 
+    def refuse(self, fails: Failures) -> None:
+        """Mark the variants ``fails`` holds as not flown, with its reasons (samples the
+        plan itself refuses, see ``admissible``)."""
+        mask = ~fails.ok
+        if not mask.any():
+            return
+        self.flown &= ~mask
+        self.feasible &= ~mask
+        for k in TOTALS:
+            self.totals[k] = np.where(mask, np.nan, self.totals[k])
+        self._why.insert(0, (0, mask.size, "", fails, mask))
+
     def reason(self, i: int) -> str | None:
         """Why variant ``i`` is not feasible (None when it is)."""
         for offset, n, name, fails, mask in self._why:
@@ -494,6 +506,51 @@ def grid(axes: list[tuple[float, float, int]]) -> np.ndarray:
 def finite_or_none(x) -> float | None:
     x = float(x)
     return x if math.isfinite(x) else None
+
+
+def _refusal(text: str, path: str, knob: Knob, unit: str, x: float) -> PlanError | None:
+    """Why the plan with ``knob`` at ``x`` does not lower (None when it does)."""
+    try:
+        lower(parse(substitute(text, [(knob.quantity, x, unit)]), path))
+    except PlanError as err:
+        return err
+    return None
+
+
+def admissible(text: str, path: str, knobs: list[Knob], units: list[str], X: np.ndarray,
+               bases: list[float]) -> tuple[np.ndarray, Failures]:
+    """Samples the plan itself refuses (a dispersed inclination below 0 deg, a mass below
+    zero), marked so: the values past the edge of what lowering accepts, found by
+    bisection between the plan's own value and the farthest sample, are held at that
+    edge for pricing and reported as not flown with the lowering's message."""
+    X = X.copy()
+    fails = Failures(X.shape[0])
+    for j, (knob, unit) in enumerate(zip(knobs, units)):
+        base = bases[j]
+        for end in (float(X[:, j].min()), float(X[:, j].max())):
+            if end == base or _refusal(text, path, knob, unit, end) is None:
+                continue
+            good, bad = base, end
+            while True:
+                mid = 0.5 * (good + bad)
+                if mid in (good, bad):
+                    break
+                if _refusal(text, path, knob, unit, mid) is None:
+                    good = mid
+                else:
+                    bad = mid
+            column = X[:, j].copy()
+            beyond = column > good if end > base else column < good
+
+            def why(i, column=column, knob=knob, unit=unit):
+                err = _refusal(text, path, knob, unit, float(column[i]))
+                said = f"{knob.target} = {number_text(column[i])} {unit}".rstrip()
+                return (f"{said}: the plan is refused: {err.message}" if err else
+                        f"{said} is past the edge of what the plan accepts", err and err.hint)
+
+            fails.add(beyond, why)
+            X[beyond, j] = good
+    return X, fails
 
 
 # --- the best value of one quantity ---------------------------------------------------

@@ -278,13 +278,16 @@ def cmd_sweep(args) -> int:
                                   span, source)
     bases = [k.base(u) for k, u in zip(knobs, units)]
     X = sweep.samples(bases, sigmas, n, seed)
-    extremes = [(float(X[:, j].min()), float(X[:, j].max())) for j in range(len(knobs))]
+    # samples the plan refuses (past a bound of lowering) are kept, not flown, with why
+    held, refused = sweep.admissible(text, path, knobs, units, X, bases)
+    extremes = [(float(held[:, j].min()), float(held[:, j].max())) for j in range(len(knobs))]
     model = sweep.Model(text, path, knobs, units, extremes, study.span)
     bar = Progress(n, "samples")
     try:
-        priced = sweep.price(model, X, bar, chunk)
+        priced = sweep.price(model, held, bar, chunk)
     finally:
         bar.close()
+    priced.refuse(refused)
     report = dispersion_report(model, X, priced, plan, sigmas, seed)
     nominal = sweep.price(model, np.array([bases]))  # the plan as written
     report["nominal"] = ({k: sweep.finite_or_none(nominal.totals[k][0]) for k in
@@ -624,8 +627,9 @@ def dispersion_table(report: dict, width: int = 100) -> str:
                    + ", ".join(f"{x['name']} {_value_text(x['base'])} ± "
                                f"{_value_text(x['sigma'])} {x['unit']} (1-sigma)"
                                .replace("  ", " ") for x in d), width),
-             f"cannot be flown: {100 * report['not_flown_share']:.2f}% of the samples"
-             + (f" ({report['first_not_flown_reason']})" if report["not_flown"] else ""), ""]
+             _wrap(f"cannot be flown: {100 * report['not_flown_share']:.2f}% of the samples"
+                   + (f" (the first: {report['first_not_flown_reason']})"
+                      if report["not_flown"] else ""), width), ""]
     keys = ["mean", "std"] + [_pct_key(p) for p in PERCENTILES]
     head = ["step", "quantity", "mean", "std"] + [f"p{p:g}" for p in PERCENTILES]
     rows = []

@@ -581,3 +581,23 @@ def test_progress_goes_to_a_terminal_only(plan_file, capsys, monkeypatch):
     monkeypatch.undo()
     main(["sweep", str(plan_file), "--vary", "main.isp=300..330 s", "--points", "5"])
     assert "pricing" not in capsys.readouterr().err  # not a terminal: no bar
+
+
+def test_samples_the_plan_refuses_are_counted_not_flown(tmp_path, capsys):
+    """An equatorial start dispersed in inclination: the samples below 0 deg are no plan
+    (the inclination runs from 0 to 180 deg); they are kept as not flown, with the
+    lowering's reason, and their share is the normal probability below 0 (scipy)."""
+    from scipy.stats import norm
+
+    path = tmp_path / "eq.aps"
+    path.write_text(PLAN.replace("inclination 28.5 deg raan 40 deg", "inclination 0.02 deg "
+                                 "raan 40 deg").replace("transfer geo at node:",
+                                                        "transfer geo:"))
+    n = 4000
+    assert main(["sweep", str(path), "--disperse", "start.inclination=±0.05 deg",
+                 "--samples", str(n), "--seed", "11", "--format", "json"]) == 0
+    doc = strict_json(capsys.readouterr().out)
+    p = norm.cdf(-0.02 / 0.05)
+    assert doc["not_flown_share"] == pytest.approx(p, abs=5 * math.sqrt(p * (1 - p) / n))
+    assert "is outside 0 to 180 deg" in doc["first_not_flown_reason"]
+    assert doc["total"]["dv_m_s"]["mean"] is not None
