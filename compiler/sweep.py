@@ -15,7 +15,8 @@ numbers written in and priced by the same evaluator, all variants in one batch:
   against the probes.  Lowering at the ends (and at every corner of a grid's box) also
   runs every check lowering makes (a target under the surface, an inclination past
   180 deg, a bi-elliptic apoapsis below its target): those bounds are linear in the
-  values, so a box whose corners lower lowers throughout.
+  values, so a box whose corners lower lowers throughout.  Values past the bound of one
+  quantity are held at its edge and reported not flown (``admissible``).
 * the lowered program is rebuilt with those numbers as arrays over the batch
   (``Model.program``): the steps' goals, masses, engines and margins hold one value per
   variant, and the evaluator broadcasts them.
@@ -567,30 +568,43 @@ class Optimum:
     evaluations: int
 
 
-def minimise(model: Model, lo: float, hi: float, points: int, objective: str,
-             tolerance: float | None = None) -> tuple[np.ndarray, Priced, Optimum]:
-    """The value of the model's one knob in [lo, hi] that minimises ``objective``.
+def minimise(model: Model, X: np.ndarray, objective: str, tolerance: float | None = None,
+             held: np.ndarray | None = None, refused: Failures | None = None
+             ) -> tuple[Priced, Optimum]:
+    """The value of the model's one knob that minimises ``objective``, over the grid
+    ``X`` (one column, ascending; ``held`` and ``refused`` as ``admissible`` gives them
+    when the grid reaches past a bound of the plan).
 
-    The range is priced at ``points`` values in one batch; the best of them and its two
-    neighbours bracket the optimum (a variant that cannot be flown counts as infinitely
-    dear), and golden-section search narrows the bracket to ``tolerance`` (by default a
-    billionth of the range).  Returns the grid, its pricing and the optimum.
+    The grid is priced in one batch; the best of its points and its two neighbours
+    bracket the optimum (a variant that cannot be flown counts as infinitely dear), and
+    golden-section search narrows the bracket to ``tolerance`` (by default a millionth of
+    the range: near a minimum the total changes with the square of the step, so a bracket
+    much narrower than the square root of the rounding of the total is not better
+    known).  An end of the grid as cheap as the best inside it wins: the range, not the
+    physics, bounds that optimum, and the result says so.  Returns the grid's pricing
+    and the optimum.
     """
     key = OBJECTIVES[objective]
-    X = grid([(lo, hi, max(points, 3))])
-    P = price(model, X)
+    held = X if held is None else held
+    P = price(model, held)
+    if refused is not None:
+        P.refuse(refused)
+    xs = X[:, 0]
+    lo, hi = float(xs[0]), float(xs[-1])
+    ok_lo, ok_hi = float(held[:, 0].min()), float(held[:, 0].max())  # what lowers
     cost = np.where(P.flown, P.totals[key], np.inf)
     if not np.isfinite(cost).any():
         raise UsageError(f"no value of `{model.knobs[0].target}` from {number_text(lo)} to "
                          f"{number_text(hi)} can be flown (first: {P.reason(0)})")
     k = int(np.argmin(cost))
-    xs = X[:, 0]
     a, b = xs[max(k - 1, 0)], xs[min(k + 1, len(xs) - 1)]
     tol = tolerance if tolerance is not None else abs(hi - lo) * 1e-6
     evaluations = len(xs)
 
     def f(x: float) -> float:
         nonlocal evaluations
+        if not ok_lo <= x <= ok_hi:  # past a bound of the plan: no plan there
+            return math.inf
         evaluations += 1
         got = price(model, np.array([[x]]))
         return float(got.totals[key][0]) if got.flown[0] else math.inf
@@ -613,7 +627,7 @@ def minimise(model: Model, lo: float, hi: float, points: int, objective: str,
         if cend <= fbest:
             best, fbest = end, float(cend)
     at_end = bool(abs(best - xs[0]) <= 2 * tol or abs(best - xs[-1]) <= 2 * tol)
-    return X, P, Optimum(float(best), float(tol), float(fbest), at_end, evaluations)
+    return P, Optimum(float(best), float(tol), float(fbest), at_end, evaluations)
 
 
 # --- dispersions ----------------------------------------------------------------------

@@ -224,7 +224,14 @@ def cmd_sweep(args) -> int:
                                       f"..{sweep.number_text(hi)})",
                                       "give the low end first", span, source)
         points = study.points or 11
-        extremes = [(lo, hi) for _, lo, hi, _, _ in study.vary]
+        if study.minimise:
+            points = max(points, 3)
+        X = sweep.grid([(lo, hi, points) for _, lo, hi, _, _ in study.vary])
+        # values past a bound of the plan (a target under the surface) are rows not flown
+        bases = [k.base(u) for k, u in zip(knobs, units)]
+        held, refused = sweep.admissible(text, path, knobs, units, X, bases)
+        extremes = [(float(held[:, j].min()), float(held[:, j].max()))
+                    for j in range(len(knobs))]
         model = sweep.Model(text, path, knobs, units, extremes, study.span)
         if study.minimise:
             if len(knobs) != 1:
@@ -242,8 +249,7 @@ def cmd_sweep(args) -> int:
                 if not value > 0:
                     raise UsageError("--tolerance must be positive")
                 tol = value
-            lo, hi = extremes[0]
-            X, priced, best = sweep.minimise(model, lo, hi, points, study.minimise, tol)
+            priced, best = sweep.minimise(model, X, study.minimise, tol, held, refused)
             if args.format == "csv":  # the grid that bracketed it, then the best
                 at = np.array([[best.value]])
                 sweep_csv_of(model, X, priced, (at, sweep.price(model, at)), sys.stdout)
@@ -253,12 +259,12 @@ def cmd_sweep(args) -> int:
             emit(report, args.format, sweep_table, None)
             return EXIT_OK
         else:
-            X = sweep.grid([(lo, hi, points) for lo, hi in extremes])
             bar = Progress(X.shape[0])
             try:
-                priced = sweep.price(model, X, bar, chunk)
+                priced = sweep.price(model, held, bar, chunk)
             finally:
                 bar.close()
+            priced.refuse(refused)
             if args.format == "csv":
                 sweep_csv_of(model, X, priced, out=sys.stdout)
             elif args.format == "json":

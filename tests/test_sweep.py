@@ -154,6 +154,21 @@ def test_every_variant_is_a_separate_run(case, fractions, data):
         assert bool(priced.feasible[i]) == want["feasible"]
 
 
+def test_values_past_a_bound_of_the_plan_are_rows_not_flown(plan_file, capsys):
+    """A range reaching under the surface: those values are no plan (lowering refuses
+    them), so their rows say so; the rest are priced."""
+    assert main(["sweep", str(plan_file), "--vary", "geo.circular=-7000..30000 km",
+                 "--points", "5", "--format", "json"]) == 0
+    doc = strict_json(capsys.readouterr().out)
+    under = [v for v in doc["variants"] if v["values"]["geo.circular"] <= 0]
+    assert under and all(not v["flown"] and "under the surface" in v["reason"] for v in under)
+    above = [v for v in doc["variants"] if v["values"]["geo.circular"] > 2000]
+    assert above and all(v["flown"] for v in above)
+    want = separate_run(PLAN.replace("circular 35786 km, inclination to 5 deg",
+                                     "circular 30000.0 km, inclination to 5 deg"))
+    assert above[-1]["totals"]["dv_m_s"] == pytest.approx(want["dv_m_s"], rel=1e-9)
+
+
 def test_a_variant_that_cannot_be_flown_keeps_its_place_and_reason():
     program = load_text(PLAN)
     knob = sweep.locate(program.plan, program, "kick.apoapsis")
@@ -199,7 +214,7 @@ burn arrive at apoapsis: circular, inclination to 0 deg
     program = load_text(text)
     knob = sweep.locate(program.plan, program, "leave.inclination")
     model = sweep.Model(text, "<plan>", [knob], ["deg"], [(0.0, 28.5)])
-    _, _, best = sweep.minimise(model, 0.0, 28.5, 15, "dv", 1e-7)
+    _, best = sweep.minimise(model, sweep.grid([(0.0, 28.5, 15)]), "dv", 1e-7)
     r0, r1 = RE + 400.0, RE + 35786.0
     ref = minimize_scalar(hohmann_split_cost, bounds=(0.0, 28.5), args=(r0, r1, 28.5),
                           method="bounded", options={"xatol": 1e-9})
@@ -244,7 +259,7 @@ transfer go: circular 3000 km, inclination to 0 deg via apoapsis 30000 km
     knob = sweep.locate(program.plan, program, "go.via")
     lo, hi = 5000.0, 200000.0
     model = sweep.Model(text, "<plan>", [knob], ["km"], [(lo, hi)])
-    _, _, best = sweep.minimise(model, lo, hi, 25, "dv", 1e-3)
+    _, best = sweep.minimise(model, sweep.grid([(lo, hi, 25)]), "dv", 1e-3)
     r0, r2 = RE + 400.0, RE + 3000.0
     ref = minimize_scalar(lambda a: bielliptic_cost(RE + a, r0, r2, 50.0), bounds=(lo, hi),
                           method="bounded", options={"xatol": 1e-6})
@@ -381,7 +396,6 @@ def test_table_fits_80_columns(plan_file, capsys, monkeypatch):
     (["--vary", "geo.circular=20000..30000 s"], ["is a length", "give the values in `km`"]),
     (["--vary", "geo.circular=30000..20000 km"], ["range of `geo.circular` is empty"]),
     (["--vary", "geo.circular 1-2 km"], ["is not NAME.FIELD=LOW..HIGH UNIT"]),
-    (["--vary", "geo.circular=-7000..30000 km"], ["is refused", "under the surface"]),
     (["--vary", "geo.circular=20000..30000 km", "--disperse", "main.isp=±3 s"],
      ["not both"]),
     (["--disperse", "main.isp=±0 s"], ["must be positive"]),
