@@ -275,6 +275,11 @@ class Model:
         for j, (knob, unit, (lo, hi)) in enumerate(zip(knobs, units, extremes)):
             probes = sorted({lo, hi, 0.5 * (lo + hi)})
             lowered = [(x, dict(leaves(self._lower({j: x})))) for x in probes]
+            if any(got.keys() != base_leaves.keys() for _, got in lowered):
+                raise _complain(f"`{knob.target}` changes the form of the lowered plan over "
+                                "this range, which a trade cannot move in one batch",
+                                "vary it over a range where the plan keeps its form",
+                                span, self.source)
             for p, b in base_leaves.items():
                 if p in (("start_r",), ("start_v",)):
                     continue
