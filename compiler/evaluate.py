@@ -796,8 +796,8 @@ def _coast(step: Coast, index: int, batch: Batch, ctx: Context, fails: Failures)
 def _drop(step: Drop, index: int, batch: Batch, ctx: Context, fails: Failures):
     dry = batch.mass - batch.propellant
     fails.add(step.mass >= dry, lambda i: (
-        (f"{step.name} drops {element(step.mass, i):.3f} kg but the craft holds only {dry[i]:.3f} kg "
-        "besides its propellant"),
+        (f"{step.name} drops {element(step.mass, i):.3f} kg but the craft holds only "
+        f"{dry[i]:.3f} kg besides its propellant"),
         "drop less, or check the craft's dry mass"))
     new = replace(batch, mass=np.where(fails.ok, batch.mass - step.mass, batch.mass))
     return new, [Row(index, step.name, "drop", "here", new)]

@@ -28,8 +28,9 @@ def trades(plan: ast.Plan) -> list[ast.Trade]:
 
 def trade_text(t: ast.Trade) -> str:
     """The statement's text with its spacing made canonical (for `diff`)."""
-    items = (" ".join(w.text for w in (i.word, *i.args)) for i in t.items)
-    return f"trade {t.name.text}: " + ", ".join(items)
+    from apsidal.lang.format import format_statement
+
+    return format_statement(t)
 
 
 def changes(old: ast.Plan | None, new: ast.Plan | None) -> list[dict]:
