@@ -176,12 +176,89 @@ def number_text(x: float) -> str:
     return repr(float(x))
 
 
-def substitute(text: str, edits: list[tuple[ast.Quantity, float, str]]) -> str:
-    """The plan text with each quantity replaced by a value in a unit."""
-    for q, value, unit in sorted(edits, key=lambda e: -e[0].span.start):
-        new = number_text(value) + (f" {unit}" if unit else "")
-        text = text[:q.span.start] + new + text[q.span.end:]
+def _number(x: float, unit: str) -> str:
+    return number_text(x) + (f" {unit}" if unit else "")
+
+
+def variant_text(text: str, start: ast.Start | None, radius: float, knobs: list[Knob],
+                 units: list[str], values: dict[int, float], mirror: bool = False) -> str:
+    """The plan text with the knobs ``values`` (index: value, in ``units``) written in.
+
+    With ``mirror`` a start orbit given by `periapsis` and `apoapsis` whose values cross
+    (the periapsis above the apoapsis, as independently dispersed apsides of a
+    near-circular start may draw) is written as the same ellipse with its apse line turned
+    half a turn: the two radii swapped, `argp` and `anomaly` each 180 deg on (written in
+    when the plan leaves them out).  The craft stands at the same point with the same
+    velocity: the radius drawn for the periapsis is where it is, the other is half an
+    orbit on (docs/physics.md, "Trades")."""
+    edits = {k.quantity.span.start: (k.quantity.span.end, _number(x, units[j]))
+             for j, x in values.items() for k in [knobs[j]]}
+    if mirror and start is not None and start.form != "circular":
+        fields = {f.key: f for f in start.fields}
+        if {"periapsis", "apoapsis"} <= set(fields):
+            def internal(key):  # the field's value as a radius, the knob's when varied
+                d = fields[key].value
+                for j, k in enumerate(knobs):
+                    if k.start_key == key and j in values:
+                        return float(k.internal(values[j], units[j], radius))
+                q = d.quantity
+                return q.internal() + (0.0 if d.is_radius else radius)
+
+            rp, ra = internal("periapsis"), internal("apoapsis")
+            if rp > ra:
+                for key, r in (("periapsis", ra), ("apoapsis", rp)):
+                    d = fields[key].value
+                    x = (r - (0.0 if d.is_radius else radius)) / UNITS[d.quantity.unit][1]
+                    edits[d.quantity.span.start] = (d.quantity.span.end,
+                                                    _number(x, d.quantity.unit))
+                missing = []
+                for key in ("argp", "anomaly"):
+                    if key not in fields:
+                        missing.append(f"{key} 180 deg")
+                        continue
+                    q = fields[key].value
+                    x = next((float(k.internal(values[j], units[j], radius))
+                              for j, k in enumerate(knobs)
+                              if k.start_key == key and j in values), q.internal())
+                    edits[q.span.start] = (q.span.end, _number((x + math.pi)
+                                                               / UNITS[q.unit][1], q.unit))
+                if missing:
+                    at = start.fields[-1].span.end
+                    edits[at] = (at, " " + " ".join(missing))
+    for begin in sorted(edits, reverse=True):
+        end, new = edits[begin]
+        text = text[:begin] + new + text[end:]
     return text
+
+
+class Texts:
+    """The plan text of any set of values of the knobs, and whether lowering takes it."""
+
+    def __init__(self, text: str, path: str, knobs: list[Knob], units: list[str],
+                 mirror: bool = False):
+        self.text, self.path, self.knobs, self.units, self.mirror = (text, path, knobs,
+                                                                     units, mirror)
+        program = lower(parse(text, path))
+        self.start = next((s for s in program.plan.statements if isinstance(s, ast.Start)),
+                          None)
+        self.radius = program.body.radius
+        self.source = program.source
+
+    def of(self, values: dict[int, float]) -> str:
+        return variant_text(self.text, self.start, self.radius, self.knobs, self.units,
+                            values, self.mirror)
+
+    def refusal(self, values: dict[int, float]) -> PlanError | None:
+        """Why the plan with ``values`` does not lower (None when it does)."""
+        try:
+            lower(parse(self.of(values), self.path))
+        except PlanError as err:
+            return err
+        return None
+
+    def said(self, values: dict[int, float]) -> str:
+        return ", ".join(f"{self.knobs[j].target} = {number_text(x)} {self.units[j]}".rstrip()
+                         for j, x in values.items())
 
 
 # --- the lowered program as numbers ---------------------------------------------------
@@ -218,10 +295,12 @@ def with_leaf(obj, path: tuple, value):
     return dataclasses.replace(obj, **{head: with_leaf(getattr(obj, head), rest, value)})
 
 
-def start_states(program: Program, start: ast.Start, knobs: list[Knob], values: list):
+def start_states(program: Program, start: ast.Start, knobs: list[Knob], values: list,
+                 mirror: bool = False):
     """The start position and velocity per element, with the start orbit's varied fields
     (``values``, internal units, in ``knobs`` order) written in: the lowering's own
-    sequence of operations, on arrays.  Closed start orbits only."""
+    sequence of operations, on arrays.  Closed start orbits only.  With ``mirror`` crossed
+    apsides are the ellipse with its apse line turned half a turn (``variant_text``)."""
     R = program.body.radius
     given = {}
     for f in start.fields:
@@ -248,6 +327,10 @@ def start_states(program: Program, start: ast.Start, knobs: list[Knob], values: 
     rp, ra = np.asarray(rp, dtype=float), np.asarray(ra, dtype=float)
     get = lambda k: np.asarray(given.get(k, 0.0), dtype=float)
     inc, raan, argp, nu = get("inclination"), get("raan"), get("argp"), get("anomaly")
+    if mirror and keys == {"periapsis", "apoapsis"}:
+        crossed = rp > ra
+        rp, ra = np.where(crossed, ra, rp), np.where(crossed, rp, ra)
+        argp, nu = argp + np.where(crossed, np.pi, 0.0), nu + np.where(crossed, np.pi, 0.0)
     sma, ecc = 0.5 * (rp + ra), (ra - rp) / (ra + rp)
     equatorial = (inc < 1e-12) | (inc > np.pi - 1e-12)
     argp = np.where(equatorial, np.where(inc < np.pi / 2, argp + raan, argp - raan), argp)
@@ -261,9 +344,15 @@ class Model:
     any set of values, built from probes of the plan text (see the module's notes)."""
 
     def __init__(self, text: str, path: str, knobs: list[Knob], units: list[str],
-                 extremes: list[tuple[float, float]], span: Span | None = None):
+                 extremes: list[tuple[float, float]], span: Span | None = None,
+                 mirror: bool = False, admitted: np.ndarray | None = None):
+        """``mirror``: crossed start apsides flown turned (``variant_text``); ``admitted``:
+        rows of values that lower, given when some corner of the box does not (the
+        variants past a bound the knobs share, marked not flown by ``jointly``): the
+        effects are then checked to add at those rows instead."""
         self.text, self.path, self.knobs, self.units = text, path, knobs, units
-        self.span = span
+        self.span, self.mirror = span, mirror
+        self.texts = Texts(text, path, knobs, units, mirror)
         self.base = lower(parse(text, path))
         self.source = self.base.source
         base_leaves = dict(leaves(self.base))
@@ -305,7 +394,7 @@ class Model:
                 vals = [np.full(len(xs), self.base_internal(i)) for i in self.start_knobs]
                 vals[self.start_knobs.index(j)] = knob.internal(xs, unit, self.base.body.radius)
                 r, v = start_states(self.base, self.start, [knobs[i] for i in self.start_knobs],
-                                    vals)
+                                    vals, mirror)
                 want_r = np.array([got[("start_r",)] for _, got in lowered])
                 want_v = np.array([got[("start_v",)] for _, got in lowered])
                 if not (np.allclose(r, want_r, rtol=1e-12, atol=1e-9)
@@ -318,7 +407,13 @@ class Model:
         if len(knobs) > 1:  # every corner of the box: it lowers, and the effects add there
             # (lowering's bounds are linear in the values, so a box whose corners lower
             # lowers throughout)
-            for xs in itertools.product(*extremes):
+            points = list(itertools.product(*extremes))
+            if admitted is not None:  # some corners past a shared bound: check at rows
+                step = max(1, len(admitted) // 64)
+                points = [tuple(x) for x in admitted[::step]] + [tuple(admitted[-1])]
+                points += [c for c in itertools.product(*extremes)
+                           if self.texts.refusal(dict(enumerate(c))) is None]
+            for xs in points:
                 got = dict(leaves(self._lower(dict(enumerate(xs)))))
                 mine = self._numbers(np.array([xs]))
                 for p, y in mine.items():
@@ -334,20 +429,19 @@ class Model:
         return float(k.internal(k.base(self.units[j]), self.units[j], self.base.body.radius))
 
     def _lower(self, values: dict[int, float]) -> Program:
-        edits = [(self.knobs[j].quantity, x, self.units[j]) for j, x in values.items()]
-        text = substitute(self.text, edits)
         try:
-            return lower(parse(text, self.path))
+            return lower(parse(self.texts.of(values), self.path))
         except PlanError as err:
-            said = ", ".join(f"{self.knobs[j].target} = {number_text(x)} {self.units[j]}".rstrip()
-                             for j, x in values.items())
-            raise _complain(f"at {said} the plan is refused: {err.message}", err.hint,
+            said = self.texts.said(values)
+            raise _complain(f"at {said} the plan is refused: {err.message}",
+                            (err.hint + "; or " if err.hint else "") + "narrow the ranges "
+                            "so that every combination of the values lowers",
                             self.span, self.source) from None
 
     def text_with(self, values: list[float]) -> str:
-        """The plan text with the knobs at ``values`` (in their units)."""
-        return substitute(self.text, [(k.quantity, x, u) for k, x, u in
-                                      zip(self.knobs, values, self.units)])
+        """The plan text with the knobs at ``values`` (in their units): the variant's
+        plan, which `run` prices the same."""
+        return self.texts.of(dict(enumerate(values)))
 
     def _numbers(self, X: np.ndarray) -> dict[tuple, np.ndarray]:
         out = {}
@@ -369,7 +463,7 @@ class Model:
             vals = [self.knobs[j].internal(X[:, j], self.units[j], self.base.body.radius)
                     for j in self.start_knobs]
             r, v = start_states(self.base, self.start, [self.knobs[j] for j in self.start_knobs],
-                                vals)
+                                vals, self.mirror)
             prog = dataclasses.replace(prog, start_r=r, start_v=v)
         return prog
 
@@ -514,42 +608,34 @@ def finite_or_none(x) -> float | None:
     return x if math.isfinite(x) else None
 
 
-def _refusal(text: str, path: str, knob: Knob, unit: str, x: float) -> PlanError | None:
-    """Why the plan with ``knob`` at ``x`` does not lower (None when it does)."""
-    try:
-        lower(parse(substitute(text, [(knob.quantity, x, unit)]), path))
-    except PlanError as err:
-        return err
-    return None
-
-
 def admissible(text: str, path: str, knobs: list[Knob], units: list[str], X: np.ndarray,
-               bases: list[float]) -> tuple[np.ndarray, Failures]:
+               bases: list[float], mirror: bool = False) -> tuple[np.ndarray, Failures]:
     """Samples the plan itself refuses (a dispersed inclination below 0 deg, a mass below
     zero), marked so: the values past the edge of what lowering accepts, found by
     bisection between the plan's own value and the farthest sample, are held at that
     edge for pricing and reported as not flown with the lowering's message."""
     X = X.copy()
     fails = Failures(X.shape[0])
+    texts = Texts(text, path, knobs, units, mirror)
     for j, (knob, unit) in enumerate(zip(knobs, units)):
         base = bases[j]
         for end in (float(X[:, j].min()), float(X[:, j].max())):
-            if end == base or _refusal(text, path, knob, unit, end) is None:
+            if end == base or texts.refusal({j: end}) is None:
                 continue
             good, bad = base, end
             while True:
                 mid = 0.5 * (good + bad)
                 if mid in (good, bad):
                     break
-                if _refusal(text, path, knob, unit, mid) is None:
+                if texts.refusal({j: mid}) is None:
                     good = mid
                 else:
                     bad = mid
             column = X[:, j].copy()
             beyond = column > good if end > base else column < good
 
-            def why(i, column=column, knob=knob, unit=unit):
-                err = _refusal(text, path, knob, unit, float(column[i]))
+            def why(i, column=column, knob=knob, unit=unit, j=j):
+                err = texts.refusal({j: float(column[i])})
                 said = f"{knob.target} = {number_text(column[i])} {unit}".rstrip()
                 return (f"{said}: the plan is refused: {err.message}" if err else
                         f"{said} is past the edge of what the plan accepts", err and err.hint)
@@ -557,6 +643,51 @@ def admissible(text: str, path: str, knobs: list[Knob], units: list[str], X: np.
             fails.add(beyond, why)
             X[beyond, j] = good
     return X, fails
+
+
+JOINT_ROWS = 4096  # variants lowered one by one, at most, to find those past a shared bound
+
+
+def jointly(text: str, path: str, knobs: list[Knob], units: list[str], X: np.ndarray,
+            held: np.ndarray, span: Span | None = None, mirror: bool = False
+            ) -> tuple[Failures, np.ndarray | None]:
+    """Variants past a bound two or more knobs share (a bi-elliptic apoapsis below its
+    target when both are varied), found by lowering each variant's plan when a corner of
+    the box of ``held`` values (``admissible``'s) does not lower; returns them marked with
+    the lowering's message, and the rows that lower (None when every corner does)."""
+    n = held.shape[0]
+    fails = Failures(n)
+    if len(knobs) < 2:
+        return fails, None
+    texts = Texts(text, path, knobs, units, mirror)
+    extremes = [(float(held[:, j].min()), float(held[:, j].max())) for j in range(len(knobs))]
+    refused = [(c, e) for c in itertools.product(*extremes)
+               for e in [texts.refusal(dict(enumerate(c)))] if e is not None]
+    if not refused:
+        return fails, None
+    rows, inverse = np.unique(held, axis=0, return_inverse=True)
+    inverse = inverse.reshape(-1)
+    if len(rows) > JOINT_ROWS:
+        corner, err = refused[0]
+        raise _complain(f"at {texts.said(dict(enumerate(corner)))} the plan is refused: "
+                        f"{err.message}; the values reach past a bound the varied "
+                        f"quantities share, and {len(rows):,} variants are too many to "
+                        "lower one by one to find those past it",
+                        "narrow the ranges (or the dispersions) so that every combination "
+                        f"lowers, or give at most {JOINT_ROWS:,} variants", span,
+                        texts.source)
+    errs = [texts.refusal(dict(enumerate(row.tolist()))) for row in rows]
+    bad = np.array([e is not None for e in errs])
+    if not bad.any():
+        return fails, None
+
+    def why(i):
+        err = errs[inverse[i]]
+        return (f"{texts.said(dict(enumerate(X[i].tolist())))}: the plan is refused: "
+                f"{err.message}", err.hint)
+
+    fails.add(bad[inverse], why)
+    return fails, rows[~bad]
 
 
 # --- the best value of one quantity ---------------------------------------------------

@@ -230,9 +230,14 @@ def cmd_sweep(args) -> int:
         # values past a bound of the plan (a target under the surface) are rows not flown
         bases = [k.base(u) for k, u in zip(knobs, units)]
         held, refused = sweep.admissible(text, path, knobs, units, X, bases)
+        # and combinations past a bound the quantities share (a bi-elliptic apoapsis
+        # below its varied target): rows not flown too
+        joint, admitted = sweep.jointly(text, path, knobs, units, X, held, study.span)
+        refused.merge(np.ones(X.shape[0], dtype=bool), joint)
         extremes = [(float(held[:, j].min()), float(held[:, j].max()))
                     for j in range(len(knobs))]
-        model = sweep.Model(text, path, knobs, units, extremes, study.span)
+        model = sweep.Model(text, path, knobs, units, extremes, study.span,
+                            admitted=admitted)
         if study.minimise:
             if len(knobs) != 1:
                 raise _where(study, "--minimise searches one quantity; the study varies "
@@ -285,9 +290,16 @@ def cmd_sweep(args) -> int:
     bases = [k.base(u) for k, u in zip(knobs, units)]
     X = sweep.samples(bases, sigmas, n, seed)
     # samples the plan refuses (past a bound of lowering) are kept, not flown, with why
-    held, refused = sweep.admissible(text, path, knobs, units, X, bases)
+    # a sample is a drawn orbit: crossed apsides are flown as that ellipse turned half a
+    # turn (sweep.variant_text); samples the plan refuses (past a bound of lowering) are
+    # kept, not flown, with why
+    held, refused = sweep.admissible(text, path, knobs, units, X, bases, mirror=True)
+    joint, admitted = sweep.jointly(text, path, knobs, units, X, held, study.span,
+                                    mirror=True)
+    refused.merge(np.ones(n, dtype=bool), joint)
     extremes = [(float(held[:, j].min()), float(held[:, j].max())) for j in range(len(knobs))]
-    model = sweep.Model(text, path, knobs, units, extremes, study.span)
+    model = sweep.Model(text, path, knobs, units, extremes, study.span, mirror=True,
+                        admitted=admitted)
     bar = Progress(n, "samples")
     try:
         priced = sweep.price(model, held, bar, chunk)
