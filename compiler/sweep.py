@@ -296,7 +296,7 @@ def with_leaf(obj, path: tuple, value):
 
 
 def start_states(program: Program, start: ast.Start, knobs: list[Knob], values: list,
-                 mirror: bool = False):
+                 mirror: bool = False, span: Span | None = None):
     """The start position and velocity per element, with the start orbit's varied fields
     (``values``, internal units, in ``knobs`` order) written in: the lowering's own
     sequence of operations, on arrays.  Closed start orbits only.  With ``mirror`` crossed
@@ -321,9 +321,9 @@ def start_states(program: Program, start: ast.Start, knobs: list[Knob], values: 
         rp, e = given["periapsis"], given["ecc"]
         ra = rp / (1.0 - e) * (1 + e)
     else:
-        raise UsageError("a trade varies the start of a closed orbit given by `circular`, "
-                         "`periapsis` and `apoapsis`, `sma` and `ecc`, or `periapsis` and "
-                         "`ecc`; vary a step's quantity instead")
+        raise _complain("a trade varies the start of a closed orbit given by `circular`, "
+                        "`periapsis` and `apoapsis`, `sma` and `ecc`, or `periapsis` and "
+                        "`ecc`", "vary a step's quantity instead", span, program.source)
     rp, ra = np.asarray(rp, dtype=float), np.asarray(ra, dtype=float)
     get = lambda k: np.asarray(given.get(k, 0.0), dtype=float)
     inc, raan, argp, nu = get("inclination"), get("raan"), get("argp"), get("anomaly")
@@ -394,7 +394,7 @@ class Model:
                 vals = [np.full(len(xs), self.base_internal(i)) for i in self.start_knobs]
                 vals[self.start_knobs.index(j)] = knob.internal(xs, unit, self.base.body.radius)
                 r, v = start_states(self.base, self.start, [knobs[i] for i in self.start_knobs],
-                                    vals, mirror)
+                                    vals, mirror, span)
                 want_r = np.array([got[("start_r",)] for _, got in lowered])
                 want_v = np.array([got[("start_v",)] for _, got in lowered])
                 if not (np.allclose(r, want_r, rtol=1e-12, atol=1e-9)
@@ -730,8 +730,9 @@ def minimise(model: Model, X: np.ndarray, objective: str, tolerance: float | Non
     ok_lo, ok_hi = float(held[:, 0].min()), float(held[:, 0].max())  # what lowers
     cost = np.where(P.flown, P.totals[key], np.inf)
     if not np.isfinite(cost).any():
-        raise UsageError(f"no value of `{model.knobs[0].target}` from {number_text(lo)} to "
-                         f"{number_text(hi)} can be flown (first: {P.reason(0)})")
+        raise _complain(f"no value of `{model.knobs[0].target}` from {number_text(lo)} to "
+                        f"{number_text(hi)} can be flown (the first: {P.reason(0)})",
+                        "give a range where the plan can be flown", model.span, model.source)
     k = int(np.argmin(cost))
     a, b = xs[max(k - 1, 0)], xs[min(k + 1, len(xs) - 1)]
     tol = tolerance if tolerance is not None else abs(hi - lo) * 1e-6

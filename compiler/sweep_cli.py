@@ -98,6 +98,17 @@ class Study:
         self.samples: int | None = None
         self.seed: int | None = None
         self.span = None  # the statement's span, when read from the plan
+        self.spans: dict = {}  # item (`minimise`, `tolerance`, ...): its span in the plan
+
+    def where(self, item: str, message: str, hint: str | None, source):
+        """A mistake in ``item``: located under it when the plan's statement gave it (and
+        worded by the item's name), else a command-line error (worded `--item`)."""
+        from . import sweep
+
+        span = self.spans.get(item)
+        word = item if span is not None else f"--{item}"
+        return sweep._complain(message.format(item=word), hint and hint.format(item=word),
+                               span, source)
 
 
 def _vary_option(text: str):
@@ -133,6 +144,9 @@ def study_from_args(args, plan) -> Study:
     elif args.trade is not None:
         raise UsageError("--trade picks a trade written in the plan; leave it out with "
                          "--vary or --disperse")
+    for item in ("points", "minimise", "tolerance", "samples", "seed"):
+        if getattr(args, item) is not None:
+            s.spans.pop(item, None)
     if args.points is not None:
         s.points = args.points
     if args.minimise is not None:
@@ -201,6 +215,25 @@ def cmd_sweep(args) -> int:
         raise _where(study, "a trade either varies quantities over ranges or disperses "
                      "them, not both", "run the two as two studies", plan)
     source = plan.source
+    if study.disperse:  # the items of a grid have no meaning for samples: say so
+        for item in ("minimise", "tolerance", "points"):
+            if getattr(study, item) is not None:
+                raise study.where(item, "{item} goes with `vary` ranges; this trade "
+                                  "disperses", "leave it out, or vary the quantity over a "
+                                  "range (`vary NAME.FIELD LOW..HIGH UNIT`)", source)
+    else:
+        for item in ("samples", "seed"):
+            if getattr(study, item) is not None:
+                raise study.where(item, "{item} goes with `disperse`; this trade varies "
+                                  "quantities over ranges", "leave it out, or give "
+                                  "`points N` for the number of values per range", source)
+        if study.tolerance is not None and not study.minimise:
+            raise study.where("tolerance", "{item} says how closely `minimise` finds the "
+                              "best value, and this trade does not minimise",
+                              "add `minimise propellant|dv|elapsed`, or leave it out", source)
+        if study.minimise and len(study.vary) != 1:
+            raise study.where("minimise", "{item} searches one quantity; the trade varies "
+                              f"{len(study.vary)}", "vary one quantity", source)
     if study.points is not None and study.points < 1:
         raise _where(study, f"points must be at least 1, got {study.points}", None, plan)
     knobs, units = [], []
@@ -214,8 +247,12 @@ def cmd_sweep(args) -> int:
         sweep.check_unit(knob, unit, span, source)
         knobs.append(knob)
         units.append(unit)
-    if len({k.target for k in knobs}) < len(knobs):
-        raise _where(study, "a quantity is named twice", "name each once", plan)
+    seen = set()
+    for entry, knob in zip(entries, knobs):
+        if knob.target in seen:
+            raise sweep._complain(f"`{knob.target}` is named twice", "name each quantity "
+                                  "once", entry[-1], source)
+        seen.add(knob.target)
     chunk = args.chunk or sweep.CHUNK
     if study.vary:
         for target, lo, hi, unit, span in study.vary:
@@ -224,8 +261,10 @@ def cmd_sweep(args) -> int:
                                       f"..{sweep.number_text(hi)})",
                                       "give the low end first", span, source)
         points = study.points or 11
+        tol = None
         if study.minimise:
             points = max(points, 3)
+            tol = _tolerance(study, units[0], source)
         X = sweep.grid([(lo, hi, points) for _, lo, hi, _, _ in study.vary])
         # values past a bound of the plan (a target under the surface) are rows not flown
         bases = [k.base(u) for k, u in zip(knobs, units)]
@@ -239,21 +278,6 @@ def cmd_sweep(args) -> int:
         model = sweep.Model(text, path, knobs, units, extremes, study.span,
                             admitted=admitted)
         if study.minimise:
-            if len(knobs) != 1:
-                raise _where(study, "--minimise searches one quantity; the study varies "
-                             f"{len(knobs)}", "give one --vary", plan)
-            tol = None
-            if study.tolerance is not None:
-                value, tu = study.tolerance
-                if tu and tu != units[0]:
-                    from apsidal.lang.units import UNITS
-
-                    if tu not in UNITS or UNITS[tu][0] != UNITS[units[0]][0]:
-                        raise UsageError(f"--tolerance is in `{tu}`, the range in `{units[0]}`")
-                    value = value * UNITS[tu][1] / UNITS[units[0]][1]
-                if not value > 0:
-                    raise UsageError("--tolerance must be positive")
-                tol = value
             priced, best = sweep.minimise(model, X, study.minimise, tol, held, refused)
             if args.format == "csv":  # the grid that bracketed it, then the best
                 at = np.array([[best.value]])
@@ -319,6 +343,26 @@ def cmd_sweep(args) -> int:
         stats["mean"] - report["nominal"]["dv_m_s"] + 3.0 * stats["std"])
     emit(report, args.format, dispersion_table, dispersion_csv)
     return EXIT_OK
+
+
+def _tolerance(study, unit: str, source) -> float | None:
+    """The study's tolerance in the range's ``unit`` (None: the default)."""
+    from apsidal.lang.units import UNITS
+
+    if study.tolerance is None:
+        return None
+    value, tu = study.tolerance
+    if tu and tu != unit:  # a bare amount is in the range's unit
+        if tu not in UNITS or UNITS[tu][0] != UNITS[unit][0]:
+            raise study.where("tolerance", "{item} is in " + f"`{tu}`, the range in "
+                              + (f"`{unit}`" if unit else "no unit"),
+                              f"give it in `{unit}` (or another {UNITS[unit][0]} unit)"
+                              if unit else "give a bare number", source)
+        value = value * UNITS[tu][1] / UNITS[unit][1]
+    if not (math.isfinite(value) and value > 0):
+        raise study.where("tolerance", "{item} must be positive", "e.g. `{item} 1 "
+                          + (unit or "") + "`", source)
+    return value
 
 
 def _where(study, message, hint, plan):

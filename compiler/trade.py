@@ -154,14 +154,20 @@ def read(t: ast.Trade, source, study):
                 raise _err("`minimise` takes what to minimise", item, source,
                            "one of " + ", ".join(f"`{o}`" for o in OBJECTIVES))
             study.minimise = args[0].text
+            study.spans["minimise"] = item.span
         elif word.text == "tolerance":
             if not args or args[0].kind != "number":
                 raise _err("`tolerance` takes an amount", item, source, "e.g. `tolerance 1 km`")
             unit, k = _unit_of(args, 1, source)
             study.tolerance = (float(args[0].text), unit)
+            study.spans["tolerance"] = item.span
+            if k < len(args):
+                raise _err(f"unexpected `{args[k].text}` in `tolerance`", args[k], source,
+                           "give the amount and its unit: `tolerance 1 km`")
         else:
             setattr(study, word.text, _count(item, source, 2 if word.text == "samples" else
                                              0 if word.text == "seed" else 1))
+            study.spans[word.text] = item.span
     if not study.vary and not study.disperse:
         raise _err(f"trade `{t.name.text}` neither varies nor disperses a quantity", t, source,
                    "add `vary NAME.FIELD LOW..HIGH UNIT` or `disperse NAME.FIELD SIGMA UNIT`")

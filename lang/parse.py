@@ -966,6 +966,11 @@ def _thousands(e: UnexpectedInput, source: Source) -> PlanError | None:
                      hint=f"write numbers without separators: `{digits.replace(',', '')}`")
 
 
+TRADE_ITEM_HINT = ("a trade item: `vary NAME.FIELD LOW..HIGH UNIT`, `disperse NAME.FIELD "
+                   "SIGMA UNIT`, `minimise propellant|dv|elapsed`, `tolerance AMOUNT UNIT`, "
+                   "`points N`, `samples N` or `seed N`, separated by commas")
+
+
 def _bad_token(e: UnexpectedInput, source: Source, stack: list) -> PlanError:
     token = e.token if isinstance(e, UnexpectedToken | UnexpectedEOF) else None
     if token is None or token.type == "$END":
@@ -997,6 +1002,9 @@ def _bad_token(e: UnexpectedInput, source: Source, stack: list) -> PlanError:
             return PlanError("the checks of an `expect` are separated by `,`", span,
                              hint=f"write `, {word} ...`")
 
+    tokens = [v for v in stack if isinstance(v, Token)]
+    if statement == "trade" and tokens and str(tokens[-1]) in (":", ","):  # an item
+        return PlanError(f"unexpected {_describe(token)}", span, hint=TRADE_ITEM_HINT)
     if token.type == "STRING" and "WORD" in accepts:
         return PlanError(f"unexpected {_describe(token)}", span,
                          hint=f"a name is written without quotes: `{word[1:-1]}`")
