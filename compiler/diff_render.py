@@ -279,8 +279,9 @@ STEP_QUANTITIES = ("dv_m_s", "dv_with_margin_m_s", "propellant_kg", "mass_after_
 
 def to_csv(diff: dict) -> str:
     """A long table a strict CSV reader loads: one ``step`` row per step and quantity,
-    one ``total`` row per total, ``finding`` rows (appeared or disappeared) and the
-    ``caution``.  Columns ``old``, ``new`` and ``change`` hold the numbers."""
+    one ``total`` row per total, ``finding`` rows (appeared or disappeared), ``trade``
+    rows (a trade study added, removed or changed: its statement's text in ``old`` and
+    ``new``) and the ``caution``.  Columns ``old``, ``new`` and ``change`` hold the numbers."""
     from .render import write_csv
 
     rows = []
@@ -300,6 +301,9 @@ def to_csv(diff: dict) -> str:
     for how, f in _findings_lines(diff):
         rows.append({"record": "finding", "name": ", ".join(f["steps"]), "status": how,
                      "severity": f["severity"], "rule": f["rule"], "message": f["message"]})
+    for t in diff.get("trades", []):  # trade studies price nothing: their text
+        rows.append({"record": "trade", "name": t["name"], "status": t["status"],
+                     "quantity": "text", "old": t["old"], "new": t["new"]})
     if diff.get("error"):
         rows.append({"record": "error", "status": diff["error"]["side"],
                      "message": diff["error"]["message"]})
