@@ -563,17 +563,24 @@ def _unit_key(name: str, unit: str) -> str:
 
 
 def dispersion_csv(report: dict) -> str:
-    """Records `step` (one per priced step and quantity), `total` and `caution`."""
+    """Records `step` (one per priced step and quantity), `total`, `share` (the shares of
+    the samples that cannot be flown and that do not fit the load or reserve, in
+    `value`, the first reason in `message`) and `caution`."""
     from .sweep import PERCENTILES, _pct_key
 
     keys = ["mean", "std"] + [_pct_key(p) for p in PERCENTILES]
-    rows = [["record", "step", "quantity"] + keys + ["message"]]
+    blank = [""] * len(keys)
+    rows = [["record", "step", "quantity"] + keys + ["message", "value"]]
     for s in report["steps"]:
         for q in ("dv_m_s", "propellant_kg"):
-            rows.append(["step", s["name"], q] + [_cell(s[q][k]) for k in keys] + [""])
+            rows.append(["step", s["name"], q] + [_cell(s[q][k]) for k in keys] + ["", ""])
     for q, stats in report["total"].items():
-        rows.append(["total", "", q] + [_cell(stats[k]) for k in keys] + [""])
-    rows.append(["caution", "", ""] + [""] * len(keys) + [report["caution"]])
+        rows.append(["total", "", q] + [_cell(stats[k]) for k in keys] + ["", ""])
+    rows.append(["share", "", "not_flown_share"] + blank
+                + [report["first_not_flown_reason"] or "", _cell(report["not_flown_share"])])
+    rows.append(["share", "", "not_feasible_share"] + blank
+                + ["", _cell(report["not_feasible_share"])])
+    rows.append(["caution", "", ""] + blank + [report["caution"], ""])
     return _csv(rows)
 
 
@@ -691,7 +698,12 @@ def dispersion_table(report: dict, width: int = 100) -> str:
                                .replace("  ", " ") for x in d), width),
              _wrap(f"cannot be flown: {100 * report['not_flown_share']:.2f}% of the samples"
                    + (f" (the first: {report['first_not_flown_reason']})"
-                      if report["not_flown"] else ""), width), ""]
+                      if report["not_flown"] else ""), width)]
+    short = report["not_feasible_share"] - report["not_flown_share"]
+    if short > 0:  # flown, but the load does not cover them or the reserve is not met
+        lines.append(_wrap(f"do not fit the load or miss the reserve: {100 * short:.2f}% of "
+                           "the samples (their budgets are in the figures below)", width))
+    lines.append("")
     keys = ["mean", "std"] + [_pct_key(p) for p in PERCENTILES]
     head = ["step", "quantity", "mean", "std"] + [f"p{p:g}" for p in PERCENTILES]
     rows = []

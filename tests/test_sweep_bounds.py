@@ -136,3 +136,29 @@ def test_a_grid_of_crossed_start_apsides_gives_rows_not_flown(tmp_path, capsys):
         assert v["flown"] == (not crossed)
         if crossed:
             assert "the periapsis is above the apoapsis" in v["reason"]
+
+
+def test_a_dispersion_that_does_not_fit_or_cannot_be_flown_says_so(tmp_path, capsys):
+    """A script reading the CSV, and a reader of the table, learn the share of samples
+    that cannot be flown (with why) and the share that does not fit the load."""
+    import csv
+    import io
+
+    short = tmp_path / "short.aps"
+    short.write_text(PLAN.replace("propellant 2600 kg", "propellant 1000 kg"))
+    assert main(["sweep", str(short), "--disperse", "main.isp=±2 s", "--samples", "50"]) == 0
+    assert "do not fit the load or miss the reserve: 100.00%" in capsys.readouterr().out
+    main(["sweep", str(short), "--disperse", "main.isp=±2 s", "--samples", "50",
+          "--format", "csv"])
+    rows = list(csv.DictReader(io.StringIO(capsys.readouterr().out), strict=True))
+    share = {r["quantity"]: r for r in rows if r["record"] == "share"}
+    assert float(share["not_feasible_share"]["value"]) == 1.0
+    assert float(share["not_flown_share"]["value"]) == 0.0
+    path = tmp_path / "p.aps"
+    path.write_text(PLAN)
+    main(["sweep", str(path), "--disperse", "kick.apoapsis=±3000 km", "--samples", "40",
+          "--format", "csv"])
+    rows = list(csv.DictReader(io.StringIO(capsys.readouterr().out), strict=True))
+    share = {r["quantity"]: r for r in rows if r["record"] == "share"}
+    assert float(share["not_flown_share"]["value"]) == 1.0
+    assert "circ:" in share["not_flown_share"]["message"]
