@@ -23,6 +23,7 @@ _NUM = r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?"
 _VARY = re.compile(rf"\s*([^=\s]+)\s*=\s*({_NUM})\s*(\S*?)\s*\.\.\s*({_NUM})\s*(\S*)\s*")
 _DISPERSE = re.compile(rf"\s*([^=\s]+)\s*=\s*(?:±|\+-|\+/-)?\s*({_NUM})\s*(\S*)\s*")
 _AMOUNT = re.compile(rf"\s*({_NUM})\s*(\S*)\s*")
+_VALUES_SAID = re.compile(rf"^(?:[^\s=,:]+ = {_NUM}(?: \S+?)?(?:, |: ))+(?=the plan is refused)")
 
 
 def register(sub) -> None:
@@ -644,7 +645,9 @@ def sweep_table(report: dict, width: int = 100) -> str:
         if v["feasible"]:
             status = "ok" if t["expectations_met"] else "expect fails"
         else:
-            reason = v.get("reason") or ""
+            # the row shows its values: a refusal's note need not repeat them, so the
+            # rows past one bound share one note
+            reason = _VALUES_SAID.sub("", v.get("reason") or "", count=1)
             mark = notes.setdefault(reason, len(notes) + 1)
             status = ("not flown" if not v["flown"] else "short") + f" [{mark}]"
         vals = [_value_text(v["values"][a["name"]]) for a in axes]

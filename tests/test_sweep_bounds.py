@@ -162,3 +162,15 @@ def test_a_dispersion_that_does_not_fit_or_cannot_be_flown_says_so(tmp_path, cap
     share = {r["quantity"]: r for r in rows if r["record"] == "share"}
     assert float(share["not_flown_share"]["value"]) == 1.0
     assert "circ:" in share["not_flown_share"]["message"]
+
+
+def test_rows_past_one_bound_share_one_note_in_the_table(tmp_path, capsys, monkeypatch):
+    monkeypatch.setenv("COLUMNS", "100")
+    path = tmp_path / "p.aps"
+    path.write_text(PLAN)
+    main(["sweep", str(path), "--vary", "far.circular=42000..80000 km",
+          "--vary", "far.via=50000..120000 km", "--points", "6"])
+    out = capsys.readouterr().out
+    notes = [line for line in out.splitlines() if "must lie beyond the target" in line]
+    assert len(notes) == 1 and notes[0].startswith("[")
+    assert max(len(line) for line in out.splitlines()) <= 100
