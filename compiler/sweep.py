@@ -16,7 +16,10 @@ numbers written in and priced by the same evaluator, all variants in one batch:
   runs every check lowering makes (a target under the surface, an inclination past
   180 deg, a bi-elliptic apoapsis below its target): those bounds are linear in the
   values, so a box whose corners lower lowers throughout.  Values past the bound of one
-  quantity are held at its edge and reported not flown (``admissible``).
+  quantity are held at its edge and reported not flown (``admissible``); combinations
+  past a bound several share are found by lowering each variant and reported not flown
+  (``jointly``).  A dispersion's crossed start apsides are the ellipse turned half a
+  turn, written so in the variant's text (``variant_text``).
 * the lowered program is rebuilt with those numbers as arrays over the batch
   (``Model.program``): the steps' goals, masses, engines and margins hold one value per
   variant, and the evaluator broadcasts them.

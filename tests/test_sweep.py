@@ -460,27 +460,7 @@ def test_a_trade_in_the_plan_is_read_by_sweep_and_ignored_by_run(tmp_path, capsy
     assert strict_json(capsys.readouterr().out)["best"]["objective"] == "propellant"
 
 
-@pytest.mark.parametrize("line, at, words", [
-    ("trade t: vary geo.circulr 1..2 km", "geo.", ["no quantity `circulr`", "circular"]),
-    ("trade t: vary geo.circular 30000..20000 km", "3", ["is empty"]),
-    ("trade t: vary geo.circular 1..2 kms", "kms", ["unknown unit `kms`"]),
-    ("trade t: vary geo.circular 20000..30000 s", "geo.", ["is a length"]),
-    ("trade t: vari geo.circular 1..2 km", "vari", ["no item `vari`", "did you mean `vary`"]),
-    ("trade t: minimise propellant", "trade", ["neither varies nor disperses"]),
-    ("trade t: disperse start.periapsis 0 km", "0", ["must be positive"]),
-    ("trade t: vary geo.circular 2e4..3e4 km, minimise mass", "minimise", ["`minimise` takes"]),
-])
-def test_a_mistake_in_a_trade_statement_is_located(tmp_path, capsys, line, at, words):
-    col = line.index(at) + 1
-    path = tmp_path / "p.aps"
-    path.write_text(PLAN + line + "\n")
-    assert main(["sweep", str(path)]) == 2
-    err = capsys.readouterr().err
-    row = PLAN.count("\n") + 1
-    assert err.startswith(f"{path}:{row}:{col}: error:"), err
-    assert "^" in err and "Traceback" not in err
-    for w in words:
-        assert w in err
+# (every mistake a trade statement can hold, located: tests/test_trade_statement_errors.py)
 
 
 def test_fmt_keeps_a_trade_and_diff_shows_it_changed(tmp_path, capsys):
