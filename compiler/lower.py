@@ -14,7 +14,7 @@ import numpy as np
 from apsidal.lang import syntax as ast
 from apsidal.lang.errors import PlanError, Span, did_you_mean
 
-from . import bodies, burn_goals
+from . import bodies, burn_goals, legs
 from .state import state_from_elements
 from .steps import (
     HERE,
@@ -99,10 +99,21 @@ class Lowerer:
     def lower(self) -> Program:
         steps_ast = []
         singles: dict[str, Span] = {}
+        self.arrivals: dict[int, ast.Start] = {}  # id of a leg -> its arrival start
+        leg = None  # the last leg seen, while its arrival start is still to come
         for st in self.plan.statements:
             if isinstance(st, ast.STEP_TYPES):
+                if leg is not None and id(leg) not in self.arrivals:
+                    raise legs.no_arrival(leg, st)
                 steps_ast.append(st)
+                if isinstance(st, ast.Leg):
+                    leg = st
                 continue
+            if leg is not None:
+                if isinstance(st, ast.Start) and id(leg) not in self.arrivals:
+                    self.arrivals[id(leg)] = st
+                    continue
+                legs.after_leg(st, leg, self.arrivals.get(id(leg)))
             key = {ast.PlanTitle: "plan", ast.Around: "around", ast.CraftDef: "craft",
                    ast.Start: "start"}.get(type(st))
             if isinstance(st, ast.Setting):
@@ -116,6 +127,8 @@ class Lowerer:
                     raise _err("`start` must come before the first step", st,
                                "move the start orbit above the burns")
             self._statement(st)
+        if leg is not None and id(leg) not in self.arrivals:
+            raise legs.no_arrival(leg, None)
         top = _top_of(self.plan)
         if not self.plan.statements:
             raise PlanError("the plan is empty", top, None,
@@ -135,11 +148,16 @@ class Lowerer:
         self._ends = self._entry_order(steps_ast)
         steps = []
         self.counts_before: list[dict[str, int]] = []  # default-name counts before each step
+        self.bodies_before: list[bodies.Body] = []  # the body around which each step flies
+        first_body = self.body
         for node in steps_ast:
             self.counts_before.append(dict(self.counts))
+            self.bodies_before.append(self.body)
             steps.append(self._step(node))
         self.counts_before.append(dict(self.counts))
+        self.bodies_before.append(self.body)
         steps = tuple(steps)
+        self.body = first_body  # the plan's body is its first phase's
         ceiling = None
         if self.ceiling is not None:
             given = self.ceiling.value.internal()
@@ -165,6 +183,7 @@ class Lowerer:
         """
         again = copy.copy(self)
         again.counts = dict(self.counts_before[first])
+        again.body = self.bodies_before[first]
         again.names = {}
         new = tuple(again._step(node) for node in nodes)
         if again.counts != self.counts_before[last + 1]:
@@ -218,23 +237,33 @@ class Lowerer:
                                                  f"defined in the plan, line {st.span.line}")
 
     def _around(self, st: ast.Around) -> None:
-        name = st.body.text
+        self.body = self._find_body(st.body, st.span.line)
+
+    def _find_body(self, node: ast.Name, line: int) -> bodies.Body:
+        """The body a name stands for: defined in the plan above ``line``, or catalogued."""
+        name = node.text
         body = self.defined.get(name) or bodies.lookup(name)
         later = next((d for d in self.plan.statements if isinstance(d, ast.BodyDef)
-                      and d.name.text == name and d.span.line > st.span.line), None)
+                      and d.name.text == name and d.span.line > line), None)
         if body is None and later is not None:
             raise _err(f"body `{name}` is defined on line {later.span.line}, after this "
-                       "`around`", st.body,
+                       "`around`", node,
                        f"move `body {name} {{ ... }}` above `around {name}`: a body is "
                        "defined before the plan goes around it")
         if body is None:
             pool = list(self.defined) + bodies.names()
             guess = did_you_mean(name, pool)
-            raise _err(f"unknown body `{name}`", st.body,
+            raise _err(f"unknown body `{name}`", node,
                        f"did you mean `{guess}`?" if guess else
                        "define it first with `body NAME { gm ... radius ... }`; the catalogue "
                        "has " + ", ".join(bodies.names()))
-        self.body = body
+        return body
+
+    def _leg(self, node: ast.Leg):
+        """A leg to another body; from here on the steps fly around it."""
+        leg = legs.lower_leg(self, node, self.arrivals[id(node)])
+        self.body = leg.body
+        return leg
 
     def _craft(self, st: ast.CraftDef) -> None:
         f = _fields(st.fields, ("dry", "propellant", "fuel", "oxidiser", "residual"),
@@ -526,6 +555,8 @@ class Lowerer:
                          movable=free)
         if isinstance(node, ast.Entry):
             return self._entry(node)
+        if isinstance(node, ast.Leg):
+            return self._leg(node)
         if isinstance(node, ast.Allow):
             return self._allow(node)
         if isinstance(node, ast.Drop):

@@ -266,11 +266,23 @@ class Entry:
     span: Span
 
 
+@dataclass(frozen=True)
+class Leg:
+    """``leg NAME to BODY [vinf V1 to V2 for T]``: a patched-conic leg to another body."""
+
+    name: Name | None
+    body: Name
+    depart: Quantity | None  # given departure hyperbolic excess speed
+    arrive: Quantity | None  # given arrival hyperbolic excess speed
+    duration: Quantity | None  # given time of flight
+    span: Span
+
+
 Statement = (
     PlanTitle | Around | BodyDef | CraftDef | Setting | Start | Burn | Transfer | Coast | Drop
-    | Expect | Allow | Entry
+    | Expect | Allow | Entry | Leg
 )
-STEP_TYPES = (Burn, Transfer, Coast, Drop, Expect, Allow, Entry)
+STEP_TYPES = (Burn, Transfer, Coast, Drop, Expect, Allow, Entry, Leg)
 
 
 @dataclass(frozen=True)
