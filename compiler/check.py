@@ -24,7 +24,7 @@ from apsidal.lang.errors import PlanError
 from .budget import budget
 from .evaluate import Batch, Result, apply, carry, context_for, run, start_batch
 from .load import load_text
-from .legs import bodies_at, final_body, is_leg
+from .legs import PhaseBodies, final_body, is_leg
 from .lower import Lowerer, lower
 from .proofs import Node, Walk, add
 from .state import elements_from_state
@@ -134,7 +134,7 @@ class Rewrite:
 
 
 @dataclass
-class Checker:
+class Checker(PhaseBodies):
     """What every rule reads: the plan, its syntax tree, its priced chain."""
 
     program: Program
@@ -174,13 +174,6 @@ class Checker:
     @property
     def text(self) -> str:
         return self.program.source.text
-
-    def body_at(self, step_index: int):
-        """The body step ``step_index`` flies around (the last phase's past the end): a
-        plan with legs has one per phase."""
-        if not hasattr(self, "_bodies"):
-            self._bodies = bodies_at(self.program)[1:] + [final_body(self.program)]
-        return self._bodies[min(step_index, len(self._bodies) - 1)]
 
     @property
     def dv_with_margin(self) -> float:

@@ -21,7 +21,7 @@ from apsidal.lang.errors import PlanError, Span
 
 from .bodies import Body, lookup
 
-VINF_TOL = 1e-4  # km/s: the departure hyperbola's v-infinity meets the leg's within 0.1 m/s
+VINF_TOL = 1e-4  # km/s: the departure hyperbola's vinf meets the leg's within 0.1 m/s
 GIVEN_HINT = ("give the leg's hyperbolic excess speed at both ends and its time of flight "
               "instead: `leg NAME to BODY vinf 3 km/s to 2.6 km/s for 200 d`")
 
@@ -117,12 +117,22 @@ def bodies_at(program) -> list[Body]:
     return [program.body, *step_bodies(program)]
 
 
+class PhaseBodies:
+    """``body_at`` for what the rules read (a ``program`` attribute): the body step
+    ``step_index`` flies around, the last phase's past the end."""
+
+    def body_at(self, step_index: int) -> Body:
+        if getattr(self, "_bodies", None) is None:
+            self._bodies = step_bodies(self.program) or [self.program.body]
+        return self._bodies[min(step_index, len(self._bodies) - 1)]
+
+
 def final_body(program) -> Body:
     return next((s.body for s in reversed(program.steps) if is_leg(s)), program.body)
 
 
 def leg_rows(step: Leg, index: int, batch, ctx, fails):
-    """Fly a leg: the departure hyperbola's v-infinity checked against the leg's, then the
+    """Fly a leg: the departure hyperbola's vinf checked against the leg's, then the
     whole batch switched to the arrival hyperbola, the time of flight on the clock."""
     from .evaluate import Row
 
@@ -134,15 +144,15 @@ def leg_rows(step: Leg, index: int, batch, ctx, fails):
     fails.add(closed, lambda i: (
         (f"a leg leaves on a hyperbola, but the craft is on a closed orbit about "
          f"{step.depart.name} (specific energy {energy[i]:.6f} km2/s2): the leg to "
-         f"{step.body.name} needs a departure v-infinity of {step.vinf_depart:.5f} km/s"),
+         f"{step.body.name} needs a departure vinf of {step.vinf_depart:.5f} km/s"),
         f"burn onto the departure hyperbola before the leg: a burn with the goal {goal}"))
     off = ~closed & (np.abs(vinf - step.vinf_depart) > VINF_TOL)
     fails.add(off, lambda i: (
-        (f"the departure hyperbola's v-infinity is {vinf[i]:.5f} km/s, but the leg to "
+        (f"the departure hyperbola's vinf is {vinf[i]:.5f} km/s, but the leg to "
          f"{step.body.name} needs {step.vinf_depart:.5f} km/s"
          + (" (the Hohmann transfer between the two orbits)" if step.form == "hohmann"
             else "")),
-        f"give the departure burn the goal {goal}, or the leg the v-infinity the craft "
+        f"give the departure burn the goal {goal}, or the leg the vinf the craft "
         "leaves with"))
     n = batch.size
     dt = np.full(n, step.duration)
@@ -157,7 +167,7 @@ def leg_rows(step: Leg, index: int, batch, ctx, fails):
 
 ARRIVAL_HINT = ("after a leg, `start orbit periapsis 300 km` (with `inclination`, `raan`, "
                 "`argp`, `anomaly` as needed) starts the arrival phase on the arrival "
-                "hyperbola; its v-infinity comes from the leg")
+                "hyperbola; its vinf comes from the leg")
 
 
 def no_arrival(leg, after) -> PlanError:
@@ -215,7 +225,7 @@ def lower_leg(lowerer, node, start) -> Leg:
     bad = next((f for f in start.fields if f.key not in allowed), None)
     if bad is not None:
         raise PlanError(f"the arrival start takes no `{bad.key}`: the arrival hyperbola's "
-                        f"shape follows from its periapsis and the leg's v-infinity "
+                        f"shape follows from its periapsis and the leg's vinf "
                         f"({vinf_a:.5f} km/s)", bad.span, None, ARRIVAL_HINT)
     fields = {f.key: f for f in start.fields}
     if "periapsis" not in fields:
@@ -232,7 +242,7 @@ def lower_leg(lowerer, node, start) -> Leg:
     if "vinf" in fields:
         given = fields["vinf"].value.internal()
         if abs(given - vinf_a) > VINF_TOL:
-            raise PlanError(f"the arrival start's v-infinity ({given:.5f} km/s) is not the "
+            raise PlanError(f"the arrival start's vinf ({given:.5f} km/s) is not the "
                             f"leg's ({vinf_a:.5f} km/s)", fields["vinf"].span, None,
                             f"drop `vinf` (the leg sets it) or write `vinf {vinf_a:.5f} km/s`")
     else:
