@@ -484,6 +484,7 @@ class Checker(PhaseBodies):
         # burn put the periapsis under the surface
         last = self.statements[-1] if self.statements else None
         tail = self.unparse(last) + "\n" if isinstance(last, ast.Entry) else ""
+        tail = self._next_leg(phase) or tail  # a `vinf to leg` goal reads the leg after it
         try:
             program = load_text(self._phase_settings(phase) + "\n" + lines + "\n" + tail,
                                 self.program.source.path)
@@ -497,6 +498,16 @@ class Checker(PhaseBodies):
             if _plain(read) != _plain(priced):
                 raise RuntimeError(f"a rewritten statement does not read back as the step "
                                    f"priced:\n{self.unparse(node)}")
+
+    def _next_leg(self, phase: int) -> str:
+        """The lines of the leg that ends phase ``phase`` and of its arrival start ("" in
+        the last phase)."""
+        nodes = [st for st in self.program.plan.statements if isinstance(st, ast.Leg)]
+        if phase >= len(nodes):
+            return ""
+        at = self.program.plan.statements.index(nodes[phase])
+        start = self.program.plan.statements[at + 1]
+        return "".join(self.text[slice(*self._line_range(x))] + "\n" for x in (nodes[phase], start))
 
     def _phase_settings(self, phase: int) -> str:
         """The plan without its steps, up to its ``phase``-th leg and that leg's arrival

@@ -195,6 +195,57 @@ def after_leg(st, leg, arrival) -> None:
                     st.span, None, f"move this statement above line {leg.span.line}")
 
 
+def leg_figures(depart: Body, arrive: Body, node) -> tuple[float, float, float, str]:
+    """(departure vinf, arrival vinf, time of flight, form) of the leg ``node`` from
+    ``depart`` to ``arrive``; PlanError where the leg has none."""
+    if arrive is depart or arrive.name == depart.name:
+        raise PlanError(f"the leg goes to {arrive.name}, the body the plan already flies "
+                        "around", node.body.span, None,
+                        "a leg goes to another body; to change the orbit around this one, "
+                        "burn or transfer")
+    if node.depart is not None:
+        return node.depart.internal(), node.arrive.internal(), node.duration.internal(), "given"
+    found, why, hint = catalogue_hohmann(depart, arrive)
+    if found is None:
+        raise PlanError(why, node.body.span, None, hint)
+    return found.vinf_depart, found.vinf_arrive, found.duration, "hohmann"
+
+
+def departure_vinfs(lowerer, steps_ast) -> list:
+    """The departure vinf of each leg of the plan, in order (km/s), for `vinf to leg`
+    goals; a leg that has none gives the PlanError its own lowering will raise."""
+    from apsidal.lang import syntax as ast
+
+    out, body = [], lowerer.body
+    for node in steps_ast:
+        if not isinstance(node, ast.Leg):
+            continue
+        try:
+            arrive = lowerer._find_body(node.body, node.span.line)
+            out.append(leg_figures(body, arrive, node)[0])
+            body = arrive
+        except PlanError as err:
+            out.append(err)
+            break  # past a leg that cannot be lowered nothing is known
+    return out
+
+
+def vinf_to_leg(lowerer, goal):
+    """A `vinf to leg` goal as `vinf to V km/s`, V the departure vinf of the next leg."""
+    from apsidal.lang import syntax as ast
+
+    found = lowerer.leg_vinfs[lowerer.phase] if lowerer.phase < len(lowerer.leg_vinfs) \
+        else None
+    if found is None:
+        raise PlanError("`vinf to leg` takes the departure vinf of the plan's next leg, and "
+                        "no leg follows this burn", goal.span, None,
+                        "add `leg NAME to BODY` after the burn (and the arrival start after "
+                        "it), or give the vinf: `vinf to 3 km/s`")
+    if isinstance(found, PlanError):
+        raise found
+    return replace(goal, value=ast.Quantity(repr(found), "km/s", goal.value.span))
+
+
 def lower_leg(lowerer, node, start) -> Leg:
     """The Leg step of ``leg NAME to BODY [vinf V1 to V2 for T]`` and its arrival start,
     lowered by ``lowerer`` (whose body is the departure body)."""
@@ -202,22 +253,8 @@ def lower_leg(lowerer, node, start) -> Leg:
 
     depart = lowerer.body
     arrive = lowerer._find_body(node.body, node.span.line)
-    if arrive is depart or arrive.name == depart.name:
-        raise PlanError(f"the leg goes to {arrive.name}, the body the plan already flies "
-                        "around", node.body.span, None,
-                        "a leg goes to another body; to change the orbit around this one, "
-                        "burn or transfer")
+    vinf_d, vinf_a, duration, form = leg_figures(depart, arrive, node)
     name = lowerer._name(node, "leg")
-    if node.depart is not None:
-        form = "given"
-        vinf_d, vinf_a = node.depart.internal(), node.arrive.internal()
-        duration = node.duration.internal()
-    else:
-        form = "hohmann"
-        found, why, hint = catalogue_hohmann(depart, arrive)
-        if found is None:
-            raise PlanError(why, node.body.span, None, hint)
-        vinf_d, vinf_a, duration = found.vinf_depart, found.vinf_arrive, found.duration
     if start.form != "orbit":
         raise PlanError("the arrival start is on the arrival hyperbola, not a circle",
                         start.span, None, ARRIVAL_HINT)

@@ -149,13 +149,18 @@ class Lowerer:
         steps = []
         self.counts_before: list[dict[str, int]] = []  # default-name counts before each step
         self.bodies_before: list[bodies.Body] = []  # the body around which each step flies
+        self.phases_before: list[int] = []  # how many legs come before each step
+        self.leg_vinfs = legs.departure_vinfs(self, steps_ast) if self.arrivals else []
+        self.phase = 0
         first_body = self.body
         for node in steps_ast:
             self.counts_before.append(dict(self.counts))
             self.bodies_before.append(self.body)
+            self.phases_before.append(self.phase)
             steps.append(self._step(node))
         self.counts_before.append(dict(self.counts))
         self.bodies_before.append(self.body)
+        self.phases_before.append(self.phase)
         steps = tuple(steps)
         self.body = first_body  # the plan's body is its first phase's
         ceiling = None
@@ -184,6 +189,7 @@ class Lowerer:
         again = copy.copy(self)
         again.counts = dict(self.counts_before[first])
         again.body = self.bodies_before[first]
+        again.phase = self.phases_before[first]
         again.names = {}
         new = tuple(again._step(node) for node in nodes)
         if again.counts != self.counts_before[last + 1]:
@@ -263,6 +269,7 @@ class Lowerer:
         """A leg to another body; from here on the steps fly around it."""
         leg = legs.lower_leg(self, node, self.arrivals[id(node)])
         self.body = leg.body
+        self.phase += 1
         return leg
 
     def _craft(self, st: ast.CraftDef) -> None:
@@ -568,6 +575,8 @@ class Lowerer:
     def _burn(self, node: ast.Burn) -> Burn:
         name = self._name(node, "burn")
         goals = self._goals(node)
+        if "vinf" in goals and isinstance(goals["vinf"].value, ast.Name):
+            goals["vinf"] = legs.vinf_to_leg(self, goals["vinf"])
         engine, margin, fixed, movable = self._options(node)
         place = self._place(node.where)
         tangential = self._tangential

@@ -552,6 +552,9 @@ class _ToSyntax(Transformer):
 
     def goal(self, meta, children):
         kind = str(children[0])
+        if kind == "vinf" and isinstance(children[-1], Token) and str(children[-1]) == "leg":
+            # `vinf to leg`: the departure vinf of the plan's next leg (lowering finds it)
+            return ast.Goal(kind, ast.Name("leg", _token_span(children[-1])), _span(meta))
         value = children[-1] if isinstance(children[-1], ast.Quantity | ast.Distance) else None
         if value is not None:
             _checked(value, SLOTS[f"goal.{kind}"])

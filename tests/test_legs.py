@@ -240,7 +240,9 @@ def test_departure_and_arrival_hyperbolas_match_dop853():
 def test_formatter_round_trip():
     text = mission(leg="leg   cruise  to mars") + "leg home to earth vinf 2.65 km/s to 2.9 km/s for 250 d\n"
     text += "start orbit periapsis 500 km\n"
+    text = text.replace("vinf to 2.944801864 km/s", "vinf   to  leg")
     once = format_text(text)
+    assert "vinf to leg" in once
     assert "leg cruise to mars\n" in once
     assert "leg home to earth vinf 2.65 km/s to 2.9 km/s for 250 d\n" in once
     assert format_text(once) == once
@@ -289,6 +291,38 @@ def test_the_table_says_where_the_body_changes(tmp_path, capsys, monkeypatch):
         assert max(len(line) for line in out.splitlines()) <= int(width)
 
 
+# --- `vinf to leg`: the departure burn's goal from the leg ---------------------------------
+
+
+def test_vinf_to_leg_flies_the_legs_departure_vinf():
+    rep = report_of(mission(vinf="X").replace("vinf to X km/s", "vinf to leg"))
+    leg = step(rep, "cruise")["leg"]
+    o = step(rep, "depart")["orbit_after"]
+    earth = bodies.lookup("earth")
+    assert math.sqrt(-earth.gm / o["sma_km"]) == pytest.approx(leg["vinf_depart_km_s"],
+                                                                 rel=1e-9)
+    given = report_of(mission())  # the same vinf written out
+    assert step(rep, "depart")["dv_m_s"] == pytest.approx(step(given, "depart")["dv_m_s"],
+                                                         abs=1e-5)
+
+
+def test_vinf_to_leg_in_a_checked_rewrite_reads_back():
+    text = ('plan "Merge"\naround earth\n' + CRAFT + """\
+start circular 300 km inclination 28.5 deg
+burn turn at periapsis: inclination to 0 deg
+burn depart at periapsis: vinf to leg
+leg cruise to mars
+start orbit periapsis 300 km
+burn capture at periapsis: period to 7 h
+""")
+    from apsidal.compiler.check import check_program
+
+    program = load_text(text, "merge.aps")
+    findings = check_program(program)
+    merged = [f for f in findings if f.rule == "merge-burns"]
+    assert merged and "inclination to 0 deg, vinf to leg" in merged[0].suggestion
+
+
 # --- bad input ------------------------------------------------------------------------------
 
 LEG_HEAD = 'plan "Probe"\naround earth\n' + CRAFT + "start circular 300 km\n"  # lines 1-8
@@ -325,6 +359,8 @@ BAD = [
     Bad("leg-arrival-vinf-mismatch", leg_plan(DEPART, "leg cruise to mars",
                                               "start orbit periapsis 300 km vinf 3 km/s"), 11, 30, "vinf", ("is not the leg's",), "drop `vinf`"),
     Bad("leg-around-after", leg_plan(DEPART, "leg cruise to mars", ARRIVE, "around mars"), 12, 1, "around", ("already takes the plan around mars",), "drop this `around`"),
+    Bad("vinf-to-leg-without-leg", leg_plan("burn depart at periapsis: vinf to leg"), 9, 27,
+        "vinf to leg", ("no leg follows this burn",), "vinf to 3 km/s"),
     Bad("leg-given-wrong-unit", leg_plan(DEPART, "leg cruise to mars vinf 3 km to 2 km/s for 9 d",
                                          ARRIVE), 10, 25, "3 km", ("speed",), "km/s"),
 ]
