@@ -270,12 +270,18 @@ def lower_leg(lowerer, node, start) -> Leg:
                         start.span, None, ARRIVAL_HINT)
     lowerer.body = arrive
     rp = lowerer._radius(fields["periapsis"].value)
-    if rp <= arrive.radius:
+    steps = lowerer.steps_ast[lowerer.steps_ast.index(node) + 1:]
+    direct = lowerer._ends and not any(isinstance(s, ast.Burn | ast.Transfer | ast.Leg)
+                                       for s in steps)
+    if direct and rp > 0:
+        pass  # a direct entry: the arrival hyperbola may be aimed under the surface
+    elif rp <= arrive.radius:
         raise PlanError(f"the arrival periapsis ({rp - arrive.radius:.3f} km altitude, radius "
                         f"{rp:.3f} km) is under the surface of {arrive.name} (radius "
                         f"{arrive.radius:.3f} km)", fields["periapsis"].span, None,
                         "altitudes are above the arrival body's equatorial radius; aim the "
-                        "arrival hyperbola's periapsis above it")
+                        "arrival hyperbola's periapsis above it (or, for a direct entry, end "
+                        "the plan with `entry at ALT` and no burn after the leg)")
     if "vinf" in fields:
         given = fields["vinf"].value.internal()
         if abs(given - vinf_a) > VINF_TOL:
@@ -285,6 +291,6 @@ def lower_leg(lowerer, node, start) -> Leg:
     else:
         q = ast.Quantity(repr(vinf_a), "km/s", start.span)
         start = replace(start, fields=(*start.fields, ast.Field("vinf", q, start.span)))
-    r, v = lowerer._start_state(start)
+    r, v = lowerer._start_state(start, below_ok=direct)
     return Leg(name, arrive, depart, vinf_d, vinf_a, duration, form,
                tuple(float(x) for x in r), tuple(float(x) for x in v), node.span, start.span)

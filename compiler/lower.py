@@ -146,6 +146,7 @@ class Lowerer:
                        "add a line such as `start circular 400 km inclination 51.6 deg`")
         r, v = self._start_state(self.start)
         self._ends = self._entry_order(steps_ast)
+        self.steps_ast = steps_ast
         steps = []
         self.counts_before: list[dict[str, int]] = []  # default-name counts before each step
         self.bodies_before: list[bodies.Body] = []  # the body around which each step flies
@@ -343,7 +344,9 @@ class Lowerer:
         value = d.quantity.internal()
         return value if d.is_radius else value + self.body.radius
 
-    def _start_state(self, st: ast.Start):
+    def _start_state(self, st: ast.Start, below_ok: bool = False):
+        """The start state; ``below_ok``: the periapsis may be under the surface (an
+        arrival hyperbola aimed at a direct entry)."""
         angles = ("inclination", "raan", "argp", "anomaly")
         if st.form == "circular":
             f = _fields(st.fields, ("circular", *angles), "`start circular`")
@@ -354,7 +357,7 @@ class Lowerer:
                                     *angles), "`start orbit`")
             rp, ra = self._start_shape(st, f)
             shape_node = f.get("periapsis") or f.get("sma") or st
-        if not rp > self.body.radius:
+        if not rp > self.body.radius and not below_ok:
             raise _err(f"the start orbit's periapsis ({rp - self.body.radius:.3f} km altitude) "
                        "is under the surface", shape_node,
                        ALTITUDE_HINT)

@@ -291,6 +291,28 @@ def test_the_table_says_where_the_body_changes(tmp_path, capsys, monkeypatch):
         assert max(len(line) for line in out.splitlines()) <= int(width)
 
 
+# --- a direct entry from the arrival hyperbola ---------------------------------------------
+
+
+def test_direct_entry_from_the_arrival_hyperbola():
+    text = ('plan "Direct"\naround earth\n' + CRAFT + """\
+start circular 300 km
+burn depart at periapsis: vinf to leg
+leg cruise to mars
+start orbit periapsis -20 km inclination 10 deg anomaly -80 deg
+entry descent at 125 km
+""")
+    rep = report_of(text)
+    mars = bodies.lookup("mars")
+    vinf = step(rep, "cruise")["leg"]["vinf_arrive_km_s"]
+    entry = step(rep, "descent")["entry"]
+    # energy: v^2 = vinf^2 + 2 mu / r at the interface (vis-viva on the hyperbola)
+    r = mars.radius + 125.0
+    assert entry["speed_m_s"] / 1000 == pytest.approx(math.sqrt(vinf**2 + 2 * mars.gm / r),
+                                                      rel=1e-9)
+    assert entry["flight_path_angle_deg"] < 0
+
+
 # --- `vinf to leg`: the departure burn's goal from the leg ---------------------------------
 
 
@@ -359,6 +381,10 @@ BAD = [
     Bad("leg-arrival-vinf-mismatch", leg_plan(DEPART, "leg cruise to mars",
                                               "start orbit periapsis 300 km vinf 3 km/s"), 11, 30, "vinf", ("is not the leg's",), "drop `vinf`"),
     Bad("leg-around-after", leg_plan(DEPART, "leg cruise to mars", ARRIVE, "around mars"), 12, 1, "around", ("already takes the plan around mars",), "drop this `around`"),
+    Bad("leg-arrival-under-surface-then-burn",
+        leg_plan(DEPART, "leg cruise to mars", "start orbit periapsis -20 km",
+                 "burn x: along 1 m/s", "entry descent at 125 km"), 11, 13, "periapsis",
+        ("under the surface of Mars",), "for a direct entry"),
     Bad("vinf-to-leg-without-leg", leg_plan("burn depart at periapsis: vinf to leg"), 9, 27,
         "vinf to leg", ("no leg follows this burn",), "vinf to 3 km/s"),
     Bad("leg-given-wrong-unit", leg_plan(DEPART, "leg cruise to mars vinf 3 km to 2 km/s for 9 d",
