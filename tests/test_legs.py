@@ -22,6 +22,8 @@ from apsidal.compiler.evaluate import run
 from apsidal.compiler.legs import hohmann
 from apsidal.compiler.load import load_text
 from apsidal.lang.format import format_text
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from strictjson import strict_json
 from test_bad_inputs import Bad, check_error, write
 
@@ -238,7 +240,8 @@ def test_departure_and_arrival_hyperbolas_match_dop853():
 
 
 def test_formatter_round_trip():
-    text = mission(leg="leg   cruise  to mars") + "leg home to earth vinf 2.65 km/s to 2.9 km/s for 250 d\n"
+    text = mission(leg="leg   cruise  to mars")
+    text += "leg home to earth vinf 2.65 km/s to 2.9 km/s for 250 d\n"
     text += "start orbit periapsis 500 km\n"
     text = text.replace("vinf to 2.944801864 km/s", "vinf   to  leg")
     once = format_text(text)
@@ -374,13 +377,18 @@ BAD = [
                                               "start orbit periapsis -100 km"), 11, 13,
         "periapsis", ("under the surface of Mars",), "above it"),
     Bad("leg-no-arrival-start", leg_plan(DEPART, "leg cruise to mars",
-                                         "burn capture at periapsis: apoapsis to 30000 km"), 10, 1, "leg", ("needs its arrival start before the next step",), "start orbit"),
-    Bad("leg-arrival-circular", leg_plan(DEPART, "leg cruise to mars", "start circular 300 km"), 11, 1, "start", ("not a circle",), "start orbit periapsis"),
+                                         "burn capture at periapsis: apoapsis to 30000 km"),
+        10, 1, "leg", ("needs its arrival start before the next step",), "start orbit"),
+    Bad("leg-arrival-circular", leg_plan(DEPART, "leg cruise to mars", "start circular 300 km"),
+        11, 1, "start", ("not a circle",), "start orbit periapsis"),
     Bad("leg-arrival-apoapsis", leg_plan(DEPART, "leg cruise to mars",
-                                         "start orbit periapsis 300 km apoapsis 900 km"), 11, 30, "apoapsis", ("takes no `apoapsis`",), "vinf comes from the leg"),
+                                         "start orbit periapsis 300 km apoapsis 900 km"),
+        11, 30, "apoapsis", ("takes no `apoapsis`",), "vinf comes from the leg"),
     Bad("leg-arrival-vinf-mismatch", leg_plan(DEPART, "leg cruise to mars",
-                                              "start orbit periapsis 300 km vinf 3 km/s"), 11, 30, "vinf", ("is not the leg's",), "drop `vinf`"),
-    Bad("leg-around-after", leg_plan(DEPART, "leg cruise to mars", ARRIVE, "around mars"), 12, 1, "around", ("already takes the plan around mars",), "drop this `around`"),
+                                              "start orbit periapsis 300 km vinf 3 km/s"),
+        11, 30, "vinf", ("is not the leg's",), "drop `vinf`"),
+    Bad("leg-around-after", leg_plan(DEPART, "leg cruise to mars", ARRIVE, "around mars"),
+        12, 1, "around", ("already takes the plan around mars",), "drop this `around`"),
     Bad("leg-arrival-under-surface-then-burn",
         leg_plan(DEPART, "leg cruise to mars", "start orbit periapsis -20 km",
                  "burn x: along 1 m/s", "entry descent at 125 km"), 11, 13, "periapsis",
@@ -399,3 +407,41 @@ def test_bad_leg(case, tmp_path, capsys, monkeypatch):
     code = main(["run", str(path), "--format", case.fmt])
     out, err = capsys.readouterr()
     check_error(case, path, code, out, err)
+
+
+# --- properties ----------------------------------------------------------------------------
+
+@settings(max_examples=40, deadline=None)
+@given(vinf_out=st.floats(0.5, 8.0), vinf_in=st.floats(0.5, 8.0), days=st.floats(30, 900),
+       alt=st.floats(100, 80000), inc=st.floats(0, 180), share=st.floats(-0.95, 0.95),
+       coast_h=st.floats(0.1, 48))
+def test_a_given_leg_keeps_one_chain(vinf_out, vinf_in, days, alt, inc, share, coast_h):
+    """Whatever the leg's figures and the arrival hyperbola: the clock adds the time of
+    flight, the mass runs on, the arrival orbit has the leg's vinf (energy vinf^2 / 2)
+    and the plane and periapsis the start names, and a coast on it keeps its energy."""
+    mars = bodies.lookup("mars")
+    e = 1 + (mars.radius + alt) * vinf_in**2 / mars.gm
+    anomaly = share * math.degrees(math.acos(-1 / e))
+    text = ('plan "Prop"\naround earth\n' + CRAFT + f"""\
+start circular 300 km
+burn depart at periapsis: vinf to leg
+leg cruise to mars vinf {vinf_out!r} km/s to {vinf_in!r} km/s for {days!r} d
+start orbit periapsis {alt!r} km inclination {inc!r} deg anomaly {anomaly!r} deg
+coast drift for {coast_h!r} h
+""")
+    result = run(load_text(text, "prop.aps"))
+    if not result.ok:  # only a coast that would run into Mars may stop the chain
+        assert "surface" in result.error.message or "periapsis" in result.error.message
+        return
+    rep = budget(result)
+    depart, cruise, drift = rep["steps"]
+    assert cruise["elapsed_s"] == pytest.approx(depart["elapsed_s"] + days * 86400, rel=1e-12)
+    assert cruise["mass_after_kg"] == depart["mass_after_kg"]
+    for s in (cruise, drift):
+        o = s["orbit_after"]
+        assert math.sqrt(-mars.gm / o["sma_km"]) == pytest.approx(vinf_in, rel=1e-9)
+        assert o["periapsis_alt_km"] == pytest.approx(alt, rel=1e-9, abs=1e-6)
+        assert o["inclination_deg"] == pytest.approx(inc, abs=1e-7)
+    o = depart["orbit_after"]
+    assert math.sqrt(-bodies.lookup("earth").gm / o["sma_km"]) == pytest.approx(vinf_out,
+                                                                                 rel=1e-9)
