@@ -115,13 +115,18 @@ def leg_dict(leg) -> dict:
             "time_of_flight_s": finite(leg.duration, 6)}
 
 
-def phases_list(program) -> list[dict]:
+def phases_list(result: Result) -> list[dict]:
     """The plan's phases in order: the body each flies around, the leg that starts it
-    (none for the first) and the 0-based index of its first plan step."""
-    out = [{"body": body_dict(program.body), "leg": None, "first_step": 0}]
-    for i, s in enumerate(program.steps):
-        if is_leg(s):
-            out.append({"body": body_dict(s.body), "leg": s.name, "first_step": i + 1})
+    (none for the first) and the report ``index`` of its first step (None when the
+    chain stopped before it, or the phase has no step)."""
+    program, rows = result.program, result.rows
+    starts = [(0, program.body, None)] + [(i + 1, s.body, s.name)
+                                          for i, s in enumerate(program.steps) if is_leg(s)]
+    out = []
+    for k, (first, body, leg) in enumerate(starts):
+        end = starts[k + 1][0] if k + 1 < len(starts) else len(program.steps)
+        index = next((n + 1 for n, row in enumerate(rows) if first <= row.step < end), None)
+        out.append({"body": body_dict(body), "leg": leg, "first_index": index})
     return out
 
 
@@ -332,7 +337,7 @@ def budget(result: Result) -> dict:
         "caution": CAUTION,
     }
     if any(is_leg(s) for s in p.steps):
-        out["phases"] = phases_list(p)
+        out["phases"] = phases_list(result)
     if result.error is not None:
         err = result.error
         out["error"] = {

@@ -178,8 +178,8 @@ def test_each_step_names_its_body_and_the_report_its_phases():
     assert [s["body"] for s in rep["steps"]] == ["Earth"] * 2 + ["Mars"] * 5
     assert rep["body"]["name"] == "Earth"  # the first phase's, as before
     phases = rep["phases"]
-    assert [(p["body"]["name"], p["leg"], p["first_step"]) for p in phases] == [
-        ("Earth", None, 0), ("Mars", "cruise", 3)]
+    assert [(p["body"]["name"], p["leg"], p["first_index"]) for p in phases] == [
+        ("Earth", None, 1), ("Mars", "cruise", 4)]
     mars = bodies.lookup("mars")
     # altitudes after the leg are above Mars' radius, the arrival hyperbola's vinf
     # is the leg's
