@@ -294,6 +294,34 @@ def test_the_table_says_where_the_body_changes(tmp_path, capsys, monkeypatch):
         assert max(len(line) for line in out.splitlines()) <= int(width)
 
 
+def test_a_round_trip_is_one_chain_and_the_hohmann_legs_mirror():
+    text = ('plan "Round trip"\naround earth\n' + CRAFT + """\
+start circular 300 km
+burn depart at periapsis: vinf to leg
+leg out to mars
+start orbit periapsis 300 km
+burn capture at periapsis: period to 7 h
+coast stay for 450 d
+burn leave at periapsis: vinf to leg
+leg back to earth
+start orbit periapsis 400 km
+burn home at periapsis: circular
+""")
+    rep = report_of(text)
+    out, back = step(rep, "out")["leg"], step(rep, "back")["leg"]
+    # the Hohmann transfer flown backwards: the same two speeds, swapped, and the same time
+    assert back["vinf_depart_km_s"] == pytest.approx(out["vinf_arrive_km_s"], rel=1e-12)
+    assert back["vinf_arrive_km_s"] == pytest.approx(out["vinf_depart_km_s"], rel=1e-12)
+    assert [s["body"] for s in rep["steps"]] == ["Earth", "Mars", "Mars", "Mars", "Mars",
+                                                 "Earth", "Earth"]
+    leave = step(rep, "leave")
+    assert step(rep, "back")["elapsed_s"] == pytest.approx(
+        leave["elapsed_s"] + back["time_of_flight_s"], rel=1e-12)
+    home = step(rep, "home")["orbit_after"]
+    assert home["periapsis_alt_km"] == pytest.approx(400.0) and home["ecc"] < 1e-9
+    assert [p["first_index"] for p in rep["phases"]] == [1, 3, 7]
+
+
 # --- a direct entry from the arrival hyperbola ---------------------------------------------
 
 
