@@ -10,6 +10,7 @@ DOP853 integrating the same two-body motion on the departure and arrival hyperbo
 from __future__ import annotations
 
 import math
+import re
 import tomllib
 from pathlib import Path
 
@@ -320,6 +321,26 @@ burn home at periapsis: circular
     home = step(rep, "home")["orbit_after"]
     assert home["periapsis_alt_km"] == pytest.approx(400.0) and home["ecc"] < 1e-9
     assert [p["first_index"] for p in rep["phases"]] == [1, 3, 7]
+
+
+def test_an_arrival_start_past_the_sphere_of_influence_is_flagged(tmp_path, capsys):
+    mars = bodies.lookup("mars")
+    text = mission().replace("anomaly -80 deg", "anomaly -128 deg")
+    path = tmp_path / "far.aps"
+    path.write_text(text)
+    assert main(["run", str(path), "--format", "json"]) == 0
+    rep = strict_json(capsys.readouterr().out)
+    far = [f for f in rep["findings"] if f["rule"] == "beyond-sphere-of-influence"]
+    assert far and far[0]["steps"] == ["cruise"] and "Mars" in far[0]["message"]
+    # the state it names is the arrival's, measured from Mars: vis-viva's orbit equation
+    e = 1 + (mars.radius + 400) * step(rep, "cruise")["leg"]["vinf_arrive_km_s"] ** 2 / mars.gm
+    r = (mars.radius + 400) * (1 + e) / (1 + e * math.cos(math.radians(-128)))
+    said = re.search(r"the craft is ([\d,]+) km from Mars", far[0]["message"])
+    assert float(said.group(1).replace(",", "")) == pytest.approx(r, abs=1.0)
+    path.write_text(mission())  # from -80 deg: well inside, and nothing said of the Earth
+    main(["run", str(path), "--format", "json"])
+    rep = strict_json(capsys.readouterr().out)
+    assert not [f for f in rep["findings"] if f["rule"] == "beyond-sphere-of-influence"]
 
 
 # --- a direct entry from the arrival hyperbola ---------------------------------------------

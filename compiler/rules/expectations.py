@@ -81,8 +81,10 @@ def beyond_sphere_of_influence(c: Checker) -> list[Finding]:
     out = []
     before = start_batch(c.program).r
     for row in c.result.rows:
-        body = c.body_at(row.step)
-        if body.soi is None or row.kind == "leg":
+        body = c.body_at(row.step)  # after a leg: the arrival body, as its state is
+        if row.kind == "leg":  # the state before it is around the body it leaves
+            before = row.after.r
+        if body.soi is None:
             before = row.after.r
             continue
         soi, mu = body.soi, body.gm
