@@ -236,6 +236,12 @@ def fit_lines(report: dict) -> list[str]:
         out.append(f"components           fuel {sig(tot['fuel_kg'])} kg, oxidiser "
                    f"{sig(tot['oxidiser_kg'])} kg burnt")
     for step in report["steps"]:
+        if "leg" in step:  # a patched-conic leg's figures (language.md, legs)
+            g = step["leg"]
+            form = "Hohmann" if g["form"] == "hohmann" else "given"
+            out.append(f"{'leg ' + step['name']:<20} {g['from']} to {g['to']}, {form}: vinf "
+                       f"{sig(g['vinf_depart_km_s'])} -> {sig(g['vinf_arrive_km_s'])} km/s, "
+                       f"{sig(g['time_of_flight_s'] / 86400.0)} d")
         if "entry" in step:
             e = step["entry"]
             out.append(f"entry interface      {sig(e['altitude_km'])} km ({step['name']}): "

@@ -301,6 +301,9 @@ def test_the_table_says_where_the_body_changes(tmp_path, capsys, monkeypatch):
         out = capsys.readouterr().out
         assert "Mars: " in out
         assert max(len(line) for line in out.splitlines()) <= int(width)
+        # under the totals, the leg's figures on one line of their own
+        assert re.search(r"^leg cruise +Earth to Mars, Hohmann: vinf 2\.945 -> 2\.649 km/s, "
+                         r"258\.9 d$", out, re.MULTILINE), out
 
 
 def test_a_round_trip_is_one_chain_and_the_hohmann_legs_mirror():
