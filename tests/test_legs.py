@@ -288,8 +288,17 @@ def test_diff_matches_steps_across_phases(tmp_path, capsys):
     new.write_text(mission().replace("apoapsis to 33000 km", "apoapsis to 30000 km"))
     assert main(["diff", str(old), str(new), "--format", "json"]) in (0, 1)
     rep = strict_json(capsys.readouterr().out)
-    text = str(rep)
-    assert "capture" in text and "cruise" in text
+    status = {s["name"]: s["status"] for s in rep["steps"]}
+    assert status["capture"] == "changed" and status["cruise"] == "same"
+    assert status["depart"] == "same" and status["lower"] == "changed"
+    # a leg's arrival vinf alone changed is a changed leg
+    given = mission(leg="leg cruise to mars vinf 2.944801864 km/s to 2.6 km/s for 259 d")
+    old.write_text(given)
+    new.write_text(given.replace("to 2.6 km/s", "to 2.7 km/s"))
+    main(["diff", str(old), str(new), "--format", "json"])
+    rep = strict_json(capsys.readouterr().out)
+    status = {s["name"]: s["status"] for s in rep["steps"]}
+    assert status["cruise"] == "changed" and status["depart"] == "same"
 
 
 def test_the_table_says_where_the_body_changes(tmp_path, capsys, monkeypatch):
