@@ -97,7 +97,7 @@ def in_phase(ctx, index: int):
         if first > index:
             break
         mu, radius = gm, r
-    if mu == ctx.mu:
+    if (mu, radius) == (ctx.mu, ctx.radius):
         return ctx
     return replace(ctx, mu=mu, radius=radius)
 
@@ -112,14 +112,10 @@ def step_bodies(program) -> list[Body]:
     return out
 
 
-def bodies_at(program) -> list[Body]:
-    """The body before each step, and after the last (len(steps) + 1 entries)."""
-    return [program.body, *step_bodies(program)]
-
-
 class PhaseBodies:
-    """``body_at`` for what the rules read (a ``program`` attribute): the body step
-    ``step_index`` flies around, the last phase's past the end."""
+    """``body_at`` for what the rules read (a ``program`` attribute): the body the state
+    after step ``step_index`` is reckoned around (for a leg, the arrival body; for any
+    other step, the body it flies around), the last phase's past the end."""
 
     def body_at(self, step_index: int) -> Body:
         if getattr(self, "_bodies", None) is None:
