@@ -179,6 +179,8 @@ def after_leg(st, leg, arrival) -> None:
     """A plan-level statement after a leg: only the one arrival start belongs there."""
     from apsidal.lang import syntax as ast
 
+    if isinstance(st, ast.Trade):  # a trade study may stand anywhere
+        return
     if isinstance(st, ast.Start):
         raise PlanError(f"the leg on line {leg.span.line} already has its arrival start "
                         f"(line {arrival.span.line})", st.span, None,
