@@ -514,3 +514,29 @@ coast drift for {coast_h!r} h
     o = depart["orbit_after"]
     assert math.sqrt(-bodies.lookup("earth").gm / o["sma_km"]) == pytest.approx(vinf_out,
                                                                                  rel=1e-9)
+
+
+def test_a_sweep_across_a_leg_prices_each_variant_as_run_does(tmp_path, capsys):
+    """The batch axis through a leg: a trade over the parking orbit (before the leg) and
+    over the capture (after it) gives, for every variant, the plan's own `run` total."""
+    base = mission()
+    path = tmp_path / "swept.aps"
+    path.write_text(base + "trade park: vary start.circular 250..450 km points 3\n"
+                    + "trade cap: vary capture.apoapsis 20000..40000 km points 3\n")
+    for trade, field, values, old in (
+            ("park", "start.circular", (250.0, 350.0, 450.0), "start circular 300 km"),
+            ("cap", "capture.apoapsis", (20000.0, 30000.0, 40000.0), "apoapsis to 33000 km")):
+        assert main(["sweep", str(path), "--trade", trade, "--format", "json"]) in (0, 1)
+        rep = strict_json(capsys.readouterr().out)
+        for variant, value in zip(rep["variants"], values):
+            assert variant["values"][field] == pytest.approx(value)
+            new = (f"start circular {value:g} km" if trade == "park"
+                   else f"apoapsis to {value:g} km")
+            own = report_of(base.replace(old, new + (" inclination 28.5 deg"
+                                                     if trade == "park" else "")
+                                         ).replace("28.5 deg inclination 28.5 deg",
+                                                   "28.5 deg"))
+            assert variant["totals"]["dv_m_s"] == pytest.approx(own["totals"]["dv_m_s"],
+                                                                rel=1e-9)
+            assert variant["totals"]["elapsed_s"] == pytest.approx(
+                own["totals"]["elapsed_s"], rel=1e-12)
