@@ -540,3 +540,20 @@ def test_a_sweep_across_a_leg_prices_each_variant_as_run_does(tmp_path, capsys):
                                                                 rel=1e-9)
             assert variant["totals"]["elapsed_s"] == pytest.approx(
                 own["totals"]["elapsed_s"], rel=1e-12)
+
+
+def test_csv_and_markdown_name_the_body(tmp_path, capsys):
+    import csv
+    import io
+
+    path = tmp_path / "mission.aps"
+    path.write_text(mission())
+    assert main(["run", str(path), "--format", "csv"]) == 0
+    rows = list(csv.DictReader(io.StringIO(capsys.readouterr().out), strict=True))
+    steps = [r for r in rows if r["record"] == "step"]
+    assert [(r["name"], r["body"]) for r in steps][1:4] == [
+        ("out", "Earth"), ("cruise", "Mars"), ("in", "Mars")]
+    assert main(["run", str(path), "--format", "markdown"]) == 0
+    md = capsys.readouterr().out
+    assert "| Mars: 400.0 x open i 75.00 |" in md
+    assert "- leg cruise Earth to Mars, Hohmann: vinf 2.945 -> 2.649 km/s, 258.9 d" in md
