@@ -162,7 +162,8 @@ def long_burn(c: Checker) -> list[Finding]:
     mu = c.program.body.gm
     rows = [row for row in c.result.rows
             if row.kind == "burn" and row.burn_time is not None and row.v_before is not None
-            and float(row.burn_time[0]) > 0]
+            and float(row.burn_time[0]) > 0
+            and row.dv_impulsive is None]  # a burn priced finite is no approximation
     if not rows:
         return out
     stack = lambda get: np.concatenate([get(row) for row in rows])
