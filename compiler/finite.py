@@ -6,9 +6,10 @@ always; then the burn is flown as constant thrust F and mass flow F / ve, centre
 impulse point (it starts T/2 before the time the craft reaches that point on the orbit
 before the burn and ends T/2 after), with the thrust either
 
-* ``velocity``: holding the impulsive delta-v's direction in the velocity-normal-binormal
-  frame of the current velocity (a tangential burn thrusts along the velocity throughout),
-  or
+* ``velocity``: holding the angles the impulsive delta-v makes with the mean of the
+  velocities before and after it (in that velocity's velocity-normal-binormal frame) to
+  the current velocity: a tangential burn thrusts along the velocity throughout, a pure
+  turn of the plane square to it, or
 * ``inertial``: fixed in space along the impulsive delta-v.
 
 Its length T is what meets the burn's governing goal (``governing``): the apsis it
@@ -149,9 +150,11 @@ def fly(r, v_before, v_after, mass, thrust_n: float, ve: float, mu: float, steer
     dv_imp = v_after - v_before
     dvn = norm(dv_imp)
     direction = unit(np.where(dvn[:, None] > 0, dv_imp, v_before))
-    V, N, B = vnb(r, v_before)
+    # the angles to the mean of the velocities before and after: a change of speed along
+    # the velocity keeps to it, a pure turn (|v| kept) is square to it and stays so
+    V, N, B = vnb(r, 0.5 * (v_before + v_after))
     comps = np.stack([dot(direction, V), dot(direction, N), dot(direction, B)], axis=-1)
-    if np.all(np.abs(comps[:, 1:]) <= 1e-15 * np.abs(comps[:, 0])):
+    if np.all(np.abs(comps[:, 1:]) <= 1e-15 * np.abs(comps[:, :1])):
         comps = comps[:, :1]  # along the velocity only (or against it): fewer operations
     thrust_kn = np.full(size, thrust_n / 1000.0)
     mdot = np.full(size, thrust_n / (ve * 1000.0))

@@ -33,7 +33,11 @@ def misses(row, mu: float, radius: float) -> list[str]:
                                f"{x - radius if alt else x:.3f} km")
             out.append(f"{word} {shown(b)} (goal {shown(a)})")
 
-    apsides = ["periapsis", "apoapsis"] if spec.circular else [] if spec.apsis_here else \
+    # a plane change or an apse-line turn alone keeps the size and shape (both apsides)
+    keeps = not (spec.circular or spec.periapsis is not None or spec.apoapsis is not None
+                 or spec.energy is not None or spec.ecc is not None)
+    apsides = ["periapsis", "apoapsis"] if spec.circular or keeps else [] \
+        if spec.apsis_here else \
         [w for w in ("periapsis", "apoapsis") if getattr(spec, w) is not None]
     for word in apsides:
         length(word, getattr(want, word), getattr(got, word))
