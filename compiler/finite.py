@@ -35,7 +35,8 @@ from .state import cross, dot, norm, unit
 
 STEP_RAD = 0.006  # rad of orbital angle per Runge-Kutta step (RK4: ~1e-9 relative)
 MIN_STEPS = 16
-MAX_STEPS = 20000
+MAX_STEPS = 6000  # a longer thrust arc is refused (``too_long``)
+MAX_ARC_DEG = float(np.degrees(MAX_STEPS * STEP_RAD / 1.3))  # about 1590 deg
 LENGTH_RTOL = 1e-12  # the burn's length is found to this relative tolerance
 MAX_ITER = 60
 MASS_FLOOR = 1e-6  # the burn may not use more than this short of the whole mass
@@ -54,6 +55,7 @@ class FiniteBurn:
     dv: np.ndarray  # (B,) km/s: ve ln(m0 / m1), the delta-v the engine gives
     arc: np.ndarray  # (B,) rad: central angle from start to end
     ok: np.ndarray  # (B,) bool: the goal was reached (by a burn that leaves some mass)
+    too_long: np.ndarray  # (B,) bool: the arc needs more steps than MAX_STEPS allows
 
 
 def vnb(r, v):
@@ -64,7 +66,8 @@ def vnb(r, v):
 
 
 def _rates(y, mu, accel, mdot, steering, comps, direction):
-    """Time derivative of y = (r, v, m) (B, 7); thrust ``accel`` = F in kN (km kg/s^2)."""
+    """Time derivative of y = (r, v, m, angle swept) (B, 8); thrust ``accel`` = F in kN
+    (km kg/s^2)."""
     r, v, m = y[:, :3], y[:, 3:6], y[:, 6]
     rr2 = np.einsum("ij,ij->i", r, r)
     grav = r * (-mu / (rr2 * np.sqrt(rr2)))[:, None]
@@ -79,23 +82,25 @@ def _rates(y, mu, accel, mdot, steering, comps, direction):
     out[:, :3] = v
     out[:, 3:6] = grav + (accel / m)[:, None] * u
     out[:, 6] = -mdot
+    out[:, 7] = norm(cross(r, v)) / rr2  # the central angle's rate, |r x v| / r^2
     return out
 
 
 def integrate(r0, v0, m0, length, mu, thrust_kn, mdot, steering, comps, direction,
               steps: int | None = None):
-    """Fly the thrust arc from (r0, v0, m0) for ``length`` s; returns (r, v, m).
+    """Fly the thrust arc from (r0, v0, m0) for ``length`` s; returns (r, v, m, central
+    angle swept, rad).
 
     ``comps``: the unit thrust direction's vnb components (``velocity`` steering);
     ``direction``: the inertial unit direction (``inertial``).  ``steps``: fixed number
     of RK4 steps (default: from the largest orbital angle the batch covers).
     """
-    y = np.concatenate([r0, v0, m0[:, None]], axis=1)
+    y = np.concatenate([r0, v0, m0[:, None], np.zeros((r0.shape[0], 1))], axis=1)
     length = np.asarray(length, dtype=float)
     if steps is None:
         rate = norm(v0) / norm(r0)  # rad/s of orbital angle, about
         steps = int(np.clip(np.ceil(np.max(rate * length, initial=0.0) * 1.3 / STEP_RAD),
-                            MIN_STEPS, MAX_STEPS))
+                            MIN_STEPS, MAX_STEPS))  # beyond: ``fly`` refuses the burn
     h = length / steps
     hc = h[:, None]
     f = lambda yy: _rates(yy, mu, thrust_kn, mdot, steering, comps, direction)
@@ -105,7 +110,7 @@ def integrate(r0, v0, m0, length, mu, thrust_kn, mdot, steering, comps, directio
         k3 = f(y + 0.5 * hc * k2)
         k4 = f(y + hc * k3)
         y = y + hc / 6.0 * (k1 + 2.0 * k2 + 2.0 * k3 + k4)
-    return y[:, :3], y[:, 3:6], y[:, 6]
+    return y[:, :3], y[:, 3:6], y[:, 6], y[:, 7]
 
 
 def back(r, v, mu, dt):
@@ -163,9 +168,9 @@ def fly(r, v_before, v_after, mass, thrust_n: float, ve: float, mu: float, steer
 
     def flown(length):
         rs, vs, ok = back(r, v_before, mu, 0.5 * length)
-        re, ve_, me = integrate(rs, vs, mass, length, mu, thrust_kn, mdot, steering, comps,
-                                direction)
-        return rs, vs, re, ve_, me, ok
+        re, ve_, me, arc = integrate(rs, vs, mass, length, mu, thrust_kn, mdot, steering,
+                                     comps, direction)
+        return rs, vs, re, ve_, me, ok, arc
 
     if kind is None:
         length = t_imp
@@ -181,12 +186,10 @@ def fly(r, v_before, v_after, mass, thrust_n: float, ve: float, mu: float, steer
         with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
             length, found = _solve_length(gap, t_imp, t_max, dvn > 0,
                                           sense * (before - target))
-    rs, vs, re, ve_, me, ok = flown(length)
-    arc = np.arctan2(norm(cross(rs, re)), dot(rs, re))
-    turn = dot(cross(rs, re), cross(rs, vs)) < 0  # past half a turn
-    arc = np.where(turn, 2 * np.pi - arc, arc)
+    rs, vs, re, ve_, me, ok, arc = flown(length)
+    too_long = norm(vs) / norm(rs) * length * 1.3 / STEP_RAD > MAX_STEPS
     return FiniteBurn(rs, vs, re, ve_, length, me, ve * np.log(mass / me), arc,
-                      ok & found & np.isfinite(re).all(-1))
+                      ok & found & np.isfinite(re).all(-1) & ~too_long, too_long)
 
 
 def _solve_length(gap, t_imp, t_max, active, g0):

@@ -51,8 +51,15 @@ def price_finite(batch, out, engine: EngineSpec, margin: float, ctx, fails: Fail
                     engine.exhaust_speed, ctx.mu, ctx.steering, kind)
     dv_imp = norm(out.v_after - out.v_before)
     goal = GOAL_WORDS[kind]
+    fails.add(fb.too_long & fails.ok, lambda i: (
+        (f"flown as a finite burn of {engine.thrust:g} N it would thrust for at least "
+         f"{fb.length[i]:.0f} s, over more than {finite.MAX_ARC_DEG:.0f} deg of its orbit: "
+         "a low-thrust spiral, which a burn held at one angle to the velocity does not "
+         "price"),
+        "price this plan's burns impulsive (`burns impulsive`), or split the burn into "
+        "burns of a fraction of a revolution each (a stronger engine shortens it)"))
     fails.add(~fb.ok & fails.ok, lambda i: (
-        (f"flown as a finite burn of {engine.thrust:g} N ({ctx.steering} steering), {name} "
+        (f"flown as a finite burn of {engine.thrust:g} N ({ctx.steering} steering) it "
          f"cannot reach its {goal} before the craft's whole mass of {batch.mass[i]:.3f} kg "
          "is burnt"),
         "price this plan's burns impulsive (`burns impulsive`), or use a stronger engine"))

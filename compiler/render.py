@@ -72,7 +72,7 @@ STEP_COLUMNS: tuple[Column, ...] = (
     Column("at", "at", lambda s: s["at"], 3, right=False),
     Column("dv", "Δv m/s", _burn("dv_m_s"), 0),
     Column("loss", "gravity loss m/s",
-           lambda s: sig(s["finite"]["gravity_loss_m_s"]) if "finite" in s else "", 3),
+           lambda s: sig(s["finite"]["gravity_loss_m_s"]) if "finite" in s else "", 2),
     Column("margin", "Δv+margin m/s", _burn("dv_with_margin_m_s"), 2),
     Column("propellant", "propellant kg", _propellant, 0),
     Column("mass", "mass after kg", lambda s: sig(s["mass_after_kg"]), 1),

@@ -71,7 +71,8 @@ def finite_burn(c: Checker) -> list[Finding]:
     circularisation leaves some eccentricity.  The rule reports each goal missed by more
     than an expectation's default tolerance (1 km, 0.0001 in eccentricity, 0.01 deg) as
     an error, with the value reached, so a plan never reports an orbit that misses a
-    named goal as if it met it.  A trim burn after it meets the rest.
+    named goal as if it met it.  Split the goals: this burn the one its length meets, a
+    short trim burn after it the rest.
     """
     mu, radius = c.program.body.gm, c.program.body.radius
     out = []
@@ -81,13 +82,12 @@ def finite_burn(c: Checker) -> list[Finding]:
         missed = misses(row, mu, radius)
         if not missed:
             continue
-        trim = (f"`burn {row.name.replace('/', '-')}-trim: circular`" if row.spec.circular
-                else "a trim burn after it")
         out.append(Finding(
             "finite-burn", "error", (row.name,),
             f"{row.name}, flown as a finite burn ({float(row.finite_time[0]):.0f} s over "
             f"{np.degrees(float(row.finite_arc[0])):.1f} deg, {c.program.steering} steering), "
             f"meets its {row.finite_goal} but ends with " + "; ".join(missed)
-            + f": add {trim} to meet the rest, or price the plan's burns impulsive "
-            "(`burns impulsive`)"))
+            + ": a burn held at one angle meets one goal by its length; give this burn "
+            f"only its {row.finite_goal} goal and a burn after it the rest (a trim), or price "
+            "the plan's burns impulsive (`burns impulsive`)"))
     return out
