@@ -60,9 +60,11 @@ def price_finite(batch, out, engine: EngineSpec, margin: float, ctx, fails: Fail
         "burns of a fraction of a revolution each (a stronger engine shortens it)"))
     fails.add(~fb.ok & fails.ok, lambda i: (
         (f"flown as a finite burn of {engine.thrust:g} N ({ctx.steering} steering) it "
-         f"cannot reach its {goal} before the craft's whole mass of {batch.mass[i]:.3f} kg "
-         "is burnt"),
-        "price this plan's burns impulsive (`burns impulsive`), or use a stronger engine"))
+         f"cannot reach its {goal} at any length, up to burning the craft's whole mass of "
+         f"{batch.mass[i]:.3f} kg: a finite burn spreads over an arc, and an apsis at the "
+         "impulse point's own radius (a circle made there) is out of its reach"),
+        "aim the apsis a little short of this point's altitude and trim after it, or price "
+        "this plan's burns impulsive (`burns impulsive`)"))
     ok = fails.ok
     dv = np.where(ok, fb.dv, dv_imp)
     dvm = dv * (1.0 + margin)
