@@ -120,17 +120,21 @@ def back(r, v, mu, dt):
     return rb, -vb, ok
 
 
-def governing_value(kind: str, r, v, mu, h0=None, e0=None):
+def governing_value(kind: str, r, v, mu, h0=None, e0=None, toward=None):
     """The scalar a finite burn's length sets: ``apoapsis`` or ``periapsis`` (radius, km),
-    ``energy`` (km2/s2), ``turn`` (angle of the plane from ``h0``) or ``apse`` (angle of
-    the apse line from ``e0``), rad."""
+    ``energy`` (km2/s2), ``turn`` (the plane's normal turned from ``h0`` toward the
+    normal ``toward``, along the great circle through both: the part of the turn the
+    burn is for) or ``apse`` (angle of the apse line from ``e0``), rad."""
     rr = norm(r)
     energy = 0.5 * dot(v, v) - mu / rr
     if kind == "energy":
         return energy
     h = cross(r, v)
     if kind == "turn":
-        return np.arctan2(norm(cross(unit(h0), h)), dot(unit(h0), h))
+        n0 = unit(h0)
+        w = toward - dot(toward, n0)[:, None] * n0
+        w = np.where(norm(w)[:, None] > 0, unit(np.where(norm(w)[:, None] > 0, w, n0)), n0)
+        return np.arctan2(dot(h, w), dot(h, n0))
     e_vec = cross(v, h) / mu - r / rr[:, None]
     if kind == "apse":
         return np.arctan2(norm(cross(unit(e0), e_vec)), dot(unit(e0), e_vec))
@@ -179,7 +183,8 @@ def fly(r, v_before, v_after, mass, thrust_n: float, ve: float, mu: float, steer
         h0, e0 = cross(r, v_before), None
         if kind == "apse":
             e0 = cross(v_before, h0) / mu - r / norm(r)[:, None]
-        value = lambda rr, vv: governing_value(kind, rr, vv, mu, h0, e0)
+        toward = unit(cross(r, v_after))
+        value = lambda rr, vv: governing_value(kind, rr, vv, mu, h0, e0, toward)
         before, target = value(r, v_before), value(r, v_after)
         sense = np.where(target >= before, 1.0, -1.0)
         gap = lambda length: sense * (value(*flown(length)[2:4]) - target)

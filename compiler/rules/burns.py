@@ -156,7 +156,8 @@ def long_burn(c: Checker) -> list[Finding]:
     60 deg of arc the number should not be used for sizing: a burn held in one
     direction over an arc a of a circle keeps only the mean of cos over it,
     sin(a/2)/(a/2), about 95.5 % of its delta-v at 60 deg (our own estimate), a loss
-    the size of a usual margin.
+    the size of a usual margin.  A plan with `burns finite` prices its burns as finite
+    burns (the gravity loss is in the budget); the rule says nothing of those.
     """
     out = []
     mu = c.program.body.gm
