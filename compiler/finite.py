@@ -192,6 +192,11 @@ def fly(r, v_before, v_after, mass, thrust_n: float, ve: float, mu: float, steer
             length, found = _solve_length(gap, t_imp, t_max, dvn > 0,
                                           sense * (before - target))
     rs, vs, re, ve_, me, ok, arc = flown(length)
+    if kind is not None:  # the goal met, or the burn refused: never a near miss passed on
+        with np.errstate(invalid="ignore"):
+            off = np.abs(value(re, ve_) - target)
+        scale = np.where(np.isfinite(before), np.abs(target - before), np.abs(target))
+        found &= ~(dvn > 0) | (off <= 1e-7 * np.maximum(scale, 1e-300))
     too_long = norm(vs) / norm(rs) * length * 1.3 / STEP_RAD > MAX_STEPS
     return FiniteBurn(rs, vs, re, ve_, length, me, ve * np.log(mass / me), arc,
                       ok & found & np.isfinite(re).all(-1) & ~too_long, too_long)
@@ -207,7 +212,7 @@ def _solve_length(gap, t_imp, t_max, active, g0):
     x0 = np.where(active, np.minimum(t_imp, t_max), 0.0)
     g_x0 = np.where(active, gap(x0), 0.0)
     x1 = np.minimum(x0 * 1.001 + 1e-9, t_max)
-    done = ~active
+    done, failed = ~active, np.zeros_like(active)
     for _ in range(MAX_ITER):
         # the bracket: the largest length short of the goal, the least one past it
         below, above = ~done & (g_x0 < 0), ~done & (g_x0 >= 0)
@@ -220,7 +225,7 @@ def _solve_length(gap, t_imp, t_max, active, g0):
         step = np.where(g_x1 != g_x0, g_x1 * (x1 - x0) / np.where(g_x1 != g_x0, g_x1 - g_x0, 1.0),
                         0.0)
         x2 = x1 - step
-        bad = ~np.isfinite(x2) | (x2 <= lo) | (x2 >= hi)
+        bad = ~np.isfinite(x2) | (x2 <= lo) | (x2 >= hi) | ((g_x1 == g_x0) & (g_x1 != 0))
         known = np.isfinite(g_hi)
         x2 = np.where(bad, np.where(known, 0.5 * (lo + hi), np.minimum(2.0 * x1, t_max)), x2)
         x2 = np.where(bad & ~known & (x1 >= t_max), t_max, x2)
@@ -229,8 +234,9 @@ def _solve_length(gap, t_imp, t_max, active, g0):
         stuck = ~done & ~known & (x1 >= t_max) & (g_x1 < 0)  # the whole mass is not enough
         x1 = np.where(converged, np.where(g_x1 == 0, x1, x2), x1)
         done |= converged | stuck
+        failed |= stuck
         if done.all():
             break
         x0, g_x0, x1 = np.where(done, x0, x1), np.where(done, g_x0, g_x1), np.where(done, x1, x2)
-    found = ~active | (np.isfinite(g_hi) & (x1 < t_max))
+    found = ~active | (done & ~failed)
     return np.where(active, np.clip(x1, lo, np.where(np.isfinite(g_hi), hi, t_max)), 0.0), found
