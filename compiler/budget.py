@@ -296,6 +296,9 @@ def budget(result: Result) -> dict:
         "dry_max_kg": finite(sizing.dry_max, 6) if sizing and sizing.dry_max else None,
         "no_load_fits": sizing.why if sizing is not None else None,
     }
+    losses = [s["finite"]["gravity_loss_m_s"] for s in steps if "finite" in s]
+    if losses:  # a plan with `burns finite`: what its finite burns cost over impulsive ones
+        totals["gravity_loss_m_s"] = finite(sum(losses), 6)
     allow = allowance_summary(p)
     totals["allowances_m_s"] = allow["total_m_s"] if allow else 0.0
     if allow is not None:
