@@ -122,7 +122,7 @@ def back(r, v, mu, dt):
 
 def governing_value(kind: str, r, v, mu, h0=None, e0=None, toward=None):
     """The scalar a finite burn's length sets: ``apoapsis`` or ``periapsis`` (radius, km),
-    ``energy`` (km2/s2), ``turn`` (the plane's normal turned from ``h0`` toward the
+    ``energy`` (km2/s2), ``ecc``, ``turn`` (the plane's normal turned from ``h0`` toward the
     normal ``toward``, along the great circle through both: the part of the turn the
     burn is for) or ``apse`` (angle of the apse line from ``e0``), rad."""
     rr = norm(r)
@@ -139,6 +139,8 @@ def governing_value(kind: str, r, v, mu, h0=None, e0=None, toward=None):
     if kind == "apse":
         return np.arctan2(norm(cross(unit(e0), e_vec)), dot(unit(e0), e_vec))
     ecc = norm(e_vec)
+    if kind == "ecc":
+        return ecc
     p = dot(h, h) / mu
     if kind == "periapsis":
         return p / (1.0 + ecc)

@@ -20,6 +20,7 @@ from .steps import Burn, EngineSpec
 # orbit by the `finite-burn` rule): the named apsis, the energy of the orbit its shape
 # goals name, the turn of its plane or of its apse line; components spend their delta-v.
 GOAL_WORDS = {"apoapsis": "apoapsis", "periapsis": "periapsis", "energy": "energy",
+              "ecc": "eccentricity",
               "turn": "plane", "apse": "apse line", None: "delta-v"}
 
 
@@ -30,8 +31,10 @@ def governing(step: Burn) -> str | None:
     if step.one_apsis or (step.apsis_here and not step.circular):
         return "apoapsis" if step.apoapsis is not None else "periapsis"
     shape = step.circular or step.periapsis is not None or step.apoapsis is not None \
-        or step.energy is not None or step.ecc is not None
-    if shape:
+        or step.energy is not None
+    if step.ecc is not None and not shape and step.argp is None:
+        return "ecc"
+    if shape or step.ecc is not None:
         return "energy"
     if step.argp is not None:
         return "apse"
