@@ -95,22 +95,35 @@ def integrate(r0, v0, m0, length, mu, thrust_kn, mdot, steering, comps, directio
     ``direction``: the inertial unit direction (``inertial``).  ``steps``: fixed number
     of RK4 steps (default: from the largest orbital angle the batch covers).
     """
-    y = np.concatenate([r0, v0, m0[:, None], np.zeros((r0.shape[0], 1))], axis=1)
+    y0 = np.concatenate([r0, v0, m0[:, None], np.zeros((r0.shape[0], 1))], axis=1)
     length = np.asarray(length, dtype=float)
+    chosen = steps
     if steps is None:
         rate = norm(v0) / norm(r0)  # rad/s of orbital angle, about
-        steps = int(np.clip(np.ceil(np.max(rate * length, initial=0.0) * 1.3 / STEP_RAD),
-                            MIN_STEPS, MAX_STEPS))  # beyond: ``fly`` refuses the burn
-    h = length / steps
-    hc = h[:, None]
+        steps = _steps(np.max(rate * length, initial=0.0) * 1.3)
     f = lambda yy: _rates(yy, mu, thrust_kn, mdot, steering, comps, direction)
-    for _ in range(steps):
-        k1 = f(y)
-        k2 = f(y + 0.5 * hc * k1)
-        k3 = f(y + 0.5 * hc * k2)
-        k4 = f(y + hc * k3)
-        y = y + hc / 6.0 * (k1 + 2.0 * k2 + 2.0 * k3 + k4)
+    while True:
+        hc = (length / steps)[:, None]
+        y, widest = y0, 0.0
+        for _ in range(steps):
+            k1 = f(y)
+            k2 = f(y + 0.5 * hc * k1)
+            k3 = f(y + 0.5 * hc * k2)
+            k4 = f(y + hc * k3)
+            new = y + hc / 6.0 * (k1 + 2.0 * k2 + 2.0 * k3 + k4)
+            widest = max(widest, float(np.max(new[:, 7] - y[:, 7], initial=0.0)))
+            y = new
+        # the step count came from the rate at the start: where the arc swept faster (past
+        # a periapsis), fly it again with steps as fine as asked
+        if chosen is not None or widest <= 1.2 * STEP_RAD or steps >= MAX_STEPS:
+            break
+        steps = min(_steps(widest * steps * 1.1), MAX_STEPS)
     return y[:, :3], y[:, 3:6], y[:, 6], y[:, 7]
+
+
+def _steps(angle: float) -> int:
+    """Runge-Kutta steps for an arc of ``angle`` rad (``STEP_RAD`` each)."""
+    return int(np.clip(np.ceil(angle / STEP_RAD), MIN_STEPS, MAX_STEPS))
 
 
 def back(r, v, mu, dt):

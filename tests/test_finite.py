@@ -364,3 +364,20 @@ def test_a_raise_along_the_velocity_meets_its_apsis_and_loses(alt, rise, accel, 
     assert fb.ok[0]
     assert apoapsis_of(fb.r_end[0], fb.v_end[0]) == pytest.approx(apo, rel=1e-9)
     assert fb.dv[0] >= np.linalg.norm(va - v) * (1 - 1e-12)
+
+
+def test_a_capture_from_a_hyperbola_matches_scipy():
+    # centred on periapsis of an open orbit, where the arc sweeps fastest: the steps are
+    # refined from the swept angle itself
+    rp = RE + 400.0
+    vp = np.sqrt(3.0**2 + 2 * MU / rp)  # vinf 3 km/s (vis-viva)
+    r, v = np.array([[rp, 0.0, 0.0]]), np.array([[0.0, vp, 0.0]])
+    apo = RE + 20000.0
+    va = v / vp * np.sqrt(MU * (2 / rp - 2 / (rp + apo)))
+    fb = finite.fly(r, v, va, np.array([3000.0]), 4000.0, 320 * G0, MU, "velocity",
+                    "apoapsis")
+    assert fb.ok[0] and np.degrees(fb.arc[0]) > 20
+    r1, v1, m1, _ = scipy_flight(r, v, va, 3000.0, 4000.0, 320.0, "velocity", fb.length[0])
+    assert np.linalg.norm(fb.r_end[0] - r1) < 1e-3 and np.linalg.norm(fb.v_end[0] - v1) < 1e-6
+    assert apoapsis_of(fb.r_end[0], fb.v_end[0]) == pytest.approx(apo, abs=1e-6)
+    assert apoapsis_of(r1, v1) == pytest.approx(apo, abs=1e-2)
