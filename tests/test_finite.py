@@ -381,3 +381,19 @@ def test_a_capture_from_a_hyperbola_matches_scipy():
     assert np.linalg.norm(fb.r_end[0] - r1) < 1e-3 and np.linalg.norm(fb.v_end[0] - v1) < 1e-6
     assert apoapsis_of(fb.r_end[0], fb.v_end[0]) == pytest.approx(apo, abs=1e-6)
     assert apoapsis_of(r1, v1) == pytest.approx(apo, abs=1e-2)
+
+
+def test_the_load_sized_for_finite_burns_flies_the_plan_exactly(capsys, tmp_path):
+    # a finite burn's loss depends on the mass, so the load is a fixed point: priced at
+    # the printed load the plan ends with exactly its reserve
+    text = PLAN.replace("start", "reserve 40 m/s\nstart", 1)
+    _, doc = run_json(capsys, tmp_path, text)
+    need = doc["totals"]["propellant_needed_kg"]
+    assert abs(need - 1900.0) > 50  # a real change of load
+    _, again = run_json(capsys, tmp_path, text.replace("propellant 1900 kg",
+                                                       f"propellant {need!r} kg"))
+    assert again["feasible"]
+    assert again["totals"]["dv_capacity_left_m_s"] == pytest.approx(40.0, abs=1e-4)
+    assert again["totals"]["propellant_needed_kg"] == pytest.approx(need, abs=1e-4)
+    short = text.replace("propellant 1900 kg", f"propellant {need - 0.01!r} kg")
+    assert not run_json(capsys, tmp_path, short)[1]["feasible"]
