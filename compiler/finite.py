@@ -35,8 +35,8 @@ from .state import cross, dot, norm, unit
 
 STEP_RAD = 0.006  # rad of orbital angle per Runge-Kutta step (RK4: ~1e-9 relative)
 MIN_STEPS = 16
-MAX_STEPS = 6000  # a longer thrust arc is refused (``too_long``)
-MAX_ARC_DEG = float(np.degrees(MAX_STEPS * STEP_RAD / 1.3))  # about 1590 deg
+MAX_ARC_DEG = 720.0  # a longer thrust arc (two revolutions: a spiral) is refused
+MAX_STEPS = int(np.ceil(np.radians(MAX_ARC_DEG) * 1.5 / STEP_RAD))
 LENGTH_RTOL = 1e-12  # the burn's length is found to this relative tolerance
 MAX_ITER = 60
 MASS_FLOOR = 1e-6  # the burn may not use more than this short of the whole mass
@@ -55,7 +55,7 @@ class FiniteBurn:
     dv: np.ndarray  # (B,) km/s: ve ln(m0 / m1), the delta-v the engine gives
     arc: np.ndarray  # (B,) rad: central angle from start to end
     ok: np.ndarray  # (B,) bool: the goal was reached (by a burn that leaves some mass)
-    too_long: np.ndarray  # (B,) bool: the arc needs more steps than MAX_STEPS allows
+    too_long: np.ndarray  # (B,) bool: the arc would sweep more than MAX_ARC_DEG
 
 
 def vnb(r, v):
@@ -70,19 +70,25 @@ def _rates(y, mu, accel, mdot, steering, comps, direction):
     (km kg/s^2)."""
     r, v, m = y[:, :3], y[:, 3:6], y[:, 6]
     rr2 = np.einsum("ij,ij->i", r, r)
+    vv2 = np.einsum("ij,ij->i", v, v)
+    h = cross(r, v)
+    hh = np.sqrt(np.einsum("ij,ij->i", h, h))
     grav = r * (-mu / (rr2 * np.sqrt(rr2)))[:, None]
     if steering == "velocity":
-        u = v * (comps[:, 0] / np.sqrt(np.einsum("ij,ij->i", v, v)))[:, None]
+        vv = np.sqrt(vv2)
+        u = v * (comps[:, 0] / vv)[:, None]
         if comps.shape[1] > 1:  # out of the along-track line: the normal and binormal too
-            V, N, B = vnb(r, v)
-            u = u + comps[:, 1:2] * N + comps[:, 2:3] * B
+            # N = h / |h|; B = V x N = (r (v.v) - v (r.v)) / (|v| |h|)
+            rv = np.einsum("ij,ij->i", r, v)
+            u = (u + h * (comps[:, 1] / hh)[:, None]
+                 + (r * vv2[:, None] - v * rv[:, None]) * (comps[:, 2] / (vv * hh))[:, None])
     else:
         u = direction
     out = np.empty_like(y)
     out[:, :3] = v
     out[:, 3:6] = grav + (accel / m)[:, None] * u
     out[:, 6] = -mdot
-    out[:, 7] = norm(cross(r, v)) / rr2  # the central angle's rate, |r x v| / r^2
+    out[:, 7] = hh / rr2  # the central angle's rate, |r x v| / r^2
     return out
 
 
@@ -183,7 +189,10 @@ def fly(r, v_before, v_after, mass, thrust_n: float, ve: float, mu: float, steer
     thrust_kn = np.full(size, thrust_n / 1000.0)
     mdot = np.full(size, thrust_n / (ve * 1000.0))
     t_imp = mass * -np.expm1(-dvn / ve) / mdot  # the impulsive delta-v's burn time
-    t_max = mass * (1.0 - MASS_FLOOR) / mdot
+    t_mass = mass * (1.0 - MASS_FLOOR) / mdot  # all of the craft burnt
+    # past MAX_ARC_DEG of orbit at the impulse point's rate no length is tried: a spiral
+    t_arc = np.radians(MAX_ARC_DEG) * norm(r) / norm(v_before)
+    t_max = np.minimum(t_mass, t_arc)
 
     def flown(length):
         rs, vs, ok = back(r, v_before, mu, 0.5 * length)
@@ -192,8 +201,8 @@ def fly(r, v_before, v_after, mass, thrust_n: float, ve: float, mu: float, steer
         return rs, vs, re, ve_, me, ok, arc
 
     if kind is None:
-        length = t_imp
-        found = np.ones(size, dtype=bool)
+        length = np.minimum(t_imp, t_max)
+        found = t_imp <= t_max
     else:
         h0, e0 = cross(r, v_before), None
         if kind == "apse":
@@ -212,7 +221,7 @@ def fly(r, v_before, v_after, mass, thrust_n: float, ve: float, mu: float, steer
             off = np.abs(value(re, ve_) - target)
         scale = np.where(np.isfinite(before), np.abs(target - before), np.abs(target))
         found &= ~(dvn > 0) | (off <= 1e-7 * np.maximum(scale, 1e-300))
-    too_long = norm(vs) / norm(rs) * length * 1.3 / STEP_RAD > MAX_STEPS
+    too_long = (~found & (t_arc < t_mass)) | (arc > np.radians(MAX_ARC_DEG))
     return FiniteBurn(rs, vs, re, ve_, length, me, ve * np.log(mass / me), arc,
                       ok & found & np.isfinite(re).all(-1) & ~too_long, too_long)
 

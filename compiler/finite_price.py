@@ -55,13 +55,15 @@ def price_finite(batch, out, engine: EngineSpec, margin: float, ctx, fails: Fail
     dv_imp = norm(out.v_after - out.v_before)
     goal = GOAL_WORDS[kind]
     fails.add(fb.too_long & fails.ok, lambda i: (
-        (f"flown as a finite burn of {engine.thrust:g} N it would thrust for at least "
-         f"{fb.length[i]:.0f} s, over more than {finite.MAX_ARC_DEG:.0f} deg of its orbit: "
-         "a low-thrust spiral, which a burn held at one angle to the velocity does not "
-         "price"),
-        "price this plan's burns impulsive (`burns impulsive`), or split the burn into "
-        "burns of a fraction of a revolution each (a stronger engine shortens it)"))
-    fails.add(~fb.ok & fails.ok, lambda i: (
+        (f"flown as a finite burn of {engine.thrust:g} N ({ctx.steering} steering) it "
+         f"cannot reach its {goal} within {finite.MAX_ARC_DEG:.0f} deg of thrust arc "
+         f"({fb.length[i]:.0f} s): a low-thrust spiral, which a burn held at one angle "
+         "does not price, or a goal out of a finite burn's reach (an apsis at the impulse "
+         "point's own radius, a circle made there)"),
+        "price this plan's burns impulsive (`burns impulsive`), split the burn into "
+        "burns of a fraction of a revolution each, or aim an apsis a little short of "
+        "this point's altitude and trim after it"))
+    fails.add(~fb.ok & ~fb.too_long & fails.ok, lambda i: (
         (f"flown as a finite burn of {engine.thrust:g} N ({ctx.steering} steering) it "
          f"cannot reach its {goal} at any length, up to burning the craft's whole mass of "
          f"{batch.mass[i]:.3f} kg: a finite burn spreads over an arc, and an apsis at the "

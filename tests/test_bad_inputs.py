@@ -363,7 +363,8 @@ CASES = [
         "burns impulsive", ("`burns` is given twice",), "keep one"),
     Bad("finite-burn-a-spiral", plan("burn a: apoapsis to 30000 km using trim",
                                      start="burns finite\n" + START), 11, 1, "burn a",
-        ("a: flown as a finite burn of 20 N", "a low-thrust spiral"),
+        ("a: flown as a finite burn of 20 N", "within 720 deg of thrust arc",
+         "a low-thrust spiral"),
         "price this plan's burns impulsive (`burns impulsive`)"),
     # --- phasing, places and the way down to an entry ----------------------------------------
     Bad("phasing-under-the-surface", plan(HOP := "transfer hop: phase 180 deg in 1 rev"),
