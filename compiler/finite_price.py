@@ -13,7 +13,7 @@ import numpy as np
 
 from . import finite
 from .solvers import Failures
-from .state import norm
+from .state import cross, dot, elements_from_state, norm
 from .steps import Burn, EngineSpec
 
 # What a burn's length is set to meet, by its goals (the rest are checked on the end
@@ -90,3 +90,68 @@ def price_finite(batch, out, engine: EngineSpec, margin: float, ctx, fails: Fail
                  finite_arc=np.where(ok, fb.arc, 0.0), v_impulsive=out.v_after, r_impulse=out.r,
                  finite_goal=goal, spec=step)
     return new, vec, dv, dvm, need, burn_time, covered, extra
+
+
+# Within these a finite burn meets a goal: the tolerances an expectation takes by default.
+KM, ECC, ANGLE = 1.0, 1e-4, np.radians(0.01)
+
+
+def _angle(a, b):
+    return np.arctan2(norm(cross(a, b)), dot(a, b))
+
+
+def goal_checks(row, mu: float, radius: float) -> list:
+    """The goals of a finite burn's ``row`` checked on the orbit at the end of its arc
+    against the orbit the impulsive burn reaches: [(missed, word)], ``missed`` over the
+    batch and ``word(i)`` the goal, its value and the value reached for element i."""
+    spec = row.spec
+    if spec is None or spec.vector is not None or row.dv_impulsive is None:
+        return []
+    r0, v0, r1, v1 = row.r_impulse, row.v_impulsive, row.after.r, row.after.v
+    want, got = elements_from_state(r0, v0, mu), elements_from_state(r1, v1, mu)
+    out = []
+
+    def length(word, a, b, alt=True):
+        shown = lambda x: ("infinity (open)" if not np.isfinite(x) else
+                           f"{x - radius if alt else x:.3f} km")
+        with np.errstate(invalid="ignore"):
+            miss = ~(np.isfinite(a) & np.isfinite(b) & (np.abs(a - b) <= KM))
+        out.append((miss, lambda i: f"{word} {shown(b[i])} (goal {shown(a[i])})"))
+
+    # a plane change or an apse-line turn alone keeps the size and shape (both apsides)
+    keeps = not (spec.circular or spec.periapsis is not None or spec.apoapsis is not None
+                 or spec.energy is not None or spec.ecc is not None)
+    apsides = ["periapsis", "apoapsis"] if spec.circular or keeps else [] \
+        if spec.apsis_here else \
+        [w for w in ("periapsis", "apoapsis") if getattr(spec, w) is not None]
+    for word in apsides:
+        length(word, getattr(want, word), getattr(got, word))
+    if spec.energy is not None:
+        length("sma", want.sma, got.sma, alt=False)
+    if spec.ecc is not None:
+        out.append((np.abs(want.ecc - got.ecc) > ECC, lambda i: (
+            f"eccentricity {got.ecc[i]:.6f} (goal {want.ecc[i]:.6f})")))
+    if spec.argp is not None:
+        turn = np.abs(np.mod(got.argp - want.argp + np.pi, 2 * np.pi) - np.pi)
+        out.append((turn > ANGLE, lambda i: (
+            f"argument of periapsis {np.degrees(got.argp[i]):.4f} deg (goal "
+            f"{np.degrees(want.argp[i]):.4f} deg)")))
+    h_want, h_got = cross(r0, v0), cross(r1, v1)
+    off = _angle(h_want, h_got)
+    turned = _angle(cross(r0, row.v_before), h_want) > 1e-9
+    out.append((turned & (off > ANGLE), lambda i: (
+        f"a plane {np.degrees(off[i]):.4f} deg from the goal's (inclination "
+        f"{np.degrees(got.inclination[i]):.4f} deg, goal "
+        f"{np.degrees(want.inclination[i]):.4f} deg)")))
+    return out
+
+
+def goals_met(row, mu: float, radius: float) -> np.ndarray | None:
+    """Where a finite burn's ``row`` meets every goal (None for a burn not priced
+    finite): what a batch caller (``sweep``) counts a variant by."""
+    if row.dv_impulsive is None:
+        return None
+    met = np.ones(row.after.r.shape[0], dtype=bool)
+    for missed, _ in goal_checks(row, mu, radius):
+        met &= ~missed
+    return met

@@ -397,3 +397,28 @@ def test_the_load_sized_for_finite_burns_flies_the_plan_exactly(capsys, tmp_path
     assert again["totals"]["propellant_needed_kg"] == pytest.approx(need, abs=1e-4)
     short = text.replace("propellant 1900 kg", f"propellant {need - 0.01!r} kg")
     assert not run_json(capsys, tmp_path, short)[1]["feasible"]
+
+
+def test_a_sweep_prices_each_thrust_finite_and_counts_a_missed_goal(capsys, tmp_path):
+    path = tmp_path / "plan.aps"
+    path.write_text(PLAN)
+    main(["sweep", str(path), "--vary", "main.thrust=400..3200 N", "--points", "3",
+          "--format", "json"])
+    lines = capsys.readouterr().out
+    doc = json.loads(lines) if lines.lstrip().startswith("{") else None
+    variants = doc["variants"] if doc else [json.loads(x) for x in lines.splitlines()
+                                             if '"values"' in x]
+    dv = [v["totals"]["dv_m_s"] for v in variants]
+    assert dv[0] > dv[1] > dv[2]  # more thrust, less loss
+    assert all(v["totals"]["expectations_met"] for v in variants)
+    _, one = run_json(capsys, tmp_path, PLAN)
+    assert dv[0] == pytest.approx(one["totals"]["dv_m_s"], rel=1e-7)  # (steps: see above)
+    # a circularisation the finite burn cannot meet fails every variant
+    path.write_text(PLAN.split("burn lift-1")[0] + "burn circ at apoapsis: circular\n")
+    main(["sweep", str(path), "--vary", "main.thrust=400..3200 N", "--points", "2",
+          "--format", "json"])
+    lines = capsys.readouterr().out
+    doc = json.loads(lines) if lines.lstrip().startswith("{") else None
+    variants = doc["variants"] if doc else [json.loads(x) for x in lines.splitlines()
+                                             if '"values"' in x]
+    assert variants and not any(v["totals"]["expectations_met"] for v in variants)

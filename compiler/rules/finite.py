@@ -5,58 +5,11 @@ from __future__ import annotations
 import numpy as np
 
 from ..check import Checker, Finding, rule
-from ..state import cross, elements_from_state, norm
-
-# Within these a finite burn meets a goal: the tolerances an expectation takes by default.
-KM, ECC, ANGLE = 1.0, 1e-4, np.radians(0.01)
-
-
-def _angle(a, b) -> float:
-    return float(np.arctan2(norm(cross(a, b))[0], np.sum(a * b, axis=-1)[0]))
-
+from ..finite_price import goal_checks
 
 def misses(row, mu: float, radius: float) -> list[str]:
-    """The goals of ``row``'s burn that its finite burn misses, each worded with the goal
-    (as the impulsive burn reaches it) and the value the finite burn ends with."""
-    spec = row.spec
-    if spec is None or spec.vector is not None:
-        return []
-    r0, v0 = row.r_impulse[:1], row.v_impulsive[:1]
-    r1, v1 = row.after.r[:1], row.after.v[:1]
-    want, got = elements_from_state(r0, v0, mu), elements_from_state(r1, v1, mu)
-    out = []
-
-    def length(word, a, b, alt=True):
-        a, b = float(a[0]), float(b[0])
-        if not (np.isfinite(a) and np.isfinite(b) and abs(a - b) <= KM):
-            shown = lambda x: ("infinity (open)" if not np.isfinite(x) else
-                               f"{x - radius if alt else x:.3f} km")
-            out.append(f"{word} {shown(b)} (goal {shown(a)})")
-
-    # a plane change or an apse-line turn alone keeps the size and shape (both apsides)
-    keeps = not (spec.circular or spec.periapsis is not None or spec.apoapsis is not None
-                 or spec.energy is not None or spec.ecc is not None)
-    apsides = ["periapsis", "apoapsis"] if spec.circular or keeps else [] \
-        if spec.apsis_here else \
-        [w for w in ("periapsis", "apoapsis") if getattr(spec, w) is not None]
-    for word in apsides:
-        length(word, getattr(want, word), getattr(got, word))
-    if spec.energy is not None:
-        length("sma", want.sma, got.sma, alt=False)
-    if spec.ecc is not None and abs(float(want.ecc[0] - got.ecc[0])) > ECC:
-        out.append(f"eccentricity {float(got.ecc[0]):.6f} (goal {float(want.ecc[0]):.6f})")
-    if spec.argp is not None:
-        turn = abs(float(np.mod(got.argp[0] - want.argp[0] + np.pi, 2 * np.pi) - np.pi))
-        if turn > ANGLE:
-            out.append(f"argument of periapsis {np.degrees(float(got.argp[0])):.4f} deg "
-                       f"(goal {np.degrees(float(want.argp[0])):.4f} deg)")
-    h_before = cross(r0, row.v_before[:1])
-    h_want, h_got = cross(r0, v0), cross(r1, v1)
-    if _angle(h_before, h_want) > 1e-9 and _angle(h_want, h_got) > ANGLE:
-        out.append(f"a plane {np.degrees(_angle(h_want, h_got)):.4f} deg from the goal's "
-                   f"(inclination {np.degrees(float(got.inclination[0])):.4f} deg, goal "
-                   f"{np.degrees(float(want.inclination[0])):.4f} deg)")
-    return out
+    """The goals of ``row``'s burn (batch element 0) its finite burn misses, worded."""
+    return [word(0) for mask, word in goal_checks(row, mu, radius) if mask[0]]
 
 
 @rule("finite-burn")
