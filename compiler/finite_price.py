@@ -13,7 +13,7 @@ import numpy as np
 
 from . import finite
 from .solvers import Failures
-from .state import cross, dot, elements_from_state, norm
+from .state import cross, dot, elements_from_state, local_frame, norm
 from .steps import Burn, EngineSpec
 
 # What a burn's length is set to meet, by its goals (the rest are checked on the end
@@ -74,7 +74,7 @@ def price_finite(batch, out, engine: EngineSpec, margin: float, ctx, fails: Fail
     dv = np.where(ok, fb.dv, dv_imp)
     dvm = dv * (1.0 + margin)
     need, covered, burn_time = _propellant(batch, dvm, engine)
-    along, normal, radial = finite.vnb(out.r, out.v_before)
+    along, normal, radial = local_frame(out.r, out.v_before)  # as an impulsive burn's
     dv_inertial = out.v_after - out.v_before
     scale = np.where(dv_imp > 0, dv / np.where(dv_imp > 0, dv_imp, 1.0), 0.0)
     vec = np.stack([np.einsum("ij,ij->i", dv_inertial, ax) for ax in (along, normal, radial)],

@@ -7,6 +7,7 @@ import numpy as np
 from ..check import Checker, Finding, rule
 from ..finite_price import goal_checks
 
+
 def misses(row, mu: float, radius: float) -> list[str]:
     """The goals of ``row``'s burn (batch element 0) its finite burn misses, worded."""
     return [word(0) for mask, word in goal_checks(row, mu, radius) if mask[0]]
