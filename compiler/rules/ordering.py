@@ -49,7 +49,10 @@ def cheaper_order(c: Checker) -> list[Finding]:
     windows of 8) or past the time limit the finding says the search was bounded or cut
     short, and a bounded search that finds nothing says so too.  Typical catch: a plane
     change flown in a low
-    orbit before the apoapsis is raised, where the craft is fastest.
+    orbit before the apoapsis is raised, where the craft is fastest.  In a plan with
+    `burns finite` the search ranks orders in the impulsive model (a finite burn is too
+    dear to price thousands of times) and the order it finds is proven with finite
+    burns, like every finding.
     """
     out, proposals = [], []
     search = _impulsive(c)
