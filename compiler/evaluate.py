@@ -16,6 +16,7 @@ import numpy as np
 from apsidal.lang.errors import PlanError
 
 from . import conic_goals, frames, kepler
+from .legs import in_phase, leg_rows, phases_of
 from .solvers import (
     Failures,
     Shape,
@@ -201,6 +202,7 @@ class Context:
     interface: float | None = None  # set on the way down (``apply``): coasts stay above it
     finite: bool = False  # `burns finite`: burns are flown as finite burns
     steering: str = "velocity"  # their thrust direction: velocity | inertial
+    phases: tuple = ()  # (first step, mu, radius) of each phase after a leg (legs.phases_of)
 
 
 def context_for(program: Program) -> Context:
@@ -208,7 +210,8 @@ def context_for(program: Program) -> Context:
     return Context(program.body.gm, program.body.radius, program.craft.default_engine,
                    program.margin, program.statistical_scale, program.descent_from,
                    end.radius if isinstance(end, Entry) else None,
-                   finite=program.burns == "finite", steering=program.steering)
+                   finite=program.burns == "finite", steering=program.steering,
+                   phases=phases_of(program.steps))
 
 
 def descending(ctx: Context, index: int) -> Context:
@@ -915,7 +918,11 @@ def apply(step: Step, index: int, batch: Batch, ctx: Context) -> tuple[Batch, li
     """Move the whole batch through one step."""
     fails = Failures(batch.size)
     ctx = descending(ctx, index)
-    if isinstance(step, Entry):
+    if ctx.phases:  # a plan of several bodies: this step's
+        ctx = in_phase(ctx, index)
+    if step.kind == "leg":
+        new, rows = leg_rows(step, index, batch, ctx, fails)
+    elif isinstance(step, Entry):
         from .entry import entry_rows
 
         new, rows = entry_rows(step, index, batch, ctx, fails)

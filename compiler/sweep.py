@@ -124,7 +124,7 @@ def locate(plan: ast.Plan, program: Program, target: str, span: Span | None = No
         if isinstance(st, ast.Setting) and st.key in ("margin", "reserve"):
             owners.setdefault("plan", {}).update(_fields_of(st))
         elif isinstance(st, ast.Start):
-            owners["start"] = st
+            owners.setdefault("start", st)  # the plan's own start (a leg's comes later)
         elif isinstance(st, ast.CraftDef):
             owners["craft"] = owners[st.name.text] = st
             for e in st.engines:
@@ -448,9 +448,11 @@ def _price_chunk(program: Program, n: int):
         priced.extend(r for r in rows if r.dv is not None)
         if ctx.finite:  # a goal a finite burn misses fails the variant like an expectation
             from .finite_price import goals_met
+            from .legs import in_phase
 
+            here = in_phase(ctx, index) if ctx.phases else ctx  # the step's body
             for r in rows:
-                met = goals_met(r, ctx.mu, ctx.radius)
+                met = goals_met(r, here.mu, here.radius)
                 goals &= True if met is None else met
     craft = program.craft
     ve = craft.default_engine.exhaust_speed

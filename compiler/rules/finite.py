@@ -28,12 +28,12 @@ def finite_burn(c: Checker) -> list[Finding]:
     named goal as if it met it.  Split the goals: this burn the one its length meets, a
     short trim burn after it the rest.
     """
-    mu, radius = c.program.body.gm, c.program.body.radius
     out = []
     for row in c.result.rows:
         if row.kind != "burn" or row.dv_impulsive is None:
             continue
-        missed = misses(row, mu, radius)
+        body = c.body_at(row.step)  # a plan with legs: the body this burn flies around
+        missed = misses(row, body.gm, body.radius)
         if not missed:
             continue
         out.append(Finding(
