@@ -88,19 +88,35 @@ def _step_dict(i: int, row: Row, mu: float, radius: float) -> dict:
     }
     if row.kind == "burn":
         out["frame"] = row.frame
-        rtn = components("rtn", row.after.r[:1], row.v_before[:1],
-                         row.after.v[:1] - row.v_before[:1])[0] * 1000.0
+        r_at, change = row.after.r[:1], row.after.v[:1] - row.v_before[:1]
+        if row.dv_impulsive is not None:  # finite: the impulsive burn's direction, its size
+            r_at, change = row.r_impulse[:1], row.v_impulsive[:1] - row.v_before[:1]
+            change = change * (row.dv[0] / row.dv_impulsive[0] if row.dv_impulsive[0] else 0)
+        rtn = components("rtn", r_at, row.v_before[:1], change)[0] * 1000.0
         out["vector_rtn_m_s"] = {k: finite(x, 6) for k, x in zip(NAMES["rtn"], rtn)}
     if burn:
         out["covered"] = bool(row.covered[0])
         out["engine"] = row.engine.name
         out["margin_pct"] = finite(row.margin * 100.0, 9)
         out["coast_before_s"] = finite(row.coast_time[0], 6)
+    if row.dv_impulsive is not None:
+        out["finite"] = finite_dict(row, mu, radius)
     if row.kind == "expect":
         out["checks"] = [_check_dict(c, radius) for c in row.checks]
     if row.kind == "entry":
         out["entry"] = entry_dict(row.after.r[0], row.after.v[0], radius)
     return out
+
+
+def finite_dict(row: Row, mu: float, radius: float) -> dict:
+    """A burn priced finite: the impulsive delta-v it replaces, the gravity loss (finite
+    minus impulsive, both without margin), the thrust arc and what its length met."""
+    dv, imp = row.dv[0] * 1000.0, row.dv_impulsive[0] * 1000.0
+    return {"dv_impulsive_m_s": finite(imp, 6), "gravity_loss_m_s": finite(dv - imp, 6),
+            "thrust_time_s": finite(row.finite_time[0], 6),
+            "arc_deg": finite(np.degrees(row.finite_arc[0]), 9), "meets": row.finite_goal,
+            "impulsive_orbit_after": orbit_dict(row.r_impulse[:1], row.v_impulsive[:1], mu,
+                                                radius)}
 
 
 def body_dict(body) -> dict:
@@ -313,6 +329,9 @@ def budget(result: Result) -> dict:
         "dry_max_kg": finite(sizing.dry_max, 6) if sizing and sizing.dry_max else None,
         "no_load_fits": sizing.why if sizing is not None else None,
     }
+    losses = [s["finite"]["gravity_loss_m_s"] for s in steps if "finite" in s]
+    if losses:  # a plan with `burns finite`: what its finite burns cost over impulsive ones
+        totals["gravity_loss_m_s"] = finite(sum(losses), 6)
     allow = allowance_summary(p)
     totals["allowances_m_s"] = allow["total_m_s"] if allow else 0.0
     if allow is not None:

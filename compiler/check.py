@@ -352,7 +352,9 @@ class Checker(PhaseBodies):
             rows.extend(step_rows)
             j = i + n_old - n_new  # the same point of the plan as written
             if i >= n_new - suffix - 1 and j > self._mass_checked and j < n_old - 1 \
-                    and self._converged(batch, j + 1):
+                    and not ctx.finite and self._converged(batch, j + 1):
+                # (finite burns depend on the mass: a state back on the plan's orbit at
+                # another mass flies the rest differently, so it is priced in full)
                 tail = [r for r in self.result.rows if r.step > j]
                 final, ok = carry(batch, tail, float(self._before[j + 1].mass[0]))
                 return final, bool(ok[0]), rows + tail

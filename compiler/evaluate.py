@@ -161,6 +161,16 @@ class Row:
     v_before: np.ndarray | None = None  # (B, 3) velocity just before a burn
     covered: np.ndarray | None = None  # (B,) the load still covers this burn
     frame: str = "vnb"  # the frame the plan gave this burn in (frames.NAMES)
+    # a burn priced finite (``burns finite``, compiler/finite.py): the impulsive delta-v it
+    # replaces, the thrust arc's length (s, without margin) and central angle (rad), what
+    # its length met, and the burn it flew (its goals, for the misses)
+    dv_impulsive: np.ndarray | None = None
+    finite_time: np.ndarray | None = None
+    finite_arc: np.ndarray | None = None
+    v_impulsive: np.ndarray | None = None  # (B, 3) the impulsive burn's velocity after
+    r_impulse: np.ndarray | None = None  # (B, 3) and where it stood: the impulse point
+    finite_goal: str | None = None
+    spec: Burn | None = None
 
     def take(self, idx, step: int | None = None) -> Row:
         """The row for the batch elements ``idx`` (a slice or index array keeps the
@@ -176,7 +186,8 @@ class Row:
 
 
 _ROW_ARRAYS = ("dv_vec", "dv", "dv_margin", "propellant", "burn_time", "coast_time",
-               "duration", "v_before", "covered")
+               "duration", "v_before", "covered", "dv_impulsive", "finite_time", "finite_arc",
+               "v_impulsive", "r_impulse")
 
 
 @dataclass(frozen=True)
@@ -189,6 +200,8 @@ class Context:
     descent_from: int | None = None  # see Program.descent_from
     entry_radius: float | None = None  # the interface of the plan's `entry`, km
     interface: float | None = None  # set on the way down (``apply``): coasts stay above it
+    finite: bool = False  # `burns finite`: burns are flown as finite burns
+    steering: str = "velocity"  # their thrust direction: velocity | inertial
     phases: tuple = ()  # (first step, mu, radius) of each phase after a leg (legs.phases_of)
 
 
@@ -197,6 +210,7 @@ def context_for(program: Program) -> Context:
     return Context(program.body.gm, program.body.radius, program.craft.default_engine,
                    program.margin, program.statistical_scale, program.descent_from,
                    end.radius if isinstance(end, Entry) else None,
+                   finite=program.burns == "finite", steering=program.steering,
                    phases=phases_of(program.steps))
 
 
@@ -535,12 +549,23 @@ def _burn_rows(step: Burn, index: int, name: str, batch: Batch, ctx: Context, fa
         out = burn_outcome(step, batch.r, batch.v, ctx, normal)
     fails.merge(~out.fails.ok, out.fails)
     margin = step.margin
-    new, vec, dv, dvm, prop, burn_time, covered = _price(batch, out, _engine(step, ctx), margin,
-                                                         ctx, fails, name)
+    new, vec, dv, dvm, prop, burn_time, covered, extra = _price_burn(
+        batch, out, _engine(step, ctx), margin, ctx, fails, name, step)
     row = Row(index, name, "burn", out.at or step.place.label(), new, vec, dv, dvm, prop, burn_time,
               out.coast, out.coast, _engine(step, ctx), margin, v_before=out.v_before,
-              covered=covered, frame=step.frame)
+              covered=covered, frame=step.frame, **extra)
     return new, row
+
+
+def _price_burn(batch: Batch, out: BurnOutcome, engine: EngineSpec, margin: float,
+                ctx: Context, fails: Failures, name: str, step: Burn):
+    """``_price`` for a burn, flown as a finite burn where the plan says so; returns its
+    parts and the row's finite fields (empty for an impulsive burn)."""
+    if not ctx.finite:
+        return (*_price(batch, out, engine, margin, ctx, fails, name), {})
+    from .finite_price import price_finite
+
+    return price_finite(batch, out, engine, margin, ctx, fails, name, step)
 
 
 # --- transfers -----------------------------------------------------------------------
@@ -608,7 +633,11 @@ def _merge_rows(a: Row, b: Row, take_a: np.ndarray) -> Row:
                *(pick(getattr(a, f), getattr(b, f)) for f in
                  ("dv_vec", "dv", "dv_margin", "propellant", "burn_time", "coast_time",
                   "duration")), a.engine, a.margin, v_before=pick(a.v_before, b.v_before),
-               covered=pick(a.covered, b.covered), frame=a.frame)
+               covered=pick(a.covered, b.covered), frame=a.frame,
+               **{f: pick(getattr(a, f), getattr(b, f))
+                  for f in ("dv_impulsive", "finite_time", "finite_arc", "v_impulsive",
+                            "r_impulse")},
+               finite_goal=a.finite_goal, spec=a.spec)
 
 
 def _either(b_up: Burn, b_down: Burn, up, index, batch: Batch, ctx: Context, fails, normal,

@@ -89,6 +89,7 @@ class Lowerer:
         self.margin = 0.0
         self.reserve = 0.0
         self.ceiling: ast.Setting | None = None
+        self.models: dict[str, str] = {}  # `burns`, `steering`
         self.start: ast.Start | None = None
         self.names: dict[str, Span] = {}
         self.counts: dict[str, int] = {}
@@ -163,6 +164,10 @@ class Lowerer:
         self.bodies_before.append(self.body)
         self.phases_before.append(self.phase)
         steps = tuple(steps)
+        if "steering" in self.models and self.models.get("burns") != "finite":
+            raise _err("`steering` sets the thrust direction of finite burns, and this plan "
+                       "prices its burns impulsive", self._steering,
+                       "add `burns finite`, or drop the `steering` line")
         self.body = first_body  # the plan's body is its first phase's
         ceiling = None
         if self.ceiling is not None:
@@ -176,7 +181,9 @@ class Lowerer:
                            "one above the start: `ceiling 1000 km` is an altitude above the "
                            "equatorial radius, `ceiling radius 7400 km` is from the centre")
         return Program(self.title, self.body, self.craft, self.margin, self.reserve, r, v,
-                       steps, self.plan.source, self.plan, self.start.span, ceiling)
+                       steps, self.plan.source, self.plan, self.start.span, ceiling,
+                       burns=self.models.get("burns", "impulsive"),
+                       steering=self.models.get("steering", "velocity"))
 
     def splice(self, program: Program, first: int, last: int, nodes, plan: ast.Plan
                ) -> Program | None:
@@ -218,6 +225,10 @@ class Lowerer:
                 self.margin = st.value.internal()
             elif st.key == "reserve":
                 self.reserve = st.value.internal()
+            elif st.word is not None:  # burns, steering
+                self.models[st.key] = st.word.text
+                if st.key == "steering":
+                    self._steering = st
             else:
                 self.ceiling = st
         elif isinstance(st, ast.Start):

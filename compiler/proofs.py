@@ -158,6 +158,8 @@ class Walk:
     def _carry_back(self, s: int, alive: list[Node], batch: Batch):
         """Finish the states back in the plan's own orbit before step ``s`` with no edit
         ahead: the rest of the plan is the plan's own rows at their mass."""
+        if self.ctx.finite:  # finite burns depend on the mass: nothing carries over
+            return alive, batch
         ref = self.before[s]
         back = (np.all(np.isclose(batch.r, ref.r, rtol=1e-10, atol=1e-9), axis=1)
                 & np.all(np.isclose(batch.v, ref.v, rtol=1e-10, atol=1e-12), axis=1))

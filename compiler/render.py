@@ -78,6 +78,8 @@ STEP_COLUMNS: tuple[Column, ...] = (
     Column("kind", "kind", lambda s: s["kind"], 1, right=False),
     Column("at", "at", lambda s: s["at"], 3, right=False),
     Column("dv", "Δv m/s", _burn("dv_m_s"), 0),
+    Column("loss", "gravity loss m/s",
+           lambda s: sig(s["finite"]["gravity_loss_m_s"]) if "finite" in s else "", 2),
     Column("margin", "Δv+margin m/s", _burn("dv_with_margin_m_s"), 2),
     Column("propellant", "propellant kg", _propellant, 0),
     Column("mass", "mass after kg", lambda s: sig(s["mass_after_kg"]), 1),
@@ -88,6 +90,13 @@ STEP_COLUMNS: tuple[Column, ...] = (
     Column("elapsed", "elapsed d hh:mm:ss", lambda s: duration(s["elapsed_s"]), 2),
 )
 COLUMN_KEYS = tuple(c.key for c in STEP_COLUMNS)
+
+
+def finite_columns(report: dict) -> tuple[Column, ...]:
+    """The step columns, the gravity loss only where a burn was priced finite."""
+    if any("finite" in s for s in report["steps"]):
+        return STEP_COLUMNS
+    return tuple(c for c in STEP_COLUMNS if c.key != "loss")
 
 
 def pick_columns(spec: str | None, columns=STEP_COLUMNS) -> tuple[tuple, bool]:
@@ -214,7 +223,8 @@ def total_lines(tot: dict) -> list[str]:
         (f"delta-v capacity     {sig(tot['dv_capacity_left_m_s'])} m/s left "
          f"(reserve {sig(tot['reserve_m_s'])} m/s: {reserve})"),
         f"elapsed              {duration(tot['elapsed_s'])}",
-    ]
+    ] + ([f"gravity loss         {sig(tot['gravity_loss_m_s'])} m/s in the delta-v "
+          "(finite burns)"] if "gravity_loss_m_s" in tot else [])
 
 
 def fit_lines(report: dict) -> list[str]:
@@ -271,7 +281,7 @@ def screen(report: dict, columns: str | None = None) -> list[tuple]:
     ...     "caution": "estimates"})]
     ['line', 'table', 'blank', 'line', 'line', 'line', 'line', 'line', 'blank', 'line']
     """
-    cols, keep_all = pick_columns(columns)
+    cols, keep_all = pick_columns(columns, STEP_COLUMNS if columns else finite_columns(report))
     out: list[tuple] = [
         ("line", f"Delta-v budget: {report['plan'] or report['source']}", "bold", False),
         ("table", cols, report["steps"], keep_all), ("blank",),
@@ -334,11 +344,12 @@ def _md_row(cells) -> str:
 
 def markdown(report: dict) -> str:
     out = [f"## Delta-v budget: {report['plan'] or report['source']}", ""]
-    out.append(_md_row([c.heading for c in STEP_COLUMNS]))
-    out.append("|" + "".join("--:|" if c.right else "---|" for c in STEP_COLUMNS))
+    columns = finite_columns(report)
+    out.append(_md_row([c.heading for c in columns]))
+    out.append("|" + "".join("--:|" if c.right else "---|" for c in columns))
     for s in report["steps"]:
         out.append(_md_row([(f"`{c.cell(s)}`" if c.key == "step" else c.cell(s))
-                            for c in STEP_COLUMNS]))
+                            for c in columns]))
     out += [""] + [f"    {line}" for line in total_lines(report["totals"])]
     fit = fit_lines(report)
     if fit:
@@ -368,7 +379,9 @@ STEP_CSV = ["index", "name", "kind", "at", "engine", "dv_m_s", "dv_with_margin_m
             "apoapsis_alt_km", "sma_km", "ecc", "inclination_deg", "raan_deg", "argp_deg",
             "anomaly_deg", "period_s", "covered", "fuel_kg", "oxidiser_kg", "frame",
             "rtn_radial_m_s", "rtn_transverse_m_s", "rtn_normal_m_s", "entry_speed_m_s",
-            "entry_flight_path_angle_deg"]
+            "entry_flight_path_angle_deg", "dv_impulsive_m_s", "gravity_loss_m_s",
+            "thrust_time_s", "arc_deg"]
+FINITE_CSV = ("dv_impulsive_m_s", "gravity_loss_m_s", "thrust_time_s", "arc_deg")
 CHECK_CSV = ["check", "comparator", "expected", "tolerance", "actual", "unit", "passed"]
 MESSAGE_CSV = ["severity", "rule", "message"]
 CSV_COLUMNS = ["record", "source", *STEP_CSV, *CHECK_CSV, *MESSAGE_CSV, "body"]
@@ -395,6 +408,7 @@ def csv_records(report: dict) -> list[dict]:
                      "radial_m_s": vec["radial"], "frame": s.get("frame"),
                      **{f"rtn_{k}_m_s": x for k, x in rtn.items()},
                      "entry_speed_m_s": entry.get("speed_m_s"),
+                     **{k: s.get("finite", {}).get(k) for k in FINITE_CSV},
                      "entry_flight_path_angle_deg": entry.get("flight_path_angle_deg")})
         for c in s.get("checks", []):
             rows.append({"record": "check", "source": src, "index": s["index"],

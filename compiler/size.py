@@ -102,5 +102,56 @@ def size(result: Result) -> Sizing:
     """The sizing of a priced plan (with its margins, reserve and residual)."""
     p = result.program
     craft = p.craft
-    return _size(_chain(result), craft.dry, p.reserve, craft.default_engine.exhaust_speed,
-                 craft.residual_kg, craft.residual_share, craft.propellant)
+    sizing = _size(_chain(result), craft.dry, p.reserve, craft.default_engine.exhaust_speed,
+                   craft.residual_kg, craft.residual_share, craft.propellant)
+    if p.burns == "finite" and not craft.components:
+        known = result.__dict__.get("_finite_sizing")  # `size` and its budget ask twice
+        sizing = known if known is not None else _finite(result, sizing)
+        result.__dict__["_finite_sizing"] = sizing
+    return sizing
+
+
+FINITE_ROUNDS = 8  # fixed-point rounds for a plan of finite burns (each prices the plan)
+
+
+def _finite(result: Result, sizing: Sizing) -> Sizing:
+    """A plan of finite burns sized at the load (and the dry mass) it is sized for.
+
+    A finite burn's delta-v depends on the mass (a heavier craft loses more), so the
+    backward pass over the delta-v priced at the plan's own load is exact only for that
+    load.  Priced again at the load found, and again, the load converges (each round
+    changes it by the loss's small sensitivity to the mass) to the load that flies the
+    plan exactly; the most dry mass likewise.
+    """
+    from dataclasses import replace
+
+    from .evaluate import run
+
+    p, craft = result.program, result.program.craft
+
+    def settle(start, value, at, read):
+        """The fixed point x = f(x) of f (the plan priced at ``at(x)``, sized by ``read``)
+        from f(start) = value, by secant steps on f(x) - x (f is nearly a constant)."""
+        before, was = start, value - start  # the last point and its f(x) - x
+        for _ in range(FINITE_ROUNDS):
+            if value is None or value <= 0:
+                return value
+            again = run(replace(p, craft=at(value)))
+            if not again.ok:
+                return value
+            c = again.program.craft
+            new = read(_size(_chain(again), c.dry, p.reserve,
+                             c.default_engine.exhaust_speed, c.residual_kg,
+                             c.residual_share, craft.propellant))
+            if new is None or abs(new - value) <= 1e-9 * value + 1e-7:
+                return new
+            gap = new - value
+            step = gap * (value - before) / (gap - was) if gap != was else gap
+            before, was, value = value, gap, value - step
+        return value
+
+    load = settle(craft.propellant, sizing.load, lambda x: replace(craft, propellant=x),
+                  lambda s: s.load)
+    dry_max = settle(craft.dry, sizing.dry_max, lambda x: replace(craft, dry=x),
+                     lambda s: s.dry_max)
+    return Sizing(load, dry_max, sizing.why)

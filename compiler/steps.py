@@ -264,6 +264,8 @@ class Program:
     plan: Plan | None = None
     start_span: Span | None = None
     ceiling: float | None = None  # highest apoapsis radius (km) a suggested detour may use
+    burns: str = "impulsive"  # `burns finite`: every burn flown at its engine's thrust
+    steering: str = "velocity"  # a finite burn's thrust: velocity | inertial
 
     def allowance_sums(self) -> tuple[float, float, float] | None:
         """(deterministic sum, root-sum-square of the statistical lines, their plain sum)

@@ -535,6 +535,7 @@ def _price_chunk(program: Program, n: int):
         why.append(("the start", start_fails, ~start_fails.ok))
     alive = start_fails.ok.copy()
     priced = []
+    goals = np.ones(n, dtype=bool)  # burns priced finite that meet every goal they name
     for index, step in enumerate(program.steps):
         batch, rows, fails = apply(step, index, batch, ctx)
         newly = alive & ~fails.ok
@@ -542,6 +543,14 @@ def _price_chunk(program: Program, n: int):
             why.append((step.name, fails, newly))
         alive &= fails.ok
         priced.extend(r for r in rows if r.dv is not None)
+        if ctx.finite:  # a goal a finite burn misses fails the variant like an expectation
+            from .finite_price import goals_met
+            from .legs import in_phase
+
+            here = in_phase(ctx, index) if ctx.phases else ctx  # the step's body
+            for r in rows:
+                met = goals_met(r, here.mu, here.radius)
+                goals &= True if met is None else met
     craft = program.craft
     ve = craft.default_engine.exhaust_speed
     mass, left = batch.mass, batch.propellant
@@ -564,7 +573,7 @@ def _price_chunk(program: Program, n: int):
         "dv_capacity_left_m_s": capacity * 1000.0,
         "elapsed_s": batch.t,
         "reserve_met": feasible.copy(),
-        "expectations_met": feasible & batch.expect_ok,
+        "expectations_met": feasible & batch.expect_ok & goals,
     }
     totals = {k: np.broadcast_to(v, (n,)).copy() for k, v in totals.items()}
     step_dv = np.stack([r.dv * 1000.0 for r in priced], axis=1) if priced else np.zeros((n, 0))

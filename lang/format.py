@@ -183,6 +183,8 @@ def _scene_line(stmt) -> str:
         return f'plan "{stmt.title}"'
     if isinstance(stmt, ast.Around):
         return f"around {stmt.body.text}"
+    if isinstance(stmt, ast.Setting) and stmt.word is not None:
+        return f"{stmt.key} {stmt.word.text}"
     if isinstance(stmt, ast.Setting):
         return f"{stmt.key} {'radius ' if stmt.is_radius else ''}{stmt.value.text()}"
     if isinstance(stmt, ast.Start):

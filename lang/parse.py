@@ -391,7 +391,7 @@ _NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_-]*")
 # still name things, since no name stands where they do; only an `expect` step cannot be
 # named after one of its checks (`expect c3 ...` reads the check).
 LATER_KEYWORDS = frozenset({"c3", "elapsed", "velocity", "normal", "binormal", "transverse",
-                            "frame", "leg", "trade"})
+                            "frame", "burns", "steering", "leg", "trade"})
 
 
 def _named(name: ast.Name | None, role: str) -> ast.Name | None:
@@ -408,6 +408,13 @@ def _named(name: ast.Name | None, role: str) -> ast.Name | None:
         raise PlanError(f"`{name.text}` cannot name {role}", name.span, hint=hint)
     return name
 
+
+# Plan settings that name a choice (the first is the default), and what the choices mean.
+MODEL_CHOICES = {"burns": ("impulsive", "finite"), "steering": ("velocity", "inertial")}
+MODEL_HINTS = {
+    "burns": " (impulsive velocity changes, or every burn flown at its engine's thrust)",
+    "steering": (" (a finite burn's thrust held at the impulsive burn's angle to the "
+                 "velocity, or fixed in space along it)")}
 
 FRAMES = ("rtn", "vnb")  # radial-transverse-normal, velocity-normal-binormal
 
@@ -514,6 +521,16 @@ class _ToSyntax(Transformer):
     def setting(self, meta, children):
         key = str(children[0])
         return ast.Setting(key, _checked(children[1], SLOTS[f"setting.{key}"]), _span(meta))
+
+    def model_setting(self, meta, children):
+        key, word = str(children[0]), children[-1]
+        choices = MODEL_CHOICES[key]
+        if word.text not in choices:
+            guess = did_you_mean(word.text, choices)
+            raise PlanError(f"unknown `{key}` choice `{word.text}`", word.span,
+                            hint=(f"did you mean `{guess}`? " if guess else "") + f"`{key}` is "
+                            + " or ".join(f"`{c}`" for c in choices) + MODEL_HINTS[key])
+        return ast.Setting(key, None, _span(meta), word=word)
 
     def ceiling_radius(self, meta, children):
         return ast.Setting("ceiling", _checked(children[-1], SLOTS["setting.ceiling"]),

@@ -172,9 +172,10 @@ class Setting:
     altitude) or ``ceiling radius 156378 km`` (from the centre)."""
 
     key: str
-    value: Quantity
+    value: Quantity | None
     span: Span
     is_radius: bool = False
+    word: Name | None = None  # a setting that names a choice: ``burns finite``
 
 
 @dataclass(frozen=True)

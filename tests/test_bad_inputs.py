@@ -353,6 +353,23 @@ CASES = [
     Bad("ceiling-below-start", plan(start="ceiling 100 km\n" + START), 9, 1, "ceiling",
         ("the ceiling (100 km altitude) is below the start orbit",),
         "`ceiling radius 7400 km` is from the centre"),
+    # --- finite burns (tests/test_finite.py has the physics) ---------------------------------
+    Bad("burns-unknown-choice", plan(start="burns finit\n" + START), 9, 7, "finit",
+        ("unknown `burns` choice `finit`",), "did you mean `finite`? `burns` is `impulsive` or "
+        "`finite`"),
+    Bad("steering-unknown-choice", plan(start="burns finite\nsteering prograde\n" + START),
+        10, 10, "prograde", ("unknown `steering` choice `prograde`",),
+        "`steering` is `velocity` or `inertial`"),
+    Bad("steering-without-finite-burns", plan(start="steering inertial\n" + START), 9, 1,
+        "steering inertial", ("`steering` sets the thrust direction of finite burns",),
+        "add `burns finite`"),
+    Bad("burns-given-twice", plan(start="burns finite\nburns impulsive\n" + START), 10, 1,
+        "burns impulsive", ("`burns` is given twice",), "keep one"),
+    Bad("finite-burn-a-spiral", plan("burn a: apoapsis to 30000 km using trim",
+                                     start="burns finite\n" + START), 11, 1, "burn a",
+        ("a: flown as a finite burn of 20 N", "within 720 deg of thrust arc",
+         "a low-thrust spiral"),
+        "price this plan's burns impulsive (`burns impulsive`)"),
     # --- phasing, places and the way down to an entry ----------------------------------------
     Bad("phasing-under-the-surface", plan(HOP := "transfer hop: phase 180 deg in 1 rev"),
         10, 1, "transfer hop", ("hop:", "needs a phasing orbit of period",

@@ -12,6 +12,7 @@ from .expectations import (
     propellant_exhausted,
     reserve_not_covered,
 )
+from .finite import finite_burn
 from .ordering import cheaper_order
 from .planes import costlier_node, plane_change_at_speed, shared_plane_change
 from .transfers import bi_elliptic_cheaper, hohmann_cheaper, three_burn_plane_change
@@ -31,10 +32,11 @@ RULES = (
     three_burn_plane_change,
     cancelling_burns,
     long_burn,
+    finite_burn,
 )
 
 BY_NAME = {r.rule_name: r for r in RULES}
 
 # What `run` reports on its own: the plan measured against itself, no search.
 CONSISTENCY = (propellant_exhausted, expectation_not_met, reserve_not_covered,
-               beyond_sphere_of_influence, long_burn)
+               beyond_sphere_of_influence, long_burn, finite_burn)

@@ -156,12 +156,14 @@ def long_burn(c: Checker) -> list[Finding]:
     60 deg of arc the number should not be used for sizing: a burn held in one
     direction over an arc a of a circle keeps only the mean of cos over it,
     sin(a/2)/(a/2), about 95.5 % of its delta-v at 60 deg (our own estimate), a loss
-    the size of a usual margin.
+    the size of a usual margin.  A plan with `burns finite` prices its burns as finite
+    burns (the gravity loss is in the budget); the rule says nothing of those.
     """
     out = []
     rows = [row for row in c.result.rows
             if row.kind == "burn" and row.burn_time is not None and row.v_before is not None
-            and float(row.burn_time[0]) > 0]
+            and float(row.burn_time[0]) > 0
+            and row.dv_impulsive is None]  # a burn priced finite is no approximation
     if not rows:
         return out
     arcs, oks = np.zeros(len(rows)), np.zeros(len(rows), dtype=bool)

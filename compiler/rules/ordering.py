@@ -49,14 +49,18 @@ def cheaper_order(c: Checker) -> list[Finding]:
     windows of 8) or past the time limit the finding says the search was bounded or cut
     short, and a bounded search that finds nothing says so too.  Typical catch: a plane
     change flown in a low
-    orbit before the apoapsis is raised, where the craft is fastest.
+    orbit before the apoapsis is raised, where the craft is fastest.  In a plan with
+    `burns finite` the search ranks orders in the impulsive model (a finite burn is too
+    dear to price thousands of times) and the order it finds is proven with finite
+    burns, like every finding.
     """
     out, proposals = [], []
+    search = _impulsive(c)
     for block in blocks(c.program):
         if c.budget.expired():
             c.budget.cut("cheaper-order")
             break
-        pinned = _pinned(c, block)
+        pinned = _pinned(search, block)
         res = search_block(pinned.program, block, start=pinned.state_before(block[0]),
                            end=pinned.state_after(block[-1]), budget=c.budget)
         if res is None:
@@ -80,6 +84,25 @@ def cheaper_order(c: Checker) -> list[Finding]:
                               f"flying {', '.join(names)} as {', '.join(new)} saves "
                               f"{saving_text(proof)}", proof, notes=(scope,))))
     return out + c.findings_of("cheaper-order", proposals)
+
+
+def _impulsive(c: Checker) -> Checker:
+    """The checker the search runs on: with `burns finite` the plan priced impulsive.
+
+    A finite burn costs several integrations of its thrust arc, too slow for the tens of
+    thousands of partial orders a search prices, so the search ranks orders in the
+    impulsive model and the order it finds is proven like every finding: the rewritten
+    plan (still `burns finite`) priced by the evaluator, finite burns and all.
+    """
+    if c.program.burns != "finite":
+        return c
+    from dataclasses import replace
+
+    from ..evaluate import run
+
+    program = replace(c.program, burns="impulsive")
+    result = run(program)
+    return Checker(program, result, c.budget) if result.ok else c
 
 
 def _scope(res) -> str:
