@@ -179,13 +179,21 @@ class Context:
     descent_from: int | None = None  # see Program.descent_from
     entry_radius: float | None = None  # the interface of the plan's `entry`, km
     interface: float | None = None  # set on the way down (``apply``): coasts stay above it
+    drift: object | None = None  # a ``j2.Drift`` under `gravity j2`: coasts drift secularly
+    j2: float | None = None  # the body's J2 (for sun-synchronous goals in either model)
 
 
 def context_for(program: Program) -> Context:
     end = program.steps[-1] if program.steps else None
+    drift = None
+    if program.gravity == "j2":
+        from .j2 import Drift
+
+        drift = Drift(program.body.gm, program.body.radius, program.body.j2)
     return Context(program.body.gm, program.body.radius, program.craft.default_engine,
                    program.margin, program.statistical_scale, program.descent_from,
-                   end.radius if isinstance(end, Entry) else None)
+                   end.radius if isinstance(end, Entry) else None, drift=drift,
+                   j2=program.body.j2)
 
 
 def descending(ctx: Context, index: int) -> Context:
@@ -273,14 +281,20 @@ def _radius_angle(place: Place, r, v, mu, fails: Failures, body_radius: float):
     return np.where(np.isfinite(d), d, 0.0)
 
 
-def goto(place: Place, r, v, mu, fails: Failures, sweep=None, radius: float = 0.0):
+def goto(place: Place, r, v, mu, fails: Failures, sweep=None, radius: float = 0.0,
+         drift=None):
     """Coast to ``place``; returns (r, v, seconds).
 
     A ``crossing`` is resolved by the caller, who knows the plane: ``sweep`` is the angle
-    to it, per element.  ``radius`` (the body's) words the messages in altitudes.
+    to it, per element (under drift an ``Aim``, which finds it again on a turned orbit).
+    ``radius`` (the body's) words the messages in altitudes; ``drift`` (a ``j2.Drift``)
+    makes the coast drift secularly, reaching the place of the drifted orbit.
     """
     if place.kind == "here":
         return r, v, np.zeros(r.shape[0])
+    aim = sweep if isinstance(sweep, Aim) else None
+    if aim is not None:
+        sweep = aim.angle
     f = frame(r, v, mu)  # shared by the three below
     if place.kind == "crossing":  # exact geometry: no snapping of small angles to here
         d = np.where(sweep > TWO_PI - 1e-15, 0.0, sweep)
@@ -288,14 +302,40 @@ def goto(place: Place, r, v, mu, fails: Failures, sweep=None, radius: float = 0.
         d = _target_angle(place, r, v, mu, fails, radius, f)
     if not d.any():  # already there, every element: no coast
         return r, v, np.zeros(r.shape[0])
-    dt, ok_t = kepler.time_of_flight(r, v, mu, d, f)
-    r1, v1, ok_p = kepler.place(r, v, mu, d, f)
-    fails.add(~(ok_t & ok_p), lambda i: (
+    if drift is not None:
+        if aim is not None:
+            again = aim.again
+        elif place.kind == "crossing":  # pragma: no cover - callers under drift give an Aim
+            raise ValueError("a crossing under drift needs an Aim")
+        else:
+            again = lambda rr, vv: (_target_angle(place, rr, vv, mu, Failures(rr.shape[0]),
+                                                  radius),)
+        r1, v1, dt, good = drift.goto(r, v, d, again)
+    else:
+        dt, ok_t = kepler.time_of_flight(r, v, mu, d, f)
+        r1, v1, ok_p = kepler.place(r, v, mu, d, f)
+        good = ok_t & ok_p
+    fails.add(~good, lambda i: (
         f"the craft never reaches {place.label()} on this open orbit",
         "burn here or at a point ahead of the craft"))
-    good = ok_t & ok_p
     return (np.where(good[:, None], r1, r), np.where(good[:, None], v1, v),
             np.where(good, dt, 0.0))
+
+
+@dataclass(frozen=True)
+class Aim:
+    """The sweep to a crossing, and how to find it again from a state on a turned orbit
+    (``again(r, v)`` gives the candidate sweeps; the nearest to the last is taken)."""
+
+    angle: np.ndarray
+    again: object
+
+
+def _aims(ctx: Context, first, second, again):
+    """The two crossings as they are (point-mass) or as ``Aim`` (under drift)."""
+    if ctx.drift is None:
+        return first, second
+    return Aim(first, again), Aim(second, again)
 
 
 # --- burns ---------------------------------------------------------------------------
@@ -314,6 +354,8 @@ class BurnOutcome:
 def _solve_burn(step: Burn, r, v, ctx: Context, fails: Failures, normal=None):
     """Velocity after the burn at the current position."""
     mu = ctx.mu
+    if step.sun_synchronous and normal is None:
+        return _sun_synchronous_burn(step, r, v, ctx, fails)
     if step.vector is not None:
         return v + frames.inertial(step.frame, r, v, step.vector)
     rmag = norm(r)
@@ -347,10 +389,44 @@ def _solve_burn(step: Burn, r, v, ctx: Context, fails: Failures, normal=None):
     return np.where(fails.ok[:, None], v_new, v)
 
 
+def _sun_synchronous_burn(step: Burn, r, v, ctx: Context, fails: Failures):
+    """A burn to the sun-synchronous inclination of the orbit it makes: the inclination
+    depends on that orbit's size and shape, which (through the plane's turn) may depend
+    on the inclination, so the two are iterated to a fixed point (they contract fast:
+    the inclination moves with p^3.5)."""
+    from .j2 import sun_synchronous
+
+    plain = replace(step, sun_synchronous=False)
+    orbit = lambda vv: elements_from_state(r, vv, ctx.mu)
+    el = orbit(v)
+    inc = sun_synchronous(ctx.mu, ctx.radius, ctx.j2, el.sma, np.minimum(el.ecc, 0.999))
+    for _ in range(30):
+        scratch = Failures(r.shape[0])
+        ok = np.isfinite(inc)
+        normal = normal_for(r, v, np.where(ok, inc, 0.0), step.raan, scratch)
+        el = orbit(_solve_burn(plain, r, v, ctx, scratch, normal))
+        closed = el.closed & (el.sma > 0)
+        new = np.where(closed, sun_synchronous(ctx.mu, ctx.radius, ctx.j2,
+                                               np.where(closed, el.sma, 1.0),
+                                               np.where(closed, el.ecc, 0.0)), np.nan)
+        settled = np.all(~np.isfinite(new) | (np.abs(new - inc) <= 1e-14))
+        inc = new
+        if settled:
+            break
+    bad = ~np.isfinite(inc)
+    fails.add(bad, lambda i: (
+        (f"the orbit after the burn (sma {el.sma[i]:.3f} km, eccentricity {el.ecc[i]:.6f}) "
+         "has no sun-synchronous inclination: it is open, or too high for any "
+         "inclination's node drift to match the Sun's"),
+        "lower the orbit first, or give the inclination in degrees"))
+    normal = normal_for(r, v, np.where(bad, el.inclination, inc), step.raan, fails)
+    return _solve_burn(plain, r, v, ctx, fails, normal)
+
+
 def _burn_at(step: Burn, place: Place, r, v, ctx: Context, normal=None,
              sweep=None) -> BurnOutcome:
     fails = Failures(r.shape[0])
-    r1, v1, coast = goto(place, r, v, ctx.mu, fails, sweep, ctx.radius)
+    r1, v1, coast = goto(place, r, v, ctx.mu, fails, sweep, ctx.radius, ctx.drift)
     v2 = _solve_burn(step, r1, v1, ctx, fails, normal)
     return BurnOutcome(r1, v1, v2, coast, fails, place.label())
 
@@ -385,7 +461,9 @@ def burn_outcome(step: Burn, r, v, ctx: Context, normal=None) -> BurnOutcome:
     if step.place.kind == "crossing" and step.argp is not None:
         return _apse_crossing(step, r, v, ctx, normal)
     if step.place.kind == "crossing":
-        first, second = crossings(r, v, target_plane(r, v, step.inclination, step.raan))
+        target = target_plane(r, v, step.inclination, step.raan)
+        first, second = _aims(ctx, *crossings(r, v, target),
+                              lambda rr, vv: crossings(rr, vv, target))
         return _cheaper(_burn_at(step, step.place, r, v, ctx, normal, first),
                         _burn_at(step, step.place, r, v, ctx, normal, second))
     return _burn_at(step, step.place, r, v, ctx, normal)
@@ -404,6 +482,8 @@ def _apse_crossing(step: Burn, r, v, ctx: Context, normal=None) -> BurnOutcome:
         ("the two orbits cross only behind the craft or beyond the asymptote of this open "
          "orbit"),
         "turn the apse line on the way in (before periapsis), or change the shape first"))
+    first, second = _aims(ctx, first, second, lambda rr, vv: conic_goals.apse_crossings(
+        rr, vv, ctx.mu, p2, e2, step.argp, Failures(rr.shape[0]), ctx.radius))
     out = _cheaper(_burn_at(step, step.place, r, v, ctx, normal, first),
                    _burn_at(step, step.place, r, v, ctx, normal, second))
     found.merge(np.ones(r.shape[0], dtype=bool), out.fails)
@@ -561,6 +641,14 @@ def _phase_burns(step: Transfer, r, v, ctx: Context):
 
 
 def _transfer(step: Transfer, index: int, batch: Batch, ctx: Context, fails: Failures):
+    if ctx.drift is not None and step.raan is not None:
+        # the node moves while the transfer orbit is flown: no fixed plane to arrive in
+        fails.add(np.ones(batch.size, dtype=bool), lambda i: (
+            ("under `gravity j2` the node drifts during a transfer, so a transfer cannot "
+             "arrive in a fixed plane with `raan to`"),
+            ("transfer with `inclination to` alone, then turn the node with a burn `at "
+             "crossing: raan to ...`")))
+        return batch, []
     if step.place.kind in ("node", "crossing"):
         # price the whole transfer from each node (crossing) and keep the cheaper per element
         if step.place.kind == "node":
@@ -568,7 +656,8 @@ def _transfer(step: Transfer, index: int, batch: Batch, ctx: Context, fails: Fai
                     for kind in ("ascending node", "descending node")]
         else:
             target = target_plane(batch.r, batch.v, step.inclination, step.raan)
-            ways = [(step, d) for d in crossings(batch.r, batch.v, target)]
+            ways = [(step, d) for d in _aims(ctx, *crossings(batch.r, batch.v, target),
+                                             lambda rr, vv: crossings(rr, vv, target))]
         results = []
         for way, sweep in ways:
             sub = Failures(batch.size)
@@ -619,7 +708,7 @@ def _transfer_from(step: Transfer, index: int, batch: Batch, ctx: Context, fails
     if step.form == "plane-change":
         return _three_burn_plane_change(step, index, batch, ctx, fails, sweep)
     r0, v0, _ = goto(step.place, batch.r, batch.v, ctx.mu, Failures(batch.size), sweep,
-                     ctx.radius)
+                     ctx.radius, ctx.drift)
     up, phases = _phase_burns(step, r0, v0, ctx)
     normals = [None] * len(phases)
     if step.changes_plane:
@@ -633,6 +722,13 @@ def _transfer_from(step: Transfer, index: int, batch: Batch, ctx: Context, fails
             normals = _split_normals(r0, v0, target, share)
         else:
             normals = [None, target, None]  # all of it at the bi-elliptic's far apoapsis
+        if ctx.drift is not None:
+            # the orbit drifts between the burns: the burn that finishes the plane change
+            # turns about its own radius to the goal's inclination (no raan goal here)
+            last = len(phases) - 1 if step.form == "hohmann" else 1
+            phases[last] = tuple(replace(b, inclination=step.inclination)
+                                 for b in phases[last])
+            normals[last] = None
     rows = []
     for k, ((b_up, b_down), normal) in enumerate(zip(phases, normals)):
         first = sweep if k == 0 else None
@@ -711,7 +807,7 @@ def _three_burn_plane_change(step: Transfer, index, batch: Batch, ctx: Context, 
     both apsides of the orbit the craft started from (the apse line may have turned).
     """
     tmp = Failures(batch.size)
-    r0, v0, _ = goto(step.place, batch.r, batch.v, ctx.mu, tmp, sweep, ctx.radius)
+    r0, v0, _ = goto(step.place, batch.r, batch.v, ctx.mu, tmp, sweep, ctx.radius, ctx.drift)
     el = elements_from_state(r0, v0, ctx.mu)
     circular = el.ecc < CIRCULAR_ECC
     keep_pe = np.where(circular, norm(r0), el.periapsis)
@@ -759,12 +855,15 @@ def _span_text(seconds: float) -> str:
 def _coast(step: Coast, index: int, batch: Batch, ctx: Context, fails: Failures):
     mu = ctx.mu
     if step.mode == "for":
-        r, v, ok = kepler.propagate(batch.r, batch.v, mu, np.full(batch.size, step.duration))
+        move = kepler.propagate if ctx.drift is None else (
+            lambda r, v, mu, dt: ctx.drift.propagate(r, v, dt))
+        r, v, ok = move(batch.r, batch.v, mu, np.full(batch.size, step.duration))
         fails.add(~ok, lambda i: ("the coast could not be propagated", None))
         dt = np.full(batch.size, step.duration)
         at = f"for {_span_text(step.duration)}"
     elif step.mode == "to":
-        r, v, dt = goto(step.place, batch.r, batch.v, mu, fails, radius=ctx.radius)
+        r, v, dt = goto(step.place, batch.r, batch.v, mu, fails, radius=ctx.radius,
+                         drift=ctx.drift)
         at = step.place.label()
     else:
         el = elements_from_state(batch.r, batch.v, mu)
@@ -773,12 +872,16 @@ def _coast(step: Coast, index: int, batch: Batch, ctx: Context, fails: Failures)
             "coast `for` a time instead"))
         period = np.where(el.closed, el.period, 0.0)
         part = step.revs - np.floor(step.revs)  # whole revolutions come back here
-        if part > 0:
+        if ctx.drift is not None:  # anomalistic periods of the drifting orbit
+            r, v, dt, ok = ctx.drift.whole_revs(batch.r, batch.v, step.revs)
+            fails.add(~ok & el.closed, lambda i: ("the coast could not be propagated", None))
+        elif part > 0:
             r, v, ok = kepler.propagate(batch.r, batch.v, mu, period * part)
             fails.add(~ok, lambda i: ("the coast could not be propagated", None))
         else:
             r, v = batch.r, batch.v
-        dt = period * step.revs
+        if ctx.drift is None:
+            dt = period * step.revs
         at = f"{step.revs:g} rev"
     if ctx.interface is not None:  # on the way down: the coast must end above the interface
         from .entry import before_interface
@@ -823,6 +926,8 @@ def measure(kind: str, batch: Batch, ctx: Context, el=None) -> np.ndarray:
         return batch.mass if kind == "mass" else batch.propellant
     if kind == "elapsed":
         return batch.t
+    if kind == "raan drift":  # the secular J2 node rate (lowering asks for `gravity j2`)
+        return ctx.drift.rates(batch.r, batch.v).raan
     el = elements_from_state(batch.r, batch.v, ctx.mu) if el is None else el
     if kind in ("vinf", "c3"):  # c3 = v^2 - 2 mu / r = 2 energy; vinf^2 = c3 (open orbits)
         c3 = 2.0 * el.energy

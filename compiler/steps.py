@@ -125,12 +125,14 @@ class Burn:
     energy_goal: str | None = None  # the goal that named it, for messages
     ecc: float | None = None  # target eccentricity
     argp: float | None = None  # rad: rotate the apse line to this argument of periapsis
+    sun_synchronous: bool = False  # `inclination to sun-synchronous`: for the orbit after it
     frame: str = "vnb"  # the frame of ``vector`` and of the reported components: vnb | rtn
     kind: str = field(default="burn", init=False)
 
     @property
     def changes_plane(self) -> bool:
-        return self.inclination is not None or self.raan is not None or self.normal is not None
+        return (self.inclination is not None or self.raan is not None or self.normal is not None
+                or self.sun_synchronous)
 
     @property
     def changes_shape(self) -> bool:
@@ -264,6 +266,8 @@ class Program:
     plan: Plan | None = None
     start_span: Span | None = None
     ceiling: float | None = None  # highest apoapsis radius (km) a suggested detour may use
+    gravity: str = "point-mass"  # the model of the coasts: point-mass | j2 (secular drift)
+    drift_limit: float | None = None  # s: the longest wait a drift route may take
 
     def allowance_sums(self) -> tuple[float, float, float] | None:
         """(deterministic sum, root-sum-square of the statistical lines, their plain sum)

@@ -127,7 +127,7 @@ def canonical(node):
 
 
 def _value(v) -> str:
-    if isinstance(v, ast.Quantity):
+    if isinstance(v, ast.Quantity | ast.SunSynchronous):
         return v.text()
     if isinstance(v, ast.Distance):
         return ("radius " if v.is_radius else "") + v.quantity.text()
@@ -184,6 +184,9 @@ def _scene_line(stmt) -> str:
     if isinstance(stmt, ast.Around):
         return f"around {stmt.body.text}"
     if isinstance(stmt, ast.Setting):
+        if stmt.key in ("gravity", "drift"):
+            return {"gravity": f"gravity {_value(stmt.value)}",
+                    "drift": f"drift at most {_value(stmt.value)}"}[stmt.key]
         return f"{stmt.key} {'radius ' if stmt.is_radius else ''}{stmt.value.text()}"
     if isinstance(stmt, ast.Start):
         return " ".join(["start" if stmt.form == "circular" else "start orbit",

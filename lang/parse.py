@@ -239,6 +239,7 @@ def _slots() -> dict[str, Slot]:
         "setting.margin": Slot("margin", "ratio", NOT_NEGATIVE),
         "setting.reserve": Slot("reserve", "speed", NOT_NEGATIVE),
         "setting.ceiling": Slot("ceiling", "length", POSITIVE),
+        "setting.drift": Slot("drift at most", "time", POSITIVE),
         "start.circular": Slot("start circular", "length"),
         "start.periapsis": Slot("start periapsis", "length"),
         "start.apoapsis": Slot("start apoapsis", "length"),
@@ -279,7 +280,8 @@ def _slots() -> dict[str, Slot]:
                "raan": ("angle", ""), "argp": ("angle", ""), "period": ("time", POSITIVE),
                "mass": ("mass", NOT_NEGATIVE), "propellant": ("mass", NOT_NEGATIVE),
                "vinf": ("speed", NOT_NEGATIVE), "c3": ("specific energy", ""),
-               "elapsed": ("time", NOT_NEGATIVE), "anomaly": ("angle", "")}
+               "elapsed": ("time", NOT_NEGATIVE), "anomaly": ("angle", ""),
+               "raan drift": ("angular rate", "")}
     for kind, (dimension, sign) in checked.items():
         slots[f"expect.{kind}"] = Slot(f"expect {kind}", dimension, sign)
         slots[f"tolerance.{kind}"] = Slot(f"expect {kind} tolerance", dimension, NOT_NEGATIVE)
@@ -388,7 +390,7 @@ _NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_-]*")
 # still name things, since no name stands where they do; only an `expect` step cannot be
 # named after one of its checks (`expect c3 ...` reads the check).
 LATER_KEYWORDS = frozenset({"c3", "elapsed", "velocity", "normal", "binormal", "transverse",
-                            "frame"})
+                            "frame", "gravity", "drift", "sun-synchronous"})
 
 
 def _named(name: ast.Name | None, role: str) -> ast.Name | None:
@@ -405,6 +407,8 @@ def _named(name: ast.Name | None, role: str) -> ast.Name | None:
         raise PlanError(f"`{name.text}` cannot name {role}", name.span, hint=hint)
     return name
 
+
+GRAVITY_MODELS = ("point-mass", "j2")  # `gravity MODEL`: the model of every coast
 
 FRAMES = ("rtn", "vnb")  # radial-transverse-normal, velocity-normal-binormal
 
@@ -511,6 +515,27 @@ class _ToSyntax(Transformer):
     def setting(self, meta, children):
         key = str(children[0])
         return ast.Setting(key, _checked(children[1], SLOTS[f"setting.{key}"]), _span(meta))
+
+    def gravity_setting(self, meta, children):
+        name = children[-1]
+        if name.text not in GRAVITY_MODELS:
+            guess = did_you_mean(name.text, GRAVITY_MODELS)
+            raise PlanError(f"unknown gravity model `{name.text}`", name.span,
+                            hint=(f"did you mean `{guess}`? " if guess else "") +
+                            "the models are `point-mass` (two-body, the default) and `j2` "
+                            "(secular drift of the node and apse line from the body's J2)")
+        return ast.Setting("gravity", name, _span(meta))
+
+    def drift_limit(self, meta, children):
+        return ast.Setting("drift", _checked(children[-1], SLOTS["setting.drift"]), _span(meta))
+
+    def sun_synchronous(self, meta, children):
+        return ast.Field("inclination", ast.SunSynchronous(_token_span(children[-1])),
+                         _span(meta))
+
+    def sun_synchronous_goal(self, meta, children):
+        return ast.Goal("inclination", ast.SunSynchronous(_token_span(children[-1])),
+                        _span(meta))
 
     def ceiling_radius(self, meta, children):
         return ast.Setting("ceiling", _checked(children[-1], SLOTS["setting.ceiling"]),
@@ -642,6 +667,9 @@ class _ToSyntax(Transformer):
         return children[0]
 
     value_kind = distance_kind
+
+    def drift_kind(self, meta, children):
+        return "raan drift"
 
     def tolerance(self, meta, children):
         return children[0]
