@@ -19,6 +19,12 @@ CAUTION = ("Preliminary-design estimates under the impulsive two-body approximat
            "confirm with high-fidelity analysis and the responsible flight-dynamics "
            "authority before committing a mission to them.")
 
+CAUTION_J2 = ("Preliminary-design estimates: impulsive burns and two-body motion with the "
+              "secular first-order J2 drift of the node, apse line and mean motion (no "
+              "short-period terms, drag or third bodies); confirm with high-fidelity analysis "
+              "and the responsible flight-dynamics authority before committing a mission to "
+              "them.")
+
 
 def finite(x, digits: int | None = None):
     """A float for output, or None where it is not finite."""
@@ -307,7 +313,7 @@ def budget(result: Result) -> dict:
         "steps": steps,
         "totals": totals,
         "findings": [],
-        "caution": CAUTION,
+        "caution": CAUTION if p.gravity == "point-mass" else CAUTION_J2,
     }
     if result.error is not None:
         err = result.error

@@ -442,8 +442,8 @@ class Checker:
             return None
         from .reorder import orientation_matters, same_orbit  # proofs only, not `run`
 
-        same = same_orbit(final, self.result.final, program.body.gm,
-                          orientation_matters(self.program))
+        final_, ref = at_same_time(program, final, self.result.final)
+        same = same_orbit(final_, ref, program.body.gm, orientation_matters(self.program))
         if not bool(same[0]):
             return None
         saves_dv = self.dv_with_margin - float(final.dv_margin[0]) * 1000.0
@@ -511,6 +511,29 @@ class Checker:
             n=1))
         return Finding(rule, severity, tuple(steps), message, proof.saves_m_s, proof.saves_kg,
                        proof.text, diff, tuple(notes))
+
+
+def at_same_time(program: Program, a: Batch, ref: Batch) -> tuple[Batch, Batch]:
+    """Two final states compared at the same moment: under `gravity j2` every orbit's
+    node and apse line keep drifting, so the one that ends sooner coasts on (as its
+    plan left it) to the other's end before the two orbits are compared; in the
+    point-mass model the orbit does not change while coasting, and both are as given."""
+    if program.gravity != "j2":
+        return a, ref
+    from .j2 import Drift
+
+    drift = Drift(program.body.gm, program.body.radius, program.body.j2)
+    gap = a.t - ref.t  # (B,) against the single reference
+
+    def coasted(b: Batch, dt) -> Batch:
+        r, v, ok = drift.propagate(b.r, b.v, np.maximum(dt, 0.0))
+        return replace(b, r=np.where(ok[:, None], r, b.r), v=np.where(ok[:, None], v, b.v),
+                       t=b.t + np.maximum(dt, 0.0))
+
+    size = a.size
+    ref_b = Batch(*(np.repeat(getattr(ref, f), size, axis=0) for f in
+                    ("r", "v", "mass", "propellant", "t", "dv", "dv_margin", "expect_ok")))
+    return coasted(a, -gap), coasted(ref_b, gap)
 
 
 def _plain(x):
