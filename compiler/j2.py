@@ -74,7 +74,7 @@ def raan_rate(mu: float, radius: float, j2: float, a, e, i):
     >>> import numpy as np
     >>> w = raan_rate(398600.4418, 6378.1366, 0.0010826359, 7000.0, 0.0, np.radians(28.5))
     >>> round(float(np.degrees(w) * 86400), 3)
-    -6.516
+    -6.323
     """
     a, e, i = np.asarray(a, float), np.asarray(e, float), np.asarray(i, float)
     n = np.sqrt(mu / a**3)

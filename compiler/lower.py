@@ -191,8 +191,8 @@ class Lowerer:
         inc = float(secular.sun_synchronous(body.gm, body.radius, j2, a, e))
         if not np.isfinite(inc):
             top = secular.highest_sun_synchronous(body.gm, body.radius, j2, e)
-            rate = float(np.degrees(-secular.raan_rate(body.gm, body.radius, j2, a, e,
-                                                       np.pi)) * 86400)
+            rate = float(np.degrees(secular.raan_rate(body.gm, body.radius, j2, a, e,
+                                                      np.pi)) * 86400)
             raise _err(f"no inclination makes this orbit sun-synchronous: at sma {a:.3f} km "
                        f"(eccentricity {e:.6f}) even a retrograde equatorial orbit's node "
                        f"drifts only {rate:.6f} deg/d, less than the Sun's "
