@@ -19,8 +19,8 @@ CAUTION = ("Preliminary-design estimates under the impulsive two-body approximat
            "confirm with high-fidelity analysis and the responsible flight-dynamics "
            "authority before committing a mission to them.")
 
-CAUTION_J2 = ("Preliminary-design estimates: impulsive burns and two-body motion with the "
-              "secular first-order J2 drift of the node, apse line and mean motion (no "
+CAUTION_J2 = ("Preliminary-design estimates under the impulsive two-body approximation with "
+              "the secular first-order J2 drift of the node, apse line and mean motion (no "
               "short-period terms, drag or third bodies); confirm with high-fidelity analysis "
               "and the responsible flight-dynamics authority before committing a mission to "
               "them.")

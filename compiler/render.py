@@ -244,7 +244,7 @@ def fit_lines(report: dict) -> list[str]:
 def model_note(report: dict) -> str:
     """What the heading adds for a plan priced with another gravity model than the
     point-mass default (whose caution already says two-body)."""
-    return " (gravity j2: secular drift)" if report.get("gravity") == "j2" else ""
+    return " (gravity j2)" if report.get("gravity") == "j2" else ""
 
 
 def screen(report: dict, columns: str | None = None) -> list[tuple]:
