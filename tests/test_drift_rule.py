@@ -132,3 +132,30 @@ def test_check_in_a_subprocess_shape(capsys, tmp_path):
     assert code in (0, 1)
     assert np.isfinite([f["saves_m_s"] for p in doc["plans"] for f in p["findings"]
                         if f["saves_m_s"] is not None]).all()
+
+
+def test_a_near_polar_plan_drifts_in_inclination():
+    # The node rate goes as cos i: near the pole a small tilt changes it more cheaply
+    # than a change of altitude (to first order the altitude route costs tan i / 7 of
+    # the tilt route: our own estimate from the rate formula), so the tilt route wins.
+    text = HEAD + "drift at most 200 d\n" + PLAN.replace("53 deg", "87 deg").replace(
+        "raan to 25 deg", "raan to 12 deg")
+    program, found = findings(text)
+    assert len(found) == 1
+    f = found[0]
+    assert "deg inclination" in f.message
+    assert "shift-drift-tilt at node: inclination to" in f.suggestion
+    mine, theirs = run(program), run(load_text(f.suggestion))
+    gap = float(theirs.final.t[0] - mine.final.t[0])
+    r, v, _ = Drift(MU, RE, J2).propagate(mine.final.r, mine.final.v, gap)
+    assert elements_from_state(theirs.final.r, theirs.final.v, MU).raan[0] == \
+        pytest.approx(elements_from_state(r, v, MU).raan[0], abs=1e-7)
+    # the drift inclination: the differential rate, from the classical formula, makes
+    # the 2 deg over the wait
+    line = next(x for x in f.suggestion.splitlines() if "drift-tilt" in x)
+    tilt = float(line.split("inclination to ")[1].split(" deg")[0])
+    wait = float(next(x for x in f.suggestion.splitlines() if x.startswith("coast shift-drift "))
+                 .split("for ")[1].split(" s")[0])
+    a = RE + 1200.0
+    differential = node_rate(a, tilt) - node_rate(a, 87.0)
+    assert differential * wait == pytest.approx(math.radians(2.0), rel=0.01)

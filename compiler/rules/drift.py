@@ -3,25 +3,38 @@
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
 
 from ..check import Checker, Finding, at_same_time, rule, saving_text
 from ..evaluate import run
-from ..j2 import Drift
-from ..state import CIRCULAR_ECC, TWO_PI, elements_from_state
+from ..load import load_text
+from ..state import TWO_PI, elements_from_state
 from ..steps import Burn
 from ..textfmt import duration
 
 DEFAULT_WAIT = 365.25 * 86400.0  # s: the longest drift offered when the plan sets none
 FLOOR = 1.03  # the lowest drift orbit, in body radii (no drag is modelled)
 FILL = 0.98  # the share of the allowed wait the drift orbit is sized for
-SECANT = 6  # evaluator passes that tune the wait until the node comes out exact
+SECANT = 8  # evaluator passes that tune the wait until the node comes out exact
+NODE_TOL = 1e-7  # rad: the rewritten plan's final node against the plan's own
+
+
+@dataclass(frozen=True)
+class Route:
+    """A drift route: the rewritten plan text, its wait (s) and what it drifts in."""
+
+    text: str
+    wait: float
+    where: str  # "at 1377.8 km altitude" / "at 61.2 deg inclination"
+    legs: str  # what the route's burns are, for the message
 
 
 def _node_burns(c: Checker):
-    """(index, step) of goal burns that change only the node (`raan to`, alone or with
-    the inclination the orbit already has) from a circular closed orbit."""
+    """(index, step, orbit elements at the burn) of goal burns that change only the node
+    (`raan to`, alone or with the inclination the orbit already has) of a circular
+    closed orbit."""
     mu = c.program.body.gm
     for i, step in enumerate(c.program.steps):
         if not (isinstance(step, Burn) and step.vector is None and step.raan is not None):
@@ -30,111 +43,88 @@ def _node_burns(c: Checker):
             continue
         row = c.rows_of(i)[0]
         el = elements_from_state(row.after.r, row.v_before, mu)
-        if not (el.closed[0] and el.ecc[0] < 1e-7):
+        if not (el.closed[0] and el.ecc[0] < 1e-7) or el.equatorial[0]:
             continue
         if step.inclination is not None and abs(step.inclination - el.inclination[0]) > 1e-9:
             continue
-        yield i, step
-
-
-def _raan_gap(program, final, ref) -> float:
-    """The node of ``final`` less that of ``ref``, at the same moment, in (-pi, pi]."""
-    a, b = at_same_time(program, final, ref)
-    mu = program.body.gm
-    ea, eb = elements_from_state(a.r, a.v, mu), elements_from_state(b.r, b.v, mu)
-    return float(np.mod(ea.raan[0] - eb.raan[0] + np.pi, TWO_PI) - np.pi)
+        yield i, step, row
 
 
 @rule("drift-node-change")
 def drift_node_change(c: Checker) -> list[Finding]:
-    """A node change flown by a burn, where waiting in a lower or higher orbit would let
-    J2 turn the node for free (plans under `gravity j2`).
+    """A node change flown by a burn, where waiting in an orbit of another size or
+    inclination would let J2 turn the node for free (plans under `gravity j2`).
 
     J2 turns the node of an orbit at a rate that falls with its size (as a^-3.5) and
-    with cos i, so two orbits of different altitude drift apart in node.  Constellations
-    place their planes this way: one launch, then each craft waits in a drift orbit
-    until the differential drift has opened its node, and climbs to the common
-    altitude.  For a burn that changes only the node of a circular orbit, the rule
-    prices the route down (or up) by a Hohmann transfer, a coast while the drift
-    accumulates, and a Hohmann transfer back, sized so that the wait fills the plan's
-    `drift at most` (a year when it sets none); the proof compares the two plans'
-    final orbits at the same moment, since every node keeps drifting.  The finding
-    gives the cost, the saving and the time the drift takes.
+    with cos i, so two orbits of different altitude or inclination drift apart in
+    node.  Constellations place their planes this way: one launch, then each craft
+    waits in a drift orbit until the differential drift has opened its node, and
+    climbs to the common orbit.  For a burn that changes only the node of a circular
+    orbit, the rule prices four routes: down or up by a Hohmann transfer, a coast while
+    the drift accumulates, and a Hohmann transfer back; or a tilt of the inclination at
+    a node, the coast, and the tilt back.  Each drift orbit is sized so the wait fills
+    the plan's `drift at most` (a year when it sets none), and the wait is tuned on the
+    evaluator until the plan ends in its own plane.  The proof compares the two plans'
+    final orbits at the same moment, since every node keeps drifting.  The finding gives
+    the cost, the saving and the time the drift takes.
     """
     if c.program.gravity != "j2" or not c.program.body.j2:
         return []
-    body = c.program.body
-    drift = Drift(body.gm, body.radius, body.j2)
     limit = c.program.drift_limit or DEFAULT_WAIT
     out = []
-    for i, step in _node_burns(c):
+    for i, step, row in _node_burns(c):
         if c.budget.expired():
             c.budget.cut("drift-node-change")
             break
-        best = None
-        for down in (True, False):
-            proposal = _route(c, i, step, drift, limit, down)
-            if proposal is None:
-                continue
-            text, wait, alt = proposal
-            proof = c.prove(text)
-            if proof is not None and (best is None or proof.saves_kg > best[0].saves_kg):
-                best = (proof, wait, alt)
-        if best is None:
+        routes = [r for r in (_altitude_route(c, i, step, row, limit, True),
+                              _altitude_route(c, i, step, row, limit, False),
+                              _tilt_route(c, i, step, row, limit, True),
+                              _tilt_route(c, i, step, row, limit, False)) if r is not None]
+        proofs = c.prove_all([r.text for r in routes], "drift-node-change")
+        found = [(p, r) for p, r in zip(proofs, routes) if p is not None]
+        if not found:
             continue
-        proof, wait, alt = best
+        proof, route = max(found, key=lambda pr: pr[0].saves_kg)
         extra = float(proof.final.t[0] - c.result.final.t[0])
-        given = c.program.drift_limit is not None
-        note = () if given else (
-            f"the plan sets no `drift at most`; this route waits {duration(wait)} (a year "
-            "is the default); a longer wait costs less, a shorter one more",)
+        note = () if c.program.drift_limit is not None else (
+            f"the plan sets no `drift at most`; this route waits {duration(route.wait)} (a "
+            "year is the default); a longer wait costs less, a shorter one more",)
         cost = float(sum(r.dv_margin[0] for r in proof.result.rows if r.kind == "burn"
                          and r.name.startswith(f"{step.name}-drift"))) * 1000.0
         out.append(c.finding(
             "drift-node-change", "warning", (step.name,),
-            f"{step.name} turns the node with a burn; drifting at {alt:.1f} km altitude "
-            f"for {duration(wait)} lets J2 turn it instead ({cost:.1f} m/s for the two "
-            f"transfers, the plan {duration(extra)} longer) and saves "
+            f"{step.name} turns the node with a burn; drifting {route.where} for "
+            f"{duration(route.wait)} lets J2 turn it instead ({cost:.1f} m/s for "
+            f"{route.legs}, the plan {duration(extra)} longer) and saves "
             f"{saving_text(proof)}", proof, notes=note))
     return out
 
 
-def _route(c: Checker, i: int, step: Burn, drift: Drift, limit: float, down: bool):
-    """The rewrite of burn ``i`` as transfer, drift, transfer back, its wait tuned on the
-    evaluator until the plan's final node comes out as the plan's own; (text, wait s,
-    drift altitude km) or None where no drift orbit in range does it in time."""
-    body = c.program.body
-    row = c.rows_of(i)[0]
-    r0, v0 = row.after.r, row.v_before  # the orbit at the burn, before it
-    mu = body.gm
-    el = elements_from_state(r0, v0, mu)
-    a0, inc = float(np.linalg.norm(r0[0])), float(el.inclination[0])
-    # the node the burn buys, on the side the drift orbit can turn it to
-    rate0 = float(drift.rates(r0, v0).raan[0])
+def _plain(x: float, places: int) -> str:
+    """``x`` to ``places`` decimals without trailing zeros: `87`, `1377.782721`."""
+    return f"{x:.{places}f}".rstrip("0").rstrip(".")
+
+
+def _needed_turn(step: Burn, el, rising: bool) -> float:
+    """The node turn the drift must make: the burn's, or it less or plus a whole turn,
+    with the sign the differential rate has (``rising``: the drift orbit's node runs
+    ahead of the plan's)."""
     want = float(np.mod(step.raan - el.raan[0] + np.pi, TWO_PI) - np.pi)
+    if abs(want) < 1e-9:
+        return 0.0
+    return want if (want > 0) == rising else want + math.copysign(TWO_PI, 1.0 if rising
+                                                                     else -1.0)
 
-    def rate(a):
-        return -1.5 * body.j2 * (body.radius / a) ** 2 * math.sqrt(mu / a**3) * math.cos(inc)
 
-    low, high = FLOOR * body.radius, a0
-    if not down:
-        ceiling = c.program.ceiling or 2.0 * a0
-        low, high = a0, ceiling
-    if high - low < 1.0:
-        return None
-    # the turn the drift must make: `want`, or it less or plus a whole turn, with the
-    # sign the differential rate has on this side
-    sample = rate(0.5 * (low + high)) - rate0
-    turn = want if want * sample > 0 else want + math.copysign(TWO_PI, sample)
-    if abs(turn) < 1e-9:
-        return None
-
-    def wait_at(a):  # the drift alone, transfers aside
-        d = rate(a) - rate0
+def _nearest(rate, rate0: float, turn: float, far: float, near: float, limit: float):
+    """The value of the drift orbit's parameter nearest ``near`` (the plan's own, the
+    cheapest to reach) whose differential drift makes ``turn`` within ``FILL`` of the
+    limit, searched towards ``far``; (value, wait) or None where even ``far`` is too
+    slow."""
+    def wait_at(x):
+        d = rate(x) - rate0
         return turn / d if d * turn > 0 else math.inf
 
-    # the drift orbit nearest the start whose wait still fits (the cheapest transfers)
-    far, near = (low, high) if down else (high, low)
     if wait_at(far) > FILL * limit:
         return None
     for _ in range(80):
@@ -143,44 +133,106 @@ def _route(c: Checker, i: int, step: Burn, drift: Drift, limit: float, down: boo
             near = mid
         else:
             far = mid
-    a1 = far
+    return far, wait_at(far)
+
+
+def _altitude_route(c: Checker, i: int, step: Burn, row, limit: float, down: bool):
+    """Hohmann down (or up) to a drift orbit, coast, Hohmann back."""
+    body, mu = c.program.body, c.program.body.gm
+    el = elements_from_state(row.after.r, row.v_before, mu)
+    a0, inc = float(np.linalg.norm(row.after.r[0])), float(el.inclination[0])
+
+    def rate(a):
+        return -1.5 * body.j2 * (body.radius / a) ** 2 * math.sqrt(mu / a**3) * math.cos(inc)
+
+    far = FLOOR * body.radius if down else (c.program.ceiling or 2.0 * a0)
+    if abs(far - a0) < 1.0:
+        return None
+    # a lower orbit's node runs ahead where the node advances (retrograde), behind where
+    # it regresses
+    rising = (rate(far) - rate(a0)) > 0
+    turn = _needed_turn(step, el, rising)
+    found = _nearest(rate, rate(a0), turn, far, a0, limit) if turn else None
+    if found is None:
+        return None
+    a1, wait = found
     alt1, alt0 = a1 - body.radius, a0 - body.radius
     name = step.name
-    wait = wait_at(a1)
 
     def text(w):
-        lines = [f"transfer {name}-drift-out: circular {alt1:.6f} km",
-                 f"coast {name}-drift for {w:.6f} s",
-                 f"transfer {name}-drift-back: circular {alt0:.6f} km"]
-        return c.text_of(c.rewrite({i: lines}))
+        return c.text_of(c.rewrite({i: [
+            f"transfer {name}-drift-out: circular {_plain(alt1, 6)} km",
+            f"coast {name}-drift for {_plain(w, 6)} s",
+            f"transfer {name}-drift-back: circular {_plain(alt0, 6)} km"]}))
 
-    # tune the wait on the evaluator: the node gap falls linearly with it (secant steps)
-    from ..load import load_text
+    tuned = _tuned(c, text, wait, lambda w: 0 < w <= limit)
+    if tuned is None:
+        return None
+    wait, rewritten = tuned
+    return Route(rewritten, wait, f"at {alt1:.1f} km altitude", "the two transfers")
 
-    def gap(w):
+
+def _tilt_route(c: Checker, i: int, step: Burn, row, limit: float, up: bool):
+    """A tilt of the inclination at a node, coast, the tilt back at a node."""
+    body, mu = c.program.body, c.program.body.gm
+    el = elements_from_state(row.after.r, row.v_before, mu)
+    a0, i0 = float(np.linalg.norm(row.after.r[0])), float(el.inclination[0])
+    k = 1.5 * body.j2 * (body.radius / a0) ** 2 * math.sqrt(mu / a0**3)
+
+    def rate(inc):
+        return -k * math.cos(inc)
+
+    # the node rate grows with the inclination: a tilt up drifts ahead
+    far = math.pi - 1e-6 if up else 1e-6
+    turn = _needed_turn(step, el, up)
+    found = _nearest(rate, rate(i0), turn, far, i0, limit) if turn else None
+    if found is None:
+        return None
+    i1, wait = found
+    deg0 = math.degrees(i0)
+    name = step.name
+
+    def text(deg1):  # the wait is fixed (the tilt back waits for a node): tune the tilt
+        return c.text_of(c.rewrite({i: [
+            f"burn {name}-drift-tilt at node: inclination to {_plain(deg1, 12)} deg",
+            f"coast {name}-drift for {_plain(wait, 6)} s",
+            f"burn {name}-drift-back at node: inclination to {_plain(deg0, 12)} deg"]}))
+
+    tilt = _tuned(c, text, math.degrees(i1), lambda deg: 0 < deg < 180)
+    if tilt is None:
+        return None
+    deg1, rewritten = tilt
+    return Route(rewritten, wait, f"at {deg1:.2f} deg inclination", "the two tilts")
+
+
+def _tuned(c: Checker, text, x: float, allowed):
+    """``x`` (the wait, or the drift orbit's inclination) tuned on the evaluator by
+    secant steps on the node the rewritten plan ``text(x)`` ends with, against the
+    plan's own at the same moment, until the two planes agree; (x, text) or None where
+    it does not settle or leaves what is ``allowed``."""
+    def gap(value):
         try:
-            program = load_text(text(w), c.program.source.path)
+            program = load_text(text(value), c.program.source.path)
         except Exception:  # noqa: BLE001 - a rewrite that does not read proves nothing
             return None
         result = run(program)
         if not result.ok:
             return None
-        return _raan_gap(program, result.final, c.result.final)
+        a, b = at_same_time(program, result.final, c.result.final)
+        mu = program.body.gm
+        ea, eb = elements_from_state(a.r, a.v, mu), elements_from_state(b.r, b.v, mu)
+        return float(np.mod(ea.raan[0] - eb.raan[0] + np.pi, TWO_PI) - np.pi)
 
-    w0, g0 = wait, gap(wait)
-    if g0 is None:
-        return None
-    w1 = w0 * 0.999
-    g1 = gap(w1)
+    x0, g0 = x, gap(x)
+    x1 = x * 0.999
+    g1 = gap(x1)
     for _ in range(SECANT):
-        if g1 is None or g1 == g0:
+        if g0 is None or g1 is None or abs(g1) < 1e-11 or g1 == g0:
             break
-        w0, w1, g0 = w1, w1 - g1 * (w1 - w0) / (g1 - g0), g1
-        if w1 <= 0:
+        x0, x1, g0 = x1, x1 - g1 * (x1 - x0) / (g1 - g0), g1
+        if not allowed(x1):
             return None
-        g1 = gap(w1)
-        if g1 is not None and abs(g1) < 1e-10:
-            break
-    if g1 is None or abs(g1) > 1e-7 or w1 > limit:
+        g1 = gap(x1)
+    if g1 is None or abs(g1) > NODE_TOL or not allowed(x1):
         return None
-    return text(w1), w1, alt1
+    return x1, text(x1)
