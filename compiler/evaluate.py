@@ -307,6 +307,8 @@ def goto(place: Place, r, v, mu, fails: Failures, sweep=None, radius: float = 0.
             again = aim.again
         elif place.kind == "crossing":  # pragma: no cover - callers under drift give an Aim
             raise ValueError("a crossing under drift needs an Aim")
+        elif place.kind in ("periapsis", "apoapsis", "anomaly", "radius"):
+            again = None  # a true anomaly: the same place on the turned orbit
         else:
             again = lambda rr, vv: (_target_angle(place, rr, vv, mu, Failures(rr.shape[0]),
                                                   radius),)
@@ -315,9 +317,14 @@ def goto(place: Place, r, v, mu, fails: Failures, sweep=None, radius: float = 0.
         dt, ok_t = kepler.time_of_flight(r, v, mu, d, f)
         r1, v1, ok_p = kepler.place(r, v, mu, d, f)
         good = ok_t & ok_p
-    fails.add(~good, lambda i: (
+    open_ = norm(f.e_vec) >= 1.0
+    fails.add(~good & (open_ | (drift is None)), lambda i: (
         f"the craft never reaches {place.label()} on this open orbit",
         "burn here or at a point ahead of the craft"))
+    fails.add(~good & ~open_ & (drift is not None), lambda i: (
+        (f"{place.label()} could not be found on the drifting orbit (the sweep to it and "
+         "the drift of the orbit did not settle together)"),
+        "coast for a time to near the place first, or fly this step under `gravity point-mass`"))
     return (np.where(good[:, None], r1, r), np.where(good[:, None], v1, v),
             np.where(good, dt, 0.0))
 

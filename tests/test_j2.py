@@ -290,3 +290,42 @@ def test_old_names_still_name_steps():
     result, _ = priced("start circular 700 km inclination 98 deg\n"
                        "coast drift for 1 d\ncoast gravity 1 rev\n")
     assert [r.name for r in result.rows] == ["drift", "gravity"]
+
+
+# --- properties over generated plans (tests/plangen.py) --------------------------------
+
+
+from hypothesis import HealthCheck, given, settings  # noqa: E402
+from plangen import plan_texts  # noqa: E402
+from test_properties import assert_clean_budget  # noqa: E402
+
+
+@settings(max_examples=60, deadline=None,
+          suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
+@given(plan_texts(tidy=True))
+def test_generated_plans_under_j2_keep_size_shape_and_inclination_through_coasts(text):
+    # Under gravity j2 a coast turns the orbit: |h|, the energy and the inclination
+    # (h_z / |h|) are kept, the node and apse line move.  A plan either flies or stops at
+    # a located error; no NaN reaches the budget either way.
+    if "around earth" not in text:
+        return
+    text = text.replace("around earth", "around earth\ngravity j2", 1)
+    from apsidal.lang.errors import PlanError
+
+    try:
+        result = run(load_text(text))
+    except PlanError:
+        return
+    assert_clean_budget(budget(result))
+    mu = result.program.body.gm
+    r, v = result.program.start_r[None], result.program.start_v[None]
+    for row in result.rows:
+        if row.kind == "coast":
+            r1, v1 = row.after.r, row.after.v
+            energy = lambda r, v: 0.5 * float(v[0] @ v[0]) - mu / float(np.linalg.norm(r[0]))
+            assert energy(r1, v1) == pytest.approx(energy(r, v), rel=1e-9, abs=1e-12)
+            h0, h1 = np.cross(r[0], v[0]), np.cross(r1[0], v1[0])
+            assert np.linalg.norm(h1) == pytest.approx(np.linalg.norm(h0), rel=1e-9)
+            assert h1[2] / np.linalg.norm(h1) == pytest.approx(h0[2] / np.linalg.norm(h0),
+                                                             abs=1e-9)
+        r, v = row.after.r, row.after.v
