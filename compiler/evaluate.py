@@ -739,12 +739,36 @@ def _transfer_from(step: Transfer, index: int, batch: Batch, ctx: Context, fails
     rows = []
     for k, ((b_up, b_down), normal) in enumerate(zip(phases, normals)):
         first = sweep if k == 0 else None
+        if ctx.drift is not None and b_up.inclination is not None:
+            _far_from_the_node(step, b_up, b_down, up, batch, ctx, fails)
         if up is None:
             batch, row = _burn_rows(b_up, index, b_up.name, batch, ctx, fails, normal, first)
         else:
             batch, row = _either(b_up, b_down, up, index, batch, ctx, fails, normal, first)
         rows.append(row)
     return batch, rows
+
+
+def _far_from_the_node(step: Transfer, b_up: Burn, b_down: Burn, up, batch: Batch,
+                       ctx: Context, fails: Failures) -> None:
+    """Under drift the burn that finishes a transfer's plane change is no longer on the
+    node line (the transfer orbit's apse line and node have turned on the way): an
+    inclination below the latitude there cannot be reached by it.  Refused with the
+    numbers, before the burn's own (plainer) refusal."""
+    tmp = Failures(batch.size)
+    place_of = lambda b: goto(b.place, batch.r, batch.v, ctx.mu, tmp, None, ctx.radius,
+                              ctx.drift)[0]
+    r = place_of(b_up) if up is None else np.where(up[:, None], place_of(b_up),
+                                                   place_of(b_down))
+    lat = np.arcsin(np.clip(r[:, 2] / norm(r), -1.0, 1.0))
+    goal = step.inclination
+    low = (goal < np.abs(lat) - 1e-12) | (goal > np.pi - np.abs(lat) + 1e-12)
+    fails.add(low & tmp.ok, lambda i: (
+        (f"under `gravity j2` the transfer orbit's node and apse line turn on the way, so "
+         f"its far burn stands at latitude {np.degrees(lat[i]):.4f} deg, off the node line, "
+         f"where no plane has inclination {np.degrees(goal):.4f} deg"),
+        ("transfer without the plane change and turn the plane with a burn `at node: "
+         "inclination to ...` after it, or price this transfer under `gravity point-mass`")))
 
 
 def _split_normals(r, v, target, share):

@@ -530,6 +530,11 @@ CASES = [
     Bad("transfer-raan-under-j2", plan("transfer t: circular 900 km, raan to 20 deg",
                                        head=HEAD + "gravity j2\n"), 11, 1, "transfer t",
         ("a transfer cannot arrive in a fixed plane",), "`at crossing: raan to ...`"),
+    Bad("equatorial-transfer-under-j2", plan(
+        "transfer geo at node: circular 35786 km, inclination to 0 deg",
+        head=HEAD + "gravity j2\n"), 11, 1, "transfer geo",
+        ("its far burn stands at latitude", "no plane has inclination 0.0000 deg"),
+        "turn the plane with a burn `at node: inclination to ...` after it"),
     Bad("negative-drift-limit", plan(head=HEAD + "drift at most -3 d\n"), 9, 15, "-3 d",
         ("drift at most must be positive",), "greater than zero"),
 ]
