@@ -169,7 +169,7 @@ class Lowerer:
         j2 = self.body.j2
         if not j2:
             raise _err(f"{what} needs the J2 of {self.body.name}, and it has none", node,
-                       f"give the body one: `body NAME {{ gm ... radius ... j2 0.0010826 }}`"
+                       "give the body one: `body NAME { gm ... radius ... j2 0.0010826 }`"
                        " (J2 referred to its radius), or go around a catalogue body that has"
                        " one (`apsidal bodies` lists them)")
         return j2

@@ -56,6 +56,7 @@ def test_a_drift_route_is_priced_and_reaches_the_same_plane():
     assert 0 < gap <= 200 * 86400.0
     drift = Drift(MU, RE, J2)
     r, v, ok = drift.propagate(mine.final.r, mine.final.v, gap)
+    assert ok[0]
     ours = elements_from_state(r, v, MU)
     rewritten = elements_from_state(theirs.final.r, theirs.final.v, MU)
     assert rewritten.raan[0] == pytest.approx(ours.raan[0], abs=1e-7)

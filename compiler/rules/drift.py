@@ -87,8 +87,8 @@ def drift_node_change(c: Checker) -> list[Finding]:
         proof, route = max(found, key=lambda pr: pr[0].saves_kg)
         extra = float(proof.final.t[0] - c.result.final.t[0])
         note = () if c.program.drift_limit is not None else (
-            f"the plan sets no `drift at most`; this route waits {duration(route.wait)} (a "
-            "year is the default); a longer wait costs less, a shorter one more",)
+            (f"the plan sets no `drift at most`; this route waits {duration(route.wait)} "
+             "(a year is the default); a longer wait costs less, a shorter one more"),)
         cost = float(sum(r.dv_margin[0] for r in proof.result.rows if r.kind == "burn"
                          and r.name.startswith(f"{step.name}-drift"))) * 1000.0
         out.append(c.finding(
