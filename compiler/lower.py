@@ -177,6 +177,13 @@ class Lowerer:
     def _check_gravity(self) -> None:
         if self.model == "j2":
             self._needs_j2(self.gravity, "`gravity j2`")
+        elif self.drift_limit is not None:
+            limit = next(s for s in self.plan.statements
+                         if isinstance(s, ast.Setting) and s.key == "drift")
+            raise _err("`drift at most` is the longest wait for a route that lets J2 turn the "
+                       "node, and this plan flies the point-mass model (nothing drifts)",
+                       limit, "add the setting `gravity j2` (the body needs a J2), or drop "
+                       "this line")
 
     def sun_synchronous(self, node, a: float, e: float) -> float:
         """The sun-synchronous inclination (rad) of an orbit of sma ``a``, eccentricity

@@ -537,6 +537,8 @@ CASES = [
         "turn the plane with a burn `at node: inclination to ...` after it"),
     Bad("negative-drift-limit", plan(head=HEAD + "drift at most -3 d\n"), 9, 15, "-3 d",
         ("drift at most must be positive",), "greater than zero"),
+    Bad("drift-limit-in-point-mass", plan(head=HEAD + "drift at most 30 d\n"), 9, 1,
+        "drift at most", ("this plan flies the point-mass model",), "`gravity j2`"),
 ]
 
 assert len(CASES) >= 30

@@ -243,6 +243,37 @@ def test_a_burn_to_a_sun_synchronous_plane_after_its_shape_change():
     assert checks(report)["raan drift"]["passed"]
 
 
+def test_phasing_under_drift_comes_back_to_the_same_point_of_the_turned_orbit():
+    # N anomalistic periods of the phasing orbit, then the original speed and direction
+    # (turned with the orbit): the same size, shape and true anomaly as before the first
+    # burn, the node moved by the phasing orbit's own rate over the wait (worked here
+    # from the classical rate of a 7000 km circle's phasing ellipse).
+    result, report = priced("start circular 621.8634 km inclination 45 deg raan 30 deg\n"
+                            "transfer slot: phase -20 deg in 3 rev\n")
+    one, two = (s for s in report["steps"] if s["name"].startswith("slot/"))
+    assert two["dv_m_s"] == pytest.approx(one["dv_m_s"], rel=1e-12)
+    before = result.program.start_r[None], result.program.start_v[None]
+    e0 = elements_from_state(*before, MU)
+    e1 = elements_from_state(result.final.r, result.final.v, MU)
+    assert e1.sma[0] == pytest.approx(e0.sma[0], rel=1e-12)
+    assert e1.ecc[0] < 1e-9
+    assert e1.inclination[0] == pytest.approx(e0.inclination[0], abs=1e-12)
+    # the phasing orbit: periapsis here at 7000 km, the period T + tau / N longer
+    a0 = 7000.0
+    period = 2 * math.pi * math.sqrt(a0**3 / MU) * (1 + 20 / 360 / 3)
+    a1 = (MU * (period / (2 * math.pi)) ** 2) ** (1 / 3)
+    e = 1 - a0 / a1
+    n = math.sqrt(MU / a1**3)
+    p = a1 * (1 - e * e)
+    rate = -1.5 * n * J2 * (RE / p) ** 2 * math.cos(math.radians(45))
+    n_bar = n * (1 + 0.75 * J2 * (RE / p) ** 2 * math.sqrt(1 - e * e) *
+                 (3 * math.cos(math.radians(45)) ** 2 - 1))
+    wait = 3 * 2 * math.pi / n_bar
+    assert two["coast_before_s"] == pytest.approx(wait, rel=1e-9)
+    moved = (e1.raan[0] - e0.raan[0] + math.pi) % (2 * math.pi) - math.pi
+    assert moved == pytest.approx(rate * wait, rel=1e-9)
+
+
 # --- the model in the reports, the diff and the formatter -------------------------------
 
 
