@@ -172,42 +172,42 @@ class Drift:
         ``d0`` is the sweep to the place on today's orbit; ``aim(r, v)`` gives the
         candidate sweeps to it from a state on a turned orbit (the place moves with the
         orbit, or, for a crossing with a fixed plane, against it); None for a place fixed
-        in true anomaly (an apsis, an anomaly, a radius), which the turn does not move.  The sweep d and the
-        time t(d) = two-body time of flight x n / n_bar are iterated until the place of
-        the orbit turned for t(d) is d ahead: (r1, v1, seconds, ok).
+        in true anomaly (an apsis, an anomaly, a radius), which the turn does not move.
+        The sweep d and the time t(d) = two-body time of flight x n / n_bar are iterated
+        until the place of the orbit turned for t(d) is d ahead: (r1, v1, seconds, ok).
         """
         rates = self.rates(r, v) if rates is None else rates
         d = np.asarray(d0, float).copy()
         scale = rates.time_scale
-        converged = np.full(r.shape[0], aim is None)  # None: the place does not move
+        converged = np.zeros(r.shape[0], dtype=bool)
         before = np.full(r.shape[0], np.inf)  # the step before, to see a noise floor
-        for k in range(0 if aim is None else _ITERATIONS):
-            t2b, _ = kepler.time_of_flight(r, v, self.mu, d)
+        for k in range(_ITERATIONS):
+            t2b, ok_t = kepler.time_of_flight(r, v, self.mu, d)
             t = t2b / scale
             rt, vt = self.turn(r, v, rates.raan * t, rates.argp * t)
-            candidates = aim(rt, vt)
+            if aim is None:  # the place does not move: this d is the answer
+                converged[:] = True
+                break
             best = None
-            for c in candidates:
+            for c in aim(rt, vt):
                 moved = d + np.mod(c - d + np.pi, TWO_PI) - np.pi  # nearest to the last
                 best = moved if best is None else np.where(
                     np.abs(moved - d) < np.abs(best - d), moved, best)
             best = np.maximum(best, 0.0)
             step = np.abs(best - d)
-            d = np.where(converged, d, best)
             # settled: a step at rounding, or steps that stopped shrinking at the noise
             # floor of the place itself (an apsis of a nearly circular orbit is defined
-            # only to about 1e-16 / e rad)
-            converged |= (step <= 1e-14 * np.maximum(1.0, d)) | (
+            # only to about 1e-16 / e rad).  A settled element keeps the d its time and
+            # turn were worked out for, so the place below is swept on that very orbit.
+            settled = (step <= 1e-14 * np.maximum(1.0, d)) | (
                 (k >= 2) & (step >= 0.5 * before) & (step < 1e-6))
+            d = np.where(converged | settled, d, best)
+            converged |= settled
             before = step
             if converged.all():
                 break
-        t2b, ok_t = kepler.time_of_flight(r, v, self.mu, d)
-        t = t2b / scale
-        rt, vt = self.turn(r, v, rates.raan * t, rates.argp * t)
         r1, v1, ok_p = kepler.place(rt, vt, self.mu, d)
         return r1, v1, t, ok_t & ok_p & converged
-
 
 def _rotate(vec, axis, angle):
     """Rodrigues rotation of ``vec`` about unit ``axis`` by ``angle`` (batched)."""
