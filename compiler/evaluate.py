@@ -361,7 +361,7 @@ class BurnOutcome:
 def _solve_burn(step: Burn, r, v, ctx: Context, fails: Failures, normal=None):
     """Velocity after the burn at the current position."""
     mu = ctx.mu
-    if step.sun_synchronous and normal is None:
+    if step.sun_synchronous is not None and normal is None:
         return _sun_synchronous_burn(step, r, v, ctx, fails)
     if step.vector is not None:
         return v + frames.inertial(step.frame, r, v, step.vector)
@@ -403,10 +403,11 @@ def _sun_synchronous_burn(step: Burn, r, v, ctx: Context, fails: Failures):
     the inclination moves with p^3.5)."""
     from .j2 import sun_synchronous
 
-    plain = replace(step, sun_synchronous=False)
+    plain = replace(step, sun_synchronous=None)
+    rate = step.sun_synchronous
     orbit = lambda vv: elements_from_state(r, vv, ctx.mu)
     el = orbit(v)
-    inc = sun_synchronous(ctx.mu, ctx.radius, ctx.j2, el.sma, np.minimum(el.ecc, 0.999))
+    inc = sun_synchronous(ctx.mu, ctx.radius, ctx.j2, el.sma, np.minimum(el.ecc, 0.999), rate)
     for _ in range(30):
         scratch = Failures(r.shape[0])
         ok = np.isfinite(inc)
@@ -415,7 +416,7 @@ def _sun_synchronous_burn(step: Burn, r, v, ctx: Context, fails: Failures):
         closed = el.closed & (el.sma > 0)
         new = np.where(closed, sun_synchronous(ctx.mu, ctx.radius, ctx.j2,
                                                np.where(closed, el.sma, 1.0),
-                                               np.where(closed, el.ecc, 0.0)), np.nan)
+                                               np.where(closed, el.ecc, 0.0), rate), np.nan)
         settled = np.all(~np.isfinite(new) | (np.abs(new - inc) <= 1e-14))
         inc = new
         if settled:

@@ -32,6 +32,7 @@ motion (1e-3 in low Earth orbit).  Open orbits coast as in the point-mass model.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -42,7 +43,8 @@ from .state import TWO_PI, cross, dot, norm, unit
 # The Sun's mean motion in right ascension: one tropical year, 365.2422 d (Astronomical
 # Almanac's mean tropical year, 365.24219 d, rounded - from memory), gives 0.98565 deg/day.
 TROPICAL_YEAR_S = 365.2422 * 86400.0
-SUN_RATE = TWO_PI / TROPICAL_YEAR_S  # rad/s
+SUN_RATE = TWO_PI / TROPICAL_YEAR_S  # rad/s, at the Earth
+SUN_GM = 1.32712440018e11  # km3/s2 (the catalogue's Sun, for the years of other bodies)
 _ITERATIONS = 30  # fixed-point steps for a place on the drifting orbit (a few suffice)
 
 
@@ -82,26 +84,47 @@ def raan_rate(mu: float, radius: float, j2: float, a, e, i):
     return -factor(mu, radius, j2, p) * n * np.cos(i)
 
 
-def sun_synchronous(mu: float, radius: float, j2: float, a, e=0.0):
-    """The inclination (rad) whose node rate is the Sun's mean motion, for sma ``a`` and
-    eccentricity ``e``; NaN where none is (cos i would pass -1: the orbit is too high).
+def sun_rate(body) -> float | None:
+    """The Sun's mean motion as seen from ``body`` (rad/s): the mean motion of the
+    planet it belongs to around the Sun.  The Earth's (and the Moon's) is the tropical
+    year's, the rate sun-synchronous orbits are defined by; another planet's is its
+    orbital mean motion sqrt(GM_sun / a^3) from the catalogue.  None where the body has
+    no year: the Sun itself, a body defined in the plan."""
+    from .bodies import lookup
+
+    b, seen = body, 0
+    while b is not None and b.parent not in (None, "sun") and seen < 8:
+        b, seen = lookup(b.parent), seen + 1
+    if b is None or b.parent != "sun" or not b.orbit_sma:
+        return None
+    if b.name.lower() == "earth":
+        return SUN_RATE
+    sun = lookup("sun")
+    return math.sqrt((sun.gm if sun else SUN_GM) / b.orbit_sma**3)
+
+
+def sun_synchronous(mu: float, radius: float, j2: float, a, e=0.0, rate: float = SUN_RATE):
+    """The inclination (rad) whose node rate is the Sun's mean motion ``rate`` (the
+    Earth's by default), for sma ``a`` and eccentricity ``e``; NaN where none is (cos i
+    would pass -1: the orbit is too high).
 
     cos i = -rate_sun / ((3/2) n J2 (R/p)^2).
     """
     a, e = np.asarray(a, float), np.asarray(e, float)
     n = np.sqrt(mu / a**3)
     p = a * (1.0 - e**2)
-    c = -SUN_RATE / (factor(mu, radius, j2, p) * n)
+    c = -rate / (factor(mu, radius, j2, p) * n)
     with np.errstate(invalid="ignore"):
         return np.where(np.abs(c) <= 1.0, np.arccos(np.clip(c, -1.0, 1.0)), np.nan)
 
 
-def highest_sun_synchronous(mu: float, radius: float, j2: float, e=0.0) -> float:
+def highest_sun_synchronous(mu: float, radius: float, j2: float, e=0.0,
+                            rate: float = SUN_RATE) -> float:
     """The largest sma (km) with a sun-synchronous inclination (a polar retrograde limit,
     i = 180 deg): (3/2) n J2 (R/p)^2 = rate_sun, solved for a."""
     # n (R/p)^2 = sqrt(mu) a^-3.5 R^2 (1 - e^2)^-2
     k = 1.5 * j2 * np.sqrt(mu) * radius**2 / (1.0 - e**2) ** 2
-    return float((k / SUN_RATE) ** (1.0 / 3.5))
+    return float((k / rate) ** (1.0 / 3.5))
 
 
 class Drift:

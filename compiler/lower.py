@@ -185,6 +185,17 @@ class Lowerer:
                        limit, "add the setting `gravity j2` (the body needs a J2), or drop "
                        "this line")
 
+    def sun_rate(self, node) -> float:
+        """The Sun's mean motion seen from the plan's body (rad/s), or a located error."""
+        from . import j2 as secular
+
+        rate = secular.sun_rate(self.body)
+        if rate is None:
+            raise _err(f"{self.body.name} has no year to be sun-synchronous with: it is the "
+                       "Sun, or a body defined in the plan (whose orbit around the Sun is not "
+                       "known)", node, "give the inclination in degrees")
+        return rate
+
     def sun_synchronous(self, node, a: float, e: float) -> float:
         """The sun-synchronous inclination (rad) of an orbit of sma ``a``, eccentricity
         ``e``, or a located error with the highest such orbit."""
@@ -192,18 +203,19 @@ class Lowerer:
 
         j2 = self._needs_j2(node, "a sun-synchronous inclination")
         body = self.body
+        rate = self.sun_rate(node)
         if not (a > 0 and e < 1):
             raise _err("an open orbit has no sun-synchronous inclination (no node drift "
                        "averages over it)", node, "give the inclination in degrees")
-        inc = float(secular.sun_synchronous(body.gm, body.radius, j2, a, e))
+        inc = float(secular.sun_synchronous(body.gm, body.radius, j2, a, e, rate))
         if not np.isfinite(inc):
-            top = secular.highest_sun_synchronous(body.gm, body.radius, j2, e)
+            top = secular.highest_sun_synchronous(body.gm, body.radius, j2, e, rate)
             rate = float(np.degrees(secular.raan_rate(body.gm, body.radius, j2, a, e,
                                                       np.pi)) * 86400)
             raise _err(f"no inclination makes this orbit sun-synchronous: at sma {a:.3f} km "
                        f"(eccentricity {e:.6f}) even a retrograde equatorial orbit's node "
                        f"drifts only {rate:.6f} deg/d, less than the Sun's "
-                       f"{np.degrees(secular.SUN_RATE) * 86400:.6f} deg/d", node,
+                       f"{np.degrees(rate) * 86400:.6f} deg/d", node,
                        f"a sun-synchronous orbit of this eccentricity needs an sma under "
                        f"{top:.3f} km ({top - body.radius:.3f} km altitude)")
         return inc
@@ -652,7 +664,8 @@ class Lowerer:
         for k in ("inclination", "raan"):
             if k in goals and isinstance(goals[k].value, ast.SunSynchronous):
                 self._needs_j2(goals[k], "a sun-synchronous inclination")
-                kw["sun_synchronous"] = True  # for the orbit after the burn (evaluator)
+                # the Sun's rate; the inclination is for the orbit after the burn (evaluator)
+                kw["sun_synchronous"] = self.sun_rate(goals[k])
             elif k in goals:
                 kw[k] = goals[k].value.internal()
         if "inclination" in kw and not 0 <= kw["inclination"] <= np.pi:

@@ -125,14 +125,16 @@ class Burn:
     energy_goal: str | None = None  # the goal that named it, for messages
     ecc: float | None = None  # target eccentricity
     argp: float | None = None  # rad: rotate the apse line to this argument of periapsis
-    sun_synchronous: bool = False  # `inclination to sun-synchronous`: for the orbit after it
+    # `inclination to sun-synchronous`: the Sun's mean motion (rad/s) the orbit after the
+    # burn matches with its node
+    sun_synchronous: float | None = None
     frame: str = "vnb"  # the frame of ``vector`` and of the reported components: vnb | rtn
     kind: str = field(default="burn", init=False)
 
     @property
     def changes_plane(self) -> bool:
         return (self.inclination is not None or self.raan is not None or self.normal is not None
-                or self.sun_synchronous)
+                or self.sun_synchronous is not None)
 
     @property
     def changes_shape(self) -> bool:

@@ -515,6 +515,11 @@ CASES = [
         head=HEAD.replace("around earth", "around rock"),
         start="start circular 100 km inclination sun-synchronous"), 10, 23,
         "inclination sun-synchronous", ("needs the J2 of rock",), "j2 0.0010826"),
+    Bad("sun-synchronous-without-a-year", 'body rock { gm 17.3 km3/s2 radius 262 km '
+        'j2 0.001 }\n' + plan(head=HEAD.replace("around earth", "around rock"),
+                               start="start circular 100 km inclination sun-synchronous"),
+        10, 23, "inclination sun-synchronous", ("rock has no year to be sun-synchronous with",),
+        "give the inclination in degrees"),
     Bad("sun-synchronous-burn-too-high", plan(
         "burn b: apoapsis to 40000 km", "coast to apoapsis",
         "burn c: circular, inclination to sun-synchronous"), 12, 1, "burn c",

@@ -70,6 +70,20 @@ def test_sun_synchronous_inclination_at_700_km():
     assert math.degrees(el.inclination[0]) == pytest.approx(98.19, abs=0.02)
 
 
+def test_sun_synchronous_at_mars_follows_the_martian_year():
+    # Around Mars the node must keep up with Mars's own year (686.98 d, JPL's planetary
+    # fact sheet - from memory): Mars Global Surveyor's mapping orbit, about 378 km up,
+    # was sun-synchronous at about 92.9 deg (from memory).
+    text = HEAD.replace("around earth", "around mars") + (
+        "start circular 378 km inclination sun-synchronous\n"
+        "expect raan drift 0.5240 deg/d within 0.0001 deg/d\n")
+    result = run(load_text(text), strict=True)
+    el = elements_from_state(result.final.r, result.final.v, result.program.body.gm)
+    assert math.degrees(el.inclination[0]) == pytest.approx(92.9, abs=0.1)
+    assert checks(budget(result))["raan drift"]["actual"] == pytest.approx(360 / 686.98,
+                                                                         rel=1e-4)
+
+
 def test_thirty_days_of_sun_synchronous_drift():
     # 30 d x 0.9856 deg/d = 29.57 deg: the drift J2 gives where a point-mass model gives
     # none (from memory: "about 29.6 deg a month").

@@ -39,7 +39,7 @@ def _node_burns(c: Checker):
     for i, step in enumerate(c.program.steps):
         if not (isinstance(step, Burn) and step.vector is None and step.raan is not None):
             continue
-        if step.changes_shape or step.sun_synchronous or step.fixed:
+        if step.changes_shape or step.sun_synchronous is not None or step.fixed:
             continue
         row = c.rows_of(i)[0]
         el = elements_from_state(row.after.r, row.v_before, mu)
