@@ -125,7 +125,8 @@ class CheckResult:
         if self.kind in CLOSED_UNDEFINED:
             return (f"the orbit is closed (eccentricity {self.ecc[i]:.6f}): it has no "
                     "hyperbolic excess speed")
-        what = {"period": "period", "circular": "apoapsis"}.get(self.kind, self.kind)
+        what = {"period": "period", "circular": "apoapsis",
+                "raan drift": "secular node drift"}.get(self.kind, self.kind)
         return (f"the orbit is open (eccentricity {self.ecc[i]:.6f}): it has no {what}")
 
 
@@ -980,7 +981,7 @@ def measure(kind: str, batch: Batch, ctx: Context, el=None) -> np.ndarray:
 ANGLES = {"inclination", "raan", "argp", "anomaly"}
 
 
-OPEN_UNDEFINED = {"apoapsis", "period", "circular"}  # no value on an open orbit
+OPEN_UNDEFINED = {"apoapsis", "period", "circular", "raan drift"}  # no value on an open orbit
 CLOSED_UNDEFINED = {"vinf"}  # no value on a closed orbit
 
 

@@ -231,6 +231,14 @@ def test_places_are_reached_on_the_drifted_orbit():
         pytest.approx(123.0, abs=1e-7)
 
 
+def test_an_open_orbit_has_no_node_drift():
+    _, report = priced("start orbit periapsis 400 km ecc 1.5 inclination 30 deg\n"
+                       "expect raan drift 0 deg/d\n")
+    check = checks(report)["raan drift"]
+    assert check["actual"] is None and not check["passed"]
+    assert "no secular node drift" in check["reason"]
+
+
 def test_a_burn_at_crossing_meets_its_node_under_drift():
     _, report = priced("start circular 900 km inclination 53 deg raan 10 deg "
                             "anomaly 200 deg\n"
