@@ -79,7 +79,7 @@ def test_tessera_plane_c_is_thirty_degrees_west_of_plane_a():
                            * wait)
     assert spacing == pytest.approx(-30.0, abs=0.005)
     text = (SAMPLES / "tessera-drift.aps").read_text()
-    twin = text.replace("coast drift-low for 63.964 d\n", "").replace(
+    twin = text.replace("coast drift-low for 63.96 d\n", "").replace(
         "transfer climb: circular 600 km\n",
         f"transfer climb: circular 600 km\ncoast settle for {wait} s\n")
     twin = "\n".join(line for line in twin.splitlines() if not line.startswith("expect"))
