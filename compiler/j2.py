@@ -127,11 +127,14 @@ def highest_sun_synchronous(mu: float, radius: float, j2: float, e=0.0,
     return float((k / rate) ** (1.0 / 3.5))
 
 
+@dataclass(frozen=True)
 class Drift:
-    """The secular J2 motion of a body: rates, coasts for a time and to a place."""
+    """The secular J2 motion of a body: rates, coasts for a time and to a place (equal
+    for equal constants, so two contexts of one plan compare equal)."""
 
-    def __init__(self, mu: float, radius: float, j2: float) -> None:
-        self.mu, self.radius, self.j2 = mu, radius, j2
+    mu: float  # km3/s2
+    radius: float  # km, the radius J2 is referred to
+    j2: float
 
     def rates(self, r: np.ndarray, v: np.ndarray) -> Rates:
         mu = self.mu
