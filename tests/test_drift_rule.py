@@ -160,3 +160,45 @@ def test_a_near_polar_plan_drifts_in_inclination():
     a = RE + 1200.0
     differential = node_rate(a, tilt) - node_rate(a, 87.0)
     assert differential * wait == pytest.approx(math.radians(2.0), rel=0.01)
+
+
+# --- property: under j2 a finding never costs more and reaches the same orbit, then ---------
+
+from apsidal.compiler.budget import budget  # noqa: E402
+from apsidal.compiler.check import at_same_time  # noqa: E402
+from hypothesis import HealthCheck, given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+from test_check import movable_plans  # noqa: E402
+
+
+@st.composite
+def drifting_plans(draw):
+    """The reorder property's plans under `gravity j2`, some with a node change."""
+    text = draw(movable_plans()).replace("around earth", "around earth\ngravity j2", 1)
+    if draw(st.booleans()):
+        text += (f"burn shift{draw(st.integers(0, 9))} at crossing: raan to "
+                 f"{draw(st.integers(0, 359))} deg\n")
+    return text
+
+
+@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(drifting_plans())
+def test_findings_under_j2_never_cost_more_and_reach_the_same_orbit_at_the_same_moment(text):
+    program = load_text(text, "gen.aps")
+    mine = run(program)
+    if not mine.ok:
+        return
+    used = budget(mine)["totals"]["propellant_kg"]
+    for f in check_program(program, [BY_NAME["cheaper-order"], BY_NAME["merge-burns"], RULE]):
+        if f.suggestion is None:
+            continue
+        theirs = run(load_text(f.suggestion, "suggestion.aps"))
+        assert theirs.ok
+        assert budget(theirs)["totals"]["propellant_kg"] <= used + 1e-9
+        a, b = at_same_time(program, theirs.final, mine.final)
+        ea, eb = elements_from_state(a.r, a.v, MU), elements_from_state(b.r, b.v, MU)
+        assert ea.sma[0] == pytest.approx(eb.sma[0], rel=1e-6)
+        assert ea.ecc[0] == pytest.approx(eb.ecc[0], abs=1e-5)
+        assert ea.inclination[0] == pytest.approx(eb.inclination[0], abs=1e-6)
+        if eb.inclination[0] > 1e-3:
+            assert math.cos(ea.raan[0] - eb.raan[0]) > math.cos(1e-6)
