@@ -7,13 +7,17 @@ import math
 
 import numpy as np
 import pytest
-from apsidal.compiler.check import check_program
+from apsidal.compiler.budget import budget
+from apsidal.compiler.check import at_same_time, check_program
 from apsidal.compiler.cli import main
 from apsidal.compiler.evaluate import run
 from apsidal.compiler.j2 import Drift
 from apsidal.compiler.load import load_text
 from apsidal.compiler.rules import BY_NAME
 from apsidal.compiler.state import elements_from_state
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+from test_check import movable_plans
 
 # IERS Conventions (2010) Table 1.1: GM, a_E and J2 of the Earth (also compiler/bodies.toml)
 MU, RE, J2 = 398600.4418, 6378.1366, 1.0826359e-3
@@ -163,12 +167,6 @@ def test_a_near_polar_plan_drifts_in_inclination():
 
 
 # --- property: under j2 a finding never costs more and reaches the same orbit, then ---------
-
-from apsidal.compiler.budget import budget  # noqa: E402
-from apsidal.compiler.check import at_same_time  # noqa: E402
-from hypothesis import HealthCheck, given, settings  # noqa: E402
-from hypothesis import strategies as st  # noqa: E402
-from test_check import movable_plans  # noqa: E402
 
 
 @st.composite
