@@ -111,11 +111,13 @@ def sun_synchronous(mu: float, radius: float, j2: float, a, e=0.0, rate: float =
     cos i = -rate_sun / ((3/2) n J2 (R/p)^2).
     """
     a, e = np.asarray(a, float), np.asarray(e, float)
-    n = np.sqrt(mu / a**3)
-    p = a * (1.0 - e**2)
-    c = -rate / (factor(mu, radius, j2, p) * n)
-    with np.errstate(invalid="ignore"):
-        return np.where(np.abs(c) <= 1.0, np.arccos(np.clip(c, -1.0, 1.0)), np.nan)
+    closed = (a > 0) & (e < 1)  # an open orbit has none (NaN)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        a = np.where(closed, a, 1.0)
+        n = np.sqrt(mu / a**3)
+        p = a * (1.0 - np.where(closed, e, 0.0) ** 2)
+        c = -rate / (factor(mu, radius, j2, p) * n)
+        return np.where(closed & (np.abs(c) <= 1.0), np.arccos(np.clip(c, -1.0, 1.0)), np.nan)
 
 
 def highest_sun_synchronous(mu: float, radius: float, j2: float, e=0.0,
