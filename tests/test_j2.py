@@ -249,6 +249,17 @@ def test_a_burn_at_crossing_meets_its_node_under_drift():
     assert all(c["passed"] for c in checks(report).values())
 
 
+def test_an_apse_line_turn_at_crossing_meets_its_goal_under_drift():
+    # the crossing of the orbit with the turned one moves as the apse line drifts
+    _, report = priced("start orbit periapsis 500 km apoapsis 3000 km inclination 50 deg "
+                       "argp 10 deg anomaly 100 deg\n"
+                       "coast c for 5 d\n"
+                       "burn swing at crossing: argp to 90 deg\n"
+                       "expect argp 90 deg within 0.000001 deg, periapsis 500 km within "
+                       "0.000001 km, apoapsis 3000 km within 0.000001 km\n")
+    assert all(c["passed"] for c in checks(report).values())
+
+
 def test_a_transfer_reaches_a_sun_synchronous_circle():
     _, report = priced("start circular 400 km inclination 97 deg\n"
                             "transfer up at node: circular 800 km, inclination to "
