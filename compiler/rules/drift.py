@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 
 import numpy as np
 
@@ -21,14 +20,14 @@ SECANT = 8  # evaluator passes that tune the wait until the node comes out exact
 NODE_TOL = 1e-7  # rad: the rewritten plan's final node against the plan's own
 
 
-@dataclass(frozen=True)
 class Route:
-    """A drift route: the rewritten plan text, its wait (s) and what it drifts in."""
+    """A drift route: the rewritten plan text, its wait (s), what it drifts in and what
+    its burns are (a plain class: no dataclass to build when `run` imports the rules)."""
 
-    text: str
-    wait: float
-    where: str  # "at 1377.8 km altitude" / "at 61.2 deg inclination"
-    legs: str  # what the route's burns are, for the message
+    __slots__ = ("legs", "text", "wait", "where")
+
+    def __init__(self, text: str, wait: float, where: str, legs: str) -> None:
+        self.text, self.wait, self.where, self.legs = text, wait, where, legs
 
 
 def _node_burns(c: Checker):
