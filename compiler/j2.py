@@ -209,6 +209,7 @@ class Drift:
         scale = rates.time_scale
         converged = np.zeros(r.shape[0], dtype=bool)
         before = np.full(r.shape[0], np.inf)  # the step before, to see a noise floor
+        last = d.copy()  # the sweep before (for the secant step)
         for k in range(_ITERATIONS):
             t2b, ok_t = kepler.time_of_flight(r, v, self.mu, d)
             t = t2b / scale
@@ -229,7 +230,15 @@ class Drift:
             # turn were worked out for, so the place below is swept on that very orbit.
             settled = (step <= 1e-14 * np.maximum(1.0, d)) | (
                 (k >= 2) & (step >= 0.5 * before) & (step < 1e-6))
-            d = np.where(converged | settled, d, best)
+            # the map d -> best is nearly linear with a small slope: a secant step on
+            # best - d (from the last two passes) lands far closer than best itself
+            with np.errstate(divide="ignore", invalid="ignore"):
+                slope = (best - d) / (d - last)
+                ahead = d + (best - d) / (1.0 - slope)
+            ahead = np.where(np.isfinite(ahead) & (np.abs(slope) < 0.5) & (ahead >= 0),
+                             ahead, best)
+            last = d
+            d = np.where(converged | settled, d, ahead if k else best)
             converged |= settled
             before = step
             if converged.all():
