@@ -7,8 +7,6 @@ import math
 import numpy as np
 
 from ..check import Checker, Finding, at_same_time, rule, saving_text
-from ..evaluate import run
-from ..load import load_text
 from ..state import TWO_PI, elements_from_state
 from ..steps import Burn
 from ..textfmt import duration
@@ -210,14 +208,13 @@ def _tuned(c: Checker, text, x: float, allowed):
     plan's own at the same moment, until the two planes agree; (x, text) or None where
     it does not settle or leaves what is ``allowed``."""
     def gap(value):
-        try:
-            program = load_text(text(value), c.program.source.path)
-        except Exception:  # noqa: BLE001 - a rewrite that does not read proves nothing
+        program = c.program_of(text(value))  # None: not a valid plan
+        if program is None or c.budget.expired():
             return None
-        result = run(program)
-        if not result.ok:
+        final, ok, _ = c.price(program)  # the plan's own rows up to the rewrite reused
+        if not ok:
             return None
-        a, b = at_same_time(program, result.final, c.result.final)
+        a, b = at_same_time(program, final, c.result.final)
         mu = program.body.gm
         ea, eb = elements_from_state(a.r, a.v, mu), elements_from_state(b.r, b.v, mu)
         return float(np.mod(ea.raan[0] - eb.raan[0] + np.pi, TWO_PI) - np.pi)
