@@ -29,9 +29,9 @@ class Route:
 
 
 def _node_burns(c: Checker):
-    """(index, step, orbit elements at the burn) of goal burns that change only the node
-    (`raan to`, alone or with the inclination the orbit already has) of a circular
-    closed orbit."""
+    """(index, step, its priced row) of goal burns that change only the node (`raan
+    to`, alone or with the inclination the orbit already has) of a circular, inclined
+    orbit."""
     mu = c.program.body.gm
     for i, step in enumerate(c.program.steps):
         if not (isinstance(step, Burn) and step.vector is None and step.raan is not None):
