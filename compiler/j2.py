@@ -23,7 +23,6 @@ sweep and the time that turns the orbit are found together by a fixed-point iter
 motion (1e-3 in low Earth orbit).  Open orbits coast as in the point-mass model.
 
 >>> import numpy as np
->>> d = Drift(398600.4418, 6378.1366, 0.0010826359)
 >>> a = 6378.1366 + 700.0
 >>> i = sun_synchronous(398600.4418, 6378.1366, 0.0010826359, np.array([a]))
 >>> round(float(np.degrees(i[0])), 2)
