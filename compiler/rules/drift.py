@@ -60,8 +60,9 @@ def drift_node_change(c: Checker) -> list[Finding]:
     orbit, the rule prices four routes: down or up by a Hohmann transfer, a coast while
     the drift accumulates, and a Hohmann transfer back; or a tilt of the inclination at
     a node, the coast, and the tilt back.  Each drift orbit is sized so the wait fills
-    the plan's `drift at most` (a year when it sets none), and the wait is tuned on the
-    evaluator until the plan ends in its own plane.  The proof compares the two plans'
+    the plan's `drift at most` (a year when it sets none), and the wait (for a tilt,
+    whose way back waits for a node, the drift inclination) is tuned on the evaluator
+    until the plan ends in its own plane.  The proof compares the two plans'
     final orbits at the same moment, since every node keeps drifting.  The finding gives
     the cost, the saving and the time the drift takes.
     """
