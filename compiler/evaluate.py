@@ -878,10 +878,20 @@ def _three_burn_plane_change(step: Transfer, index, batch: Batch, ctx: Context, 
 
 
 def _span_text(seconds: float) -> str:
-    """A coast's length as a reader would write it: 2 d, 90 min, 3.5 h, 40 s."""
-    for word, size in (("d", 86400.0), ("h", 3600.0), ("min", 60.0)):
+    """A coast's length as a reader would write it: 2 d, 90 min, 3.5 h, 40 s; a length
+    no unit gives in whole hundredths (a drift's wait, to the microsecond) in its largest
+    unit, to six figures: 117.561 d, never 1.01572e+07 s.
+
+    >>> _span_text(172800.0), _span_text(5400.0), _span_text(10157234.57919)
+    ('2 d', '1.5 h', '117.561 d')
+    """
+    units = (("d", 86400.0), ("h", 3600.0), ("min", 60.0))
+    for word, size in units:
         if seconds >= size and (seconds / size) * 100 == round((seconds / size) * 100):
             return f"{seconds / size:g} {word}"
+    for word, size in units:
+        if seconds >= size:
+            return f"{seconds / size:.6g} {word}"
     return f"{seconds:g} s"
 
 
