@@ -16,6 +16,7 @@ import numpy as np
 from apsidal.lang.errors import PlanError
 
 from . import conic_goals, frames, kepler
+from .legs import in_phase, leg_rows, phases_of
 from .solvers import (
     Failures,
     Shape,
@@ -189,8 +190,11 @@ class Context:
     descent_from: int | None = None  # see Program.descent_from
     entry_radius: float | None = None  # the interface of the plan's `entry`, km
     interface: float | None = None  # set on the way down (``apply``): coasts stay above it
+    phases: tuple = ()  # (first step, mu, radius) of each phase after a leg (legs.phases_of)
     drift: object | None = None  # a ``j2.Drift`` under `gravity j2`: coasts drift secularly
     j2: float | None = None  # the body's J2 (for sun-synchronous goals in either model)
+    # (first step, Drift or None, J2) of each phase after a leg, under `gravity j2`
+    phase_drifts: tuple = ()
 
 
 def context_for(program: Program) -> Context:
@@ -202,8 +206,20 @@ def context_for(program: Program) -> Context:
         drift = Drift(program.body.gm, program.body.radius, program.body.j2)
     return Context(program.body.gm, program.body.radius, program.craft.default_engine,
                    program.margin, program.statistical_scale, program.descent_from,
-                   end.radius if isinstance(end, Entry) else None, drift=drift,
-                   j2=program.body.j2)
+                   end.radius if isinstance(end, Entry) else None,
+                   phases=phases_of(program.steps), drift=drift, j2=program.body.j2,
+                   phase_drifts=_phase_drifts(program, drift is not None))
+
+
+def _phase_drifts(program: Program, drifting: bool) -> tuple:
+    """(first step, Drift or None, J2) of each phase after a leg: every phase drifts with
+    its own body's J2 under `gravity j2` (lowering refuses it where one has none), and
+    sun-synchronous goals there read that body's J2."""
+    from .j2 import Drift
+    from .legs import is_leg
+
+    return tuple((i + 1, Drift(s.body.gm, s.body.radius, s.body.j2) if drifting else None,
+                  s.body.j2) for i, s in enumerate(program.steps) if is_leg(s))
 
 
 def descending(ctx: Context, index: int) -> Context:
@@ -1034,7 +1050,14 @@ def apply(step: Step, index: int, batch: Batch, ctx: Context) -> tuple[Batch, li
     """Move the whole batch through one step."""
     fails = Failures(batch.size)
     ctx = descending(ctx, index)
-    if isinstance(step, Entry):
+    if ctx.phases:  # a plan of several bodies: this step's
+        ctx = in_phase(ctx, index)
+        for first, drift, j2 in ctx.phase_drifts:  # and its J2 drift (under gravity j2)
+            if first <= index:
+                ctx = replace(ctx, drift=drift, j2=j2)
+    if step.kind == "leg":
+        new, rows = leg_rows(step, index, batch, ctx, fails)
+    elif isinstance(step, Entry):
         from .entry import entry_rows
 
         new, rows = entry_rows(step, index, batch, ctx, fails)
