@@ -544,6 +544,14 @@ CASES = [
         head=HEAD + "gravity j2\n"), 11, 1, "transfer geo",
         ("its far burn stands at latitude", "no plane has inclination 0.0000 deg"),
         "turn the plane with a burn `at node: inclination to ...` after it"),
+    Bad("gravity-j2-leg-to-a-body-without-j2", (
+        "around jupiter\ngravity j2\n"
+        "craft c { dry 500 kg propellant 3000 kg engine main isp 320 s thrust 400 N }\n"
+        "start circular 2000000 km inclination 0 deg\nburn go: vinf to leg\n"
+        "leg tour to ganymede vinf 3 km/s to 2 km/s for 10 d\n"
+        "start orbit periapsis 500 km inclination 10 deg anomaly -30 deg\n"), 6, 1,
+        "leg tour", ("needs the J2 of every body", "Ganymede (after leg `tour`) has none"),
+        "`gravity point-mass`"),
     Bad("negative-drift-limit", plan(head=HEAD + "drift at most -3 d\n"), 9, 15, "-3 d",
         ("drift at most must be positive",), "greater than zero"),
     Bad("drift-limit-in-point-mass", plan(head=HEAD + "drift at most 30 d\n"), 9, 1,

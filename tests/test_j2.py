@@ -307,6 +307,24 @@ def test_phasing_under_drift_comes_back_to_the_same_point_of_the_turned_orbit():
     assert moved == pytest.approx(rate * wait, rel=1e-9)
 
 
+def test_after_a_leg_the_phase_drifts_with_its_own_body():
+    # The Venus phase of the courier sample under gravity j2: its node rate is Venus's,
+    # the classical rate worked here from the catalogue's Venus (not the Earth's).
+    text = (ROOT / "samples" / "venus-courier.aps").read_text().replace(
+        "around earth", "around earth\ngravity j2", 1) + "expect rate raan drift 0 deg/d\n"
+    result = run(load_text(text))
+    assert result.ok
+    check = checks(budget(result))["raan drift"]
+    from apsidal.compiler.bodies import lookup
+
+    venus = lookup("venus")
+    el = elements_from_state(result.final.r, result.final.v, venus.gm)
+    p = el.sma[0] * (1 - el.ecc[0] ** 2)
+    rate = -1.5 * math.sqrt(venus.gm / el.sma[0] ** 3) * venus.j2 * (venus.radius / p) ** 2 \
+        * math.cos(el.inclination[0])
+    assert check["actual"] == pytest.approx(rate * DEG_PER_DAY, abs=1e-9)  # 9 places
+
+
 # --- the model in the reports, the diff and the formatter -------------------------------
 
 
