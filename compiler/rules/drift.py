@@ -7,6 +7,7 @@ import math
 import numpy as np
 
 from ..check import Checker, Finding, at_same_time, rule, saving_text
+from ..legs import final_body
 from ..state import TWO_PI, elements_from_state
 from ..steps import Burn
 from ..textfmt import duration
@@ -32,10 +33,10 @@ def _node_burns(c: Checker):
     """(index, step, its priced row) of goal burns that change only the node (`raan
     to`, alone or with the inclination the orbit already has) of a circular, inclined
     orbit."""
-    mu = c.program.body.gm
     for i, step in enumerate(c.program.steps):
         if not (isinstance(step, Burn) and step.vector is None and step.raan is not None):
             continue
+        mu = c.body_at(i).gm  # the body of the burn's phase (a plan with legs has several)
         if step.changes_shape or step.sun_synchronous is not None or step.fixed:
             continue
         row = c.rows_of(i)[0]
@@ -66,7 +67,7 @@ def drift_node_change(c: Checker) -> list[Finding]:
     final orbits at the same moment, since every node keeps drifting.  The finding gives
     the cost, the saving and the time the drift takes.
     """
-    if c.program.gravity != "j2" or not c.program.body.j2:
+    if c.program.gravity != "j2":
         return []
     limit = c.program.drift_limit or DEFAULT_WAIT
     out = []
@@ -136,7 +137,8 @@ def _nearest(rate, rate0: float, turn: float, far: float, near: float, limit: fl
 
 def _altitude_route(c: Checker, i: int, step: Burn, row, limit: float, down: bool):
     """Hohmann down (or up) to a drift orbit, coast, Hohmann back."""
-    body, mu = c.program.body, c.program.body.gm
+    body = c.body_at(i)
+    mu = body.gm
     el = elements_from_state(row.after.r, row.v_before, mu)
     a0, inc = float(np.linalg.norm(row.after.r[0])), float(el.inclination[0])
 
@@ -172,7 +174,8 @@ def _altitude_route(c: Checker, i: int, step: Burn, row, limit: float, down: boo
 
 def _tilt_route(c: Checker, i: int, step: Burn, row, limit: float, up: bool):
     """A tilt of the inclination at a node, coast, the tilt back at a node."""
-    body, mu = c.program.body, c.program.body.gm
+    body = c.body_at(i)
+    mu = body.gm
     el = elements_from_state(row.after.r, row.v_before, mu)
     a0, i0 = float(np.linalg.norm(row.after.r[0])), float(el.inclination[0])
     k = 1.5 * body.j2 * (body.radius / a0) ** 2 * math.sqrt(mu / a0**3)
@@ -216,7 +219,7 @@ def _tuned(c: Checker, text, x: float, allowed):
         if not ok:
             return None
         a, b = at_same_time(program, final, c.result.final)
-        mu = program.body.gm
+        mu = final_body(program).gm  # the final state is around the last phase's body
         ea, eb = elements_from_state(a.r, a.v, mu), elements_from_state(b.r, b.v, mu)
         return float(np.mod(ea.raan[0] - eb.raan[0] + np.pi, TWO_PI) - np.pi)
 
