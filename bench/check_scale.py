@@ -135,6 +135,9 @@ def part_one(sizes, limit: float) -> None:
           f"{'base MB':>8} {'findings':>9}  cut short")
     cases = [(f"mixed {n}", mixed_plan(n)) for n in sizes]
     cases.append(("goal block 200", goal_plan(200)))
+    # the same mixed plans with every coast drifting under J2 (gravity j2)
+    j2 = lambda text: text.replace("around earth", "around earth\ngravity j2", 1)
+    cases += [(f"mixed {n} j2", j2(mixed_plan(n))) for n in sizes if n in (50, 200)]
     for label, text in cases:
         base = in_child(text, "run", limit)
         got = in_child(text, "check", limit)

@@ -20,6 +20,12 @@ CAUTION = ("Preliminary-design estimates under the impulsive two-body approximat
            "confirm with high-fidelity analysis and the responsible flight-dynamics "
            "authority before committing a mission to them.")
 
+CAUTION_J2 = ("Preliminary-design estimates under the impulsive two-body approximation with "
+              "the secular first-order J2 drift of the node, apse line and mean motion (no "
+              "short-period terms, drag or third bodies); confirm with high-fidelity analysis "
+              "and the responsible flight-dynamics authority before committing a mission to "
+              "them.")
+
 
 def finite(x, digits: int | None = None):
     """A float for output, or None where it is not finite."""
@@ -165,7 +171,8 @@ def _coast_time(row: Row) -> float:
 UNIT_OF_CHECK = {"periapsis": "km", "apoapsis": "km", "circular": "km", "sma": "km",
                  "ecc": "", "inclination": "deg", "raan": "deg", "argp": "deg",
                  "period": "s", "mass": "kg", "propellant": "kg", "vinf": "km/s",
-                 "c3": "km2/s2", "elapsed": "s", "anomaly": "deg"}
+                 "c3": "km2/s2", "elapsed": "s", "anomaly": "deg", "raan drift": "deg/d"}
+DEG_PER_DAY = 86400.0 * 180.0 / np.pi  # rad/s to deg/d
 
 
 def check_value(kind: str, x: float, radius: float) -> float | None:
@@ -176,6 +183,8 @@ def check_value(kind: str, x: float, radius: float) -> float | None:
         return degrees_wrapped(x)
     if kind == "inclination":
         return finite(np.degrees(x), 9)
+    if kind == "raan drift":
+        return finite(x * DEG_PER_DAY, 9)
     return finite(x, 9)
 
 
@@ -183,6 +192,8 @@ def _check_dict(c, radius: float) -> dict:
     tol = c.tolerance
     if c.kind in ("inclination", "raan", "argp", "anomaly"):
         tol = np.degrees(tol)
+    elif c.kind == "raan drift":
+        tol = tol * DEG_PER_DAY
     missing = c.missing(0)
     out = {
         "kind": c.kind,
@@ -349,11 +360,12 @@ def budget(result: Result) -> dict:
                   "propellant_kg": p.craft.propellant,
                   "default_engine": p.craft.default_engine.name},
         "margin_pct": finite(p.margin * 100.0, 9),
+        "gravity": p.gravity,
         "feasible": feasible,
         "steps": steps,
         "totals": totals,
         "findings": [],
-        "caution": CAUTION,
+        "caution": CAUTION if p.gravity == "point-mass" else CAUTION_J2,
     }
     if any(is_leg(s) for s in p.steps):
         out["phases"] = phases_list(result)

@@ -445,7 +445,8 @@ class Checker(PhaseBodies):
             return None
         from .reorder import orientation_matters, same_orbit  # proofs only, not `run`
 
-        same = same_orbit(final, self.result.final, final_body(program).gm,
+        final_, ref = at_same_time(program, final, self.result.final)
+        same = same_orbit(final_, ref, final_body(program).gm,
                           orientation_matters(self.program))
         if not bool(same[0]):
             return None
@@ -552,6 +553,30 @@ class Checker(PhaseBodies):
             n=1))
         return Finding(rule, severity, tuple(steps), message, proof.saves_m_s, proof.saves_kg,
                        proof.text, diff, tuple(notes))
+
+
+def at_same_time(program: Program, a: Batch, ref: Batch) -> tuple[Batch, Batch]:
+    """Two final states compared at the same moment: under `gravity j2` every orbit's
+    node and apse line keep drifting, so the one that ends sooner coasts on (as its
+    plan left it) to the other's end before the two orbits are compared; in the
+    point-mass model the orbit does not change while coasting, and both are as given."""
+    if program.gravity != "j2":
+        return a, ref
+    from .j2 import Drift
+
+    body = final_body(program)  # the body of the plan's last phase
+    drift = Drift(body.gm, body.radius, body.j2)
+    gap = a.t - ref.t  # (B,) against the single reference
+
+    def coasted(b: Batch, dt) -> Batch:
+        r, v, ok = drift.propagate(b.r, b.v, np.maximum(dt, 0.0))
+        return replace(b, r=np.where(ok[:, None], r, b.r), v=np.where(ok[:, None], v, b.v),
+                       t=b.t + np.maximum(dt, 0.0))
+
+    size = a.size
+    ref_b = Batch(*(np.repeat(getattr(ref, f), size, axis=0) for f in
+                    ("r", "v", "mass", "propellant", "t", "dv", "dv_margin", "expect_ok")))
+    return coasted(a, -gap), coasted(ref_b, gap)
 
 
 def _plain(x):

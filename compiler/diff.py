@@ -315,7 +315,10 @@ def diff_reports(old: dict, new: dict, old_info: dict[str, StepInfo] | None = No
     removed_before(len(m.old))
     out = {"old": old["totals"], "new": new["totals"],
            "change": totals_change(old["totals"], new["totals"]), "steps": steps,
-           "feasible": {"old": old.get("feasible", True), "new": new.get("feasible", True)}}
+           "feasible": {"old": old.get("feasible", True), "new": new.get("feasible", True)},
+           # the model that priced each side (reports before it carried none: point-mass)
+           "gravity": {"old": old.get("gravity", "point-mass"),
+                       "new": new.get("gravity", "point-mass")}}
     if findings or (findings is None and (old.get("findings") or new.get("findings"))):
         out["findings"] = findings_change(old.get("findings", []), new.get("findings", []))
     return out

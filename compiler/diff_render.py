@@ -74,13 +74,21 @@ def headline(diff: dict) -> str:
     propellant``."""
     ch = diff["change"]
     dv, kg = ch.get("dv_with_margin_m_s"), ch.get("propellant_kg")
-    fit = fit_change(diff)
+    fit = gravity_change(diff) + fit_change(diff)
     reserve = ch.get("reserve_m_s")
     if signed(reserve, 1) != "0":
         fit += f"reserve {signed(reserve, 1)} m/s; "
     if signed(dv, 1) == "0" and signed(kg, 2) == "0":
         return fit + "no change to delta-v or propellant"
     return fit + f"{signed(dv, 1)} m/s delta-v with margin, {signed(kg, 2)} kg propellant"
+
+
+def gravity_change(diff: dict) -> str:
+    """A change of the gravity model between the revisions ("" when there is none)."""
+    model = diff.get("gravity") or {}
+    if model.get("old", "point-mass") == model.get("new", "point-mass"):
+        return ""
+    return f"gravity {model.get('old', 'point-mass')} -> {model.get('new', 'point-mass')}; "
 
 
 def fit_change(diff: dict) -> str:
@@ -298,6 +306,9 @@ def to_csv(diff: dict) -> str:
         rows.append({"record": "total", "name": "total", "quantity": key,
                      "old": (diff["old"] or {}).get(key), "new": (diff["new"] or {}).get(key),
                      "change": (diff.get("change") or {}).get(key)})
+    if gravity_change(diff):  # the model of each side, as a row of the totals
+        rows.append({"record": "total", "name": "total", "quantity": "gravity",
+                     "old": diff["gravity"]["old"], "new": diff["gravity"]["new"]})
     for how, f in _findings_lines(diff):
         rows.append({"record": "finding", "name": ", ".join(f["steps"]), "status": how,
                      "severity": f["severity"], "rule": f["rule"], "message": f["message"]})

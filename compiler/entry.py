@@ -62,8 +62,12 @@ def entry_rows(step: Entry, index: int, batch: Batch, ctx: Context, fails: Failu
         ("turn the craft back first: its last burn must put the periapsis under the interface "
         "ahead of it")))
     d = np.where(fails.ok, d, 0.0)
-    dt, ok_t = kepler.time_of_flight(batch.r, batch.v, mu, d)
-    r1, v1, ok_p = kepler.place(batch.r, batch.v, mu, d)
+    if ctx.drift is not None:  # the crossing is a true anomaly: the same on the turned orbit
+        r1, v1, dt, ok_t = ctx.drift.goto(batch.r, batch.v, d, lambda rr, vv: (d,))
+        ok_p = ok_t
+    else:
+        dt, ok_t = kepler.time_of_flight(batch.r, batch.v, mu, d)
+        r1, v1, ok_p = kepler.place(batch.r, batch.v, mu, d)
     fails.add(~(ok_t & ok_p), lambda i: (("the coast to the entry interface could not be "
                                          "flown"), None))
     ok = fails.ok
@@ -85,6 +89,8 @@ def before_interface(step, batch: Batch, dt, ctx: Context, fails: Failures) -> N
         "end the plan with `entry` before this coast"))
     d, _ = _inbound(batch.r, batch.v, ctx.mu, R)
     t_in, ok = kepler.time_of_flight(batch.r, batch.v, ctx.mu, np.where(np.isfinite(d), d, 0.0))
+    if ctx.drift is not None:  # J2's mean motion: the same sweep in another time
+        t_in = t_in / ctx.drift.rates(batch.r, batch.v).time_scale
     early = np.isfinite(d) & ok & (t_in < dt * (1.0 - 1e-12) - 1e-9)
     fails.add(early, lambda i: (
         (f"the craft comes down through the entry interface ({shown}) {t_in[i]:.3f} s into "

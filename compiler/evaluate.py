@@ -135,7 +135,8 @@ class CheckResult:
         if self.kind in CLOSED_UNDEFINED:
             return (f"the orbit is closed (eccentricity {self.ecc[i]:.6f}): it has no "
                     "hyperbolic excess speed")
-        what = {"period": "period", "circular": "apoapsis"}.get(self.kind, self.kind)
+        what = {"period": "period", "circular": "apoapsis",
+                "raan drift": "secular node drift"}.get(self.kind, self.kind)
         return (f"the orbit is open (eccentricity {self.ecc[i]:.6f}): it has no {what}")
 
 
@@ -203,15 +204,36 @@ class Context:
     finite: bool = False  # `burns finite`: burns are flown as finite burns
     steering: str = "velocity"  # their thrust direction: velocity | inertial
     phases: tuple = ()  # (first step, mu, radius) of each phase after a leg (legs.phases_of)
+    drift: object | None = None  # a ``j2.Drift`` under `gravity j2`: coasts drift secularly
+    j2: float | None = None  # the body's J2 (for sun-synchronous goals in either model)
+    # (first step, Drift or None, J2) of each phase after a leg, under `gravity j2`
+    phase_drifts: tuple = ()
 
 
 def context_for(program: Program) -> Context:
     end = program.steps[-1] if program.steps else None
+    drift = None
+    if program.gravity == "j2":
+        from .j2 import Drift
+
+        drift = Drift(program.body.gm, program.body.radius, program.body.j2)
     return Context(program.body.gm, program.body.radius, program.craft.default_engine,
                    program.margin, program.statistical_scale, program.descent_from,
                    end.radius if isinstance(end, Entry) else None,
                    finite=program.burns == "finite", steering=program.steering,
-                   phases=phases_of(program.steps))
+                   phases=phases_of(program.steps), drift=drift, j2=program.body.j2,
+                   phase_drifts=_phase_drifts(program, drift is not None))
+
+
+def _phase_drifts(program: Program, drifting: bool) -> tuple:
+    """(first step, Drift or None, J2) of each phase after a leg: every phase drifts with
+    its own body's J2 under `gravity j2` (lowering refuses it where one has none), and
+    sun-synchronous goals there read that body's J2."""
+    from .j2 import Drift
+    from .legs import is_leg
+
+    return tuple((i + 1, Drift(s.body.gm, s.body.radius, s.body.j2) if drifting else None,
+                  s.body.j2) for i, s in enumerate(program.steps) if is_leg(s))
 
 
 def descending(ctx: Context, index: int) -> Context:
@@ -299,14 +321,20 @@ def _radius_angle(place: Place, r, v, mu, fails: Failures, body_radius: float):
     return np.where(np.isfinite(d), d, 0.0)
 
 
-def goto(place: Place, r, v, mu, fails: Failures, sweep=None, radius: float = 0.0):
+def goto(place: Place, r, v, mu, fails: Failures, sweep=None, radius: float = 0.0,
+         drift=None):
     """Coast to ``place``; returns (r, v, seconds).
 
     A ``crossing`` is resolved by the caller, who knows the plane: ``sweep`` is the angle
-    to it, per element.  ``radius`` (the body's) words the messages in altitudes.
+    to it, per element (under drift an ``Aim``, which finds it again on a turned orbit).
+    ``radius`` (the body's) words the messages in altitudes; ``drift`` (a ``j2.Drift``)
+    makes the coast drift secularly, reaching the place of the drifted orbit.
     """
     if place.kind == "here":
         return r, v, np.zeros(r.shape[0])
+    aim = sweep if isinstance(sweep, Aim) else None
+    if aim is not None:
+        sweep = aim.angle
     f = frame(r, v, mu)  # shared by the three below
     if place.kind == "crossing":  # exact geometry: no snapping of small angles to here
         d = np.where(sweep > TWO_PI - 1e-15, 0.0, sweep)
@@ -314,14 +342,47 @@ def goto(place: Place, r, v, mu, fails: Failures, sweep=None, radius: float = 0.
         d = _target_angle(place, r, v, mu, fails, radius, f)
     if not d.any():  # already there, every element: no coast
         return r, v, np.zeros(r.shape[0])
-    dt, ok_t = kepler.time_of_flight(r, v, mu, d, f)
-    r1, v1, ok_p = kepler.place(r, v, mu, d, f)
-    fails.add(~(ok_t & ok_p), lambda i: (
+    if drift is not None:
+        if aim is not None:
+            again = aim.again
+        elif place.kind == "crossing":  # pragma: no cover - callers under drift give an Aim
+            raise ValueError("a crossing under drift needs an Aim")
+        elif place.kind in ("periapsis", "apoapsis", "anomaly", "radius"):
+            again = None  # a true anomaly: the same place on the turned orbit
+        else:
+            again = lambda rr, vv: (_target_angle(place, rr, vv, mu, Failures(rr.shape[0]),
+                                                  radius),)
+        r1, v1, dt, good = drift.goto(r, v, d, again)
+    else:
+        dt, ok_t = kepler.time_of_flight(r, v, mu, d, f)
+        r1, v1, ok_p = kepler.place(r, v, mu, d, f)
+        good = ok_t & ok_p
+    open_ = norm(f.e_vec) >= 1.0
+    fails.add(~good & (open_ | (drift is None)), lambda i: (
         f"the craft never reaches {place.label()} on this open orbit",
         "burn here or at a point ahead of the craft"))
-    good = ok_t & ok_p
+    fails.add(~good & ~open_ & (drift is not None), lambda i: (
+        (f"{place.label()} could not be found on the drifting orbit (the sweep to it and "
+         "the drift of the orbit did not settle together)"),
+        "coast for a time to near the place first, or fly this step under `gravity point-mass`"))
     return (np.where(good[:, None], r1, r), np.where(good[:, None], v1, v),
             np.where(good, dt, 0.0))
+
+
+@dataclass(frozen=True)
+class Aim:
+    """The sweep to a crossing, and how to find it again from a state on a turned orbit
+    (``again(r, v)`` gives the candidate sweeps; the nearest to the last is taken)."""
+
+    angle: np.ndarray
+    again: object
+
+
+def _aims(ctx: Context, first, second, again):
+    """The two crossings as they are (point-mass) or as ``Aim`` (under drift)."""
+    if ctx.drift is None:
+        return first, second
+    return Aim(first, again), Aim(second, again)
 
 
 # --- burns ---------------------------------------------------------------------------
@@ -340,6 +401,8 @@ class BurnOutcome:
 def _solve_burn(step: Burn, r, v, ctx: Context, fails: Failures, normal=None):
     """Velocity after the burn at the current position."""
     mu = ctx.mu
+    if step.sun_synchronous is not None and normal is None:
+        return _sun_synchronous_burn(step, r, v, ctx, fails)
     if step.vector is not None:
         return v + frames.inertial(step.frame, r, v, step.vector)
     rmag = norm(r)
@@ -373,10 +436,45 @@ def _solve_burn(step: Burn, r, v, ctx: Context, fails: Failures, normal=None):
     return np.where(fails.ok[:, None], v_new, v)
 
 
+def _sun_synchronous_burn(step: Burn, r, v, ctx: Context, fails: Failures):
+    """A burn to the sun-synchronous inclination of the orbit it makes: the inclination
+    depends on that orbit's size and shape, which (through the plane's turn) may depend
+    on the inclination, so the two are iterated to a fixed point (they contract fast:
+    the inclination moves with p^3.5)."""
+    from .j2 import sun_synchronous
+
+    plain = replace(step, sun_synchronous=None)
+    rate = step.sun_synchronous
+    orbit = lambda vv: elements_from_state(r, vv, ctx.mu)
+    el = orbit(v)
+    inc = sun_synchronous(ctx.mu, ctx.radius, ctx.j2, el.sma, np.minimum(el.ecc, 0.999), rate)
+    for _ in range(30):
+        scratch = Failures(r.shape[0])
+        ok = np.isfinite(inc)
+        normal = normal_for(r, v, np.where(ok, inc, 0.0), step.raan, scratch)
+        el = orbit(_solve_burn(plain, r, v, ctx, scratch, normal))
+        closed = el.closed & (el.sma > 0)
+        new = np.where(closed, sun_synchronous(ctx.mu, ctx.radius, ctx.j2,
+                                               np.where(closed, el.sma, 1.0),
+                                               np.where(closed, el.ecc, 0.0), rate), np.nan)
+        settled = np.all(~np.isfinite(new) | (np.abs(new - inc) <= 1e-14))
+        inc = new
+        if settled:
+            break
+    bad = ~np.isfinite(inc)
+    fails.add(bad, lambda i: (
+        (f"the orbit after the burn (sma {el.sma[i]:.3f} km, eccentricity {el.ecc[i]:.6f}) "
+         "has no sun-synchronous inclination: it is open, or too high for any "
+         "inclination's node drift to match the Sun's"),
+        "lower the orbit first, or give the inclination in degrees"))
+    normal = normal_for(r, v, np.where(bad, el.inclination, inc), step.raan, fails)
+    return _solve_burn(plain, r, v, ctx, fails, normal)
+
+
 def _burn_at(step: Burn, place: Place, r, v, ctx: Context, normal=None,
              sweep=None) -> BurnOutcome:
     fails = Failures(r.shape[0])
-    r1, v1, coast = goto(place, r, v, ctx.mu, fails, sweep, ctx.radius)
+    r1, v1, coast = goto(place, r, v, ctx.mu, fails, sweep, ctx.radius, ctx.drift)
     v2 = _solve_burn(step, r1, v1, ctx, fails, normal)
     return BurnOutcome(r1, v1, v2, coast, fails, place.label())
 
@@ -411,7 +509,9 @@ def burn_outcome(step: Burn, r, v, ctx: Context, normal=None) -> BurnOutcome:
     if step.place.kind == "crossing" and step.argp is not None:
         return _apse_crossing(step, r, v, ctx, normal)
     if step.place.kind == "crossing":
-        first, second = crossings(r, v, target_plane(r, v, step.inclination, step.raan))
+        target = target_plane(r, v, step.inclination, step.raan)
+        first, second = _aims(ctx, *crossings(r, v, target),
+                              lambda rr, vv: crossings(rr, vv, target))
         return _cheaper(_burn_at(step, step.place, r, v, ctx, normal, first),
                         _burn_at(step, step.place, r, v, ctx, normal, second))
     return _burn_at(step, step.place, r, v, ctx, normal)
@@ -430,6 +530,8 @@ def _apse_crossing(step: Burn, r, v, ctx: Context, normal=None) -> BurnOutcome:
         ("the two orbits cross only behind the craft or beyond the asymptote of this open "
          "orbit"),
         "turn the apse line on the way in (before periapsis), or change the shape first"))
+    first, second = _aims(ctx, first, second, lambda rr, vv: conic_goals.apse_crossings(
+        rr, vv, ctx.mu, p2, e2, step.argp, Failures(rr.shape[0]), ctx.radius))
     out = _cheaper(_burn_at(step, step.place, r, v, ctx, normal, first),
                    _burn_at(step, step.place, r, v, ctx, normal, second))
     found.merge(np.ones(r.shape[0], dtype=bool), out.fails)
@@ -598,6 +700,14 @@ def _phase_burns(step: Transfer, r, v, ctx: Context):
 
 
 def _transfer(step: Transfer, index: int, batch: Batch, ctx: Context, fails: Failures):
+    if ctx.drift is not None and step.raan is not None:
+        # the node moves while the transfer orbit is flown: no fixed plane to arrive in
+        fails.add(np.ones(batch.size, dtype=bool), lambda i: (
+            ("under `gravity j2` the node drifts during a transfer, so a transfer cannot "
+             "arrive in a fixed plane with `raan to`"),
+            ("transfer with `inclination to` alone, then turn the node with a burn `at "
+             "crossing: raan to ...`")))
+        return batch, []
     if step.place.kind in ("node", "crossing"):
         # price the whole transfer from each node (crossing) and keep the cheaper per element
         if step.place.kind == "node":
@@ -605,7 +715,8 @@ def _transfer(step: Transfer, index: int, batch: Batch, ctx: Context, fails: Fai
                     for kind in ("ascending node", "descending node")]
         else:
             target = target_plane(batch.r, batch.v, step.inclination, step.raan)
-            ways = [(step, d) for d in crossings(batch.r, batch.v, target)]
+            ways = [(step, d) for d in _aims(ctx, *crossings(batch.r, batch.v, target),
+                                             lambda rr, vv: crossings(rr, vv, target))]
         results = []
         for way, sweep in ways:
             sub = Failures(batch.size)
@@ -660,7 +771,7 @@ def _transfer_from(step: Transfer, index: int, batch: Batch, ctx: Context, fails
     if step.form == "plane-change":
         return _three_burn_plane_change(step, index, batch, ctx, fails, sweep)
     r0, v0, _ = goto(step.place, batch.r, batch.v, ctx.mu, Failures(batch.size), sweep,
-                     ctx.radius)
+                     ctx.radius, ctx.drift)
     up, phases = _phase_burns(step, r0, v0, ctx)
     normals = [None] * len(phases)
     if step.changes_plane:
@@ -674,15 +785,46 @@ def _transfer_from(step: Transfer, index: int, batch: Batch, ctx: Context, fails
             normals = _split_normals(r0, v0, target, share)
         else:
             normals = [None, target, None]  # all of it at the bi-elliptic's far apoapsis
+        if ctx.drift is not None:
+            # the orbit drifts between the burns: the burn that finishes the plane change
+            # turns about its own radius to the goal's inclination (no raan goal here)
+            last = len(phases) - 1 if step.form == "hohmann" else 1
+            phases[last] = tuple(replace(b, inclination=step.inclination)
+                                 for b in phases[last])
+            normals[last] = None
     rows = []
     for k, ((b_up, b_down), normal) in enumerate(zip(phases, normals)):
         first = sweep if k == 0 else None
+        if ctx.drift is not None and b_up.inclination is not None:
+            _far_from_the_node(step, b_up, b_down, up, batch, ctx, fails)
         if up is None:
             batch, row = _burn_rows(b_up, index, b_up.name, batch, ctx, fails, normal, first)
         else:
             batch, row = _either(b_up, b_down, up, index, batch, ctx, fails, normal, first)
         rows.append(row)
     return batch, rows
+
+
+def _far_from_the_node(step: Transfer, b_up: Burn, b_down: Burn, up, batch: Batch,
+                       ctx: Context, fails: Failures) -> None:
+    """Under drift the burn that finishes a transfer's plane change is no longer on the
+    node line (the transfer orbit's apse line and node have turned on the way): an
+    inclination below the latitude there cannot be reached by it.  Refused with the
+    numbers, before the burn's own (plainer) refusal."""
+    tmp = Failures(batch.size)
+    place_of = lambda b: goto(b.place, batch.r, batch.v, ctx.mu, tmp, None, ctx.radius,
+                              ctx.drift)[0]
+    r = place_of(b_up) if up is None else np.where(up[:, None], place_of(b_up),
+                                                   place_of(b_down))
+    lat = np.arcsin(np.clip(r[:, 2] / norm(r), -1.0, 1.0))
+    goal = step.inclination
+    low = (goal < np.abs(lat) - 1e-12) | (goal > np.pi - np.abs(lat) + 1e-12)
+    fails.add(low & tmp.ok, lambda i: (
+        (f"under `gravity j2` the transfer orbit's node and apse line turn on the way, so "
+         f"its far burn stands at latitude {np.degrees(lat[i]):.4f} deg, off the node line, "
+         f"where no plane has inclination {np.degrees(goal):.4f} deg"),
+        ("transfer without the plane change and turn the plane with a burn `at node: "
+         "inclination to ...` after it, or price this transfer under `gravity point-mass`")))
 
 
 def _split_normals(r, v, target, share):
@@ -754,7 +896,7 @@ def _three_burn_plane_change(step: Transfer, index, batch: Batch, ctx: Context, 
     from.
     """
     tmp = Failures(batch.size)
-    r0, v0, _ = goto(step.place, batch.r, batch.v, ctx.mu, tmp, sweep, ctx.radius)
+    r0, v0, _ = goto(step.place, batch.r, batch.v, ctx.mu, tmp, sweep, ctx.radius, ctx.drift)
     el = elements_from_state(r0, v0, ctx.mu)
     circular = el.ecc < CIRCULAR_ECC
     here = norm(r0)
@@ -782,23 +924,36 @@ def _three_burn_plane_change(step: Transfer, index, batch: Batch, ctx: Context, 
 
 
 def _span_text(seconds: float) -> str:
-    """A coast's length as a reader would write it: 2 d, 90 min, 3.5 h, 40 s."""
-    for word, size in (("d", 86400.0), ("h", 3600.0), ("min", 60.0)):
+    """A coast's length as a reader would write it: 2 d, 90 min, 3.5 h, 40 s; a length
+    no unit gives in whole hundredths (a drift's wait, to the microsecond) in its largest
+    unit, to six figures: 117.561 d, never 1.01572e+07 s.
+
+    >>> _span_text(172800.0), _span_text(5400.0), _span_text(10157234.57919)
+    ('2 d', '1.5 h', '117.561 d')
+    """
+    units = (("d", 86400.0), ("h", 3600.0), ("min", 60.0))
+    for word, size in units:
         if seconds >= size and (seconds / size) * 100 == round((seconds / size) * 100):
             return f"{seconds / size:g} {word}"
+    for word, size in units:
+        if seconds >= size:
+            return f"{seconds / size:.6g} {word}"
     return f"{seconds:g} s"
 
 
 def _coast(step: Coast, index: int, batch: Batch, ctx: Context, fails: Failures):
     mu = ctx.mu
     if step.mode == "for":
-        r, v, ok = kepler.propagate(batch.r, batch.v, mu, np.full(batch.size, step.duration))
+        move = kepler.propagate if ctx.drift is None else (
+            lambda r, v, mu, dt: ctx.drift.propagate(r, v, dt))
+        r, v, ok = move(batch.r, batch.v, mu, np.full(batch.size, step.duration))
         fails.add(~ok, lambda i: ("the coast could not be propagated", None))
         dt = np.full(batch.size, step.duration)
         at = (f"for {_span_text(step.duration)}" if np.ndim(step.duration) == 0
               else "for a time")
     elif step.mode == "to":
-        r, v, dt = goto(step.place, batch.r, batch.v, mu, fails, radius=ctx.radius)
+        r, v, dt = goto(step.place, batch.r, batch.v, mu, fails, radius=ctx.radius,
+                         drift=ctx.drift)
         at = step.place.label()
     else:
         el = elements_from_state(batch.r, batch.v, mu)
@@ -807,12 +962,16 @@ def _coast(step: Coast, index: int, batch: Batch, ctx: Context, fails: Failures)
             "coast `for` a time instead"))
         period = np.where(el.closed, el.period, 0.0)
         part = step.revs - np.floor(step.revs)  # whole revolutions come back here
-        if part > 0:
+        if ctx.drift is not None:  # anomalistic periods of the drifting orbit
+            r, v, dt, ok = ctx.drift.whole_revs(batch.r, batch.v, step.revs)
+            fails.add(~ok & el.closed, lambda i: ("the coast could not be propagated", None))
+        elif part > 0:
             r, v, ok = kepler.propagate(batch.r, batch.v, mu, period * part)
             fails.add(~ok, lambda i: ("the coast could not be propagated", None))
         else:
             r, v = batch.r, batch.v
-        dt = period * step.revs
+        if ctx.drift is None:
+            dt = period * step.revs
         at = f"{step.revs:g} rev"
     if ctx.interface is not None:  # on the way down: the coast must end above the interface
         from .entry import before_interface
@@ -857,6 +1016,8 @@ def measure(kind: str, batch: Batch, ctx: Context, el=None) -> np.ndarray:
         return batch.mass if kind == "mass" else batch.propellant
     if kind == "elapsed":
         return batch.t
+    if kind == "raan drift":  # the secular J2 node rate (lowering asks for `gravity j2`)
+        return ctx.drift.rates(batch.r, batch.v).raan
     el = elements_from_state(batch.r, batch.v, ctx.mu) if el is None else el
     if kind in ("vinf", "c3"):  # c3 = v^2 - 2 mu / r = 2 energy; vinf^2 = c3 (open orbits)
         c3 = 2.0 * el.energy
@@ -877,7 +1038,7 @@ def measure(kind: str, batch: Batch, ctx: Context, el=None) -> np.ndarray:
 ANGLES = {"inclination", "raan", "argp", "anomaly"}
 
 
-OPEN_UNDEFINED = {"apoapsis", "period", "circular"}  # no value on an open orbit
+OPEN_UNDEFINED = {"apoapsis", "period", "circular", "raan drift"}  # no value on an open orbit
 CLOSED_UNDEFINED = {"vinf"}  # no value on a closed orbit
 
 
@@ -920,6 +1081,9 @@ def apply(step: Step, index: int, batch: Batch, ctx: Context) -> tuple[Batch, li
     ctx = descending(ctx, index)
     if ctx.phases:  # a plan of several bodies: this step's
         ctx = in_phase(ctx, index)
+        for first, drift, j2 in ctx.phase_drifts:  # and its J2 drift (under gravity j2)
+            if first <= index:
+                ctx = replace(ctx, drift=drift, j2=j2)
     if step.kind == "leg":
         new, rows = leg_rows(step, index, batch, ctx, fails)
     elif isinstance(step, Entry):

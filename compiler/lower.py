@@ -48,6 +48,7 @@ DEFAULT_TOLERANCE = {
     "vinf": 1e-4,  # km/s (0.1 m/s)
     "c3": 1e-3,  # km2/s2
     "elapsed": 1.0,  # s
+    "raan drift": np.radians(1e-4) / 86400.0,  # rad/s (0.0001 deg/d)
     "anomaly": np.radians(0.01),
 }
 
@@ -94,6 +95,8 @@ class Lowerer:
         self.names: dict[str, Span] = {}
         self.counts: dict[str, int] = {}
         self._ends = False  # the plan ends with `entry`
+        self.gravity: ast.Setting | None = None
+        self.drift_limit: float | None = None
 
     # --- plan-level statements ---------------------------------------------------------
 
@@ -145,6 +148,7 @@ class Lowerer:
         if self.start is None:
             raise _err("the plan has no start orbit", top,
                        "add a line such as `start circular 400 km inclination 51.6 deg`")
+        self._check_gravity()
         r, v = self._start_state(self.start)
         self._ends = self._entry_order(steps_ast)
         self.steps_ast = steps_ast
@@ -169,6 +173,13 @@ class Lowerer:
                        "prices its burns impulsive", self._steering,
                        "add `burns finite`, or drop the `steering` line")
         self.body = first_body  # the plan's body is its first phase's
+        if self.model == "j2":  # every phase drifts with its own body's J2
+            for st in steps:
+                if legs.is_leg(st) and not st.body.j2:
+                    raise _err(f"`gravity j2` needs the J2 of every body the plan flies "
+                               f"around, and {st.body.name} (after leg `{st.name}`) has none",
+                               st.span, "give that body a `j2` in its `body` block, or price "
+                               "the plan under `gravity point-mass`")
         ceiling = None
         if self.ceiling is not None:
             given = self.ceiling.value.internal()
@@ -183,7 +194,69 @@ class Lowerer:
         return Program(self.title, self.body, self.craft, self.margin, self.reserve, r, v,
                        steps, self.plan.source, self.plan, self.start.span, ceiling,
                        burns=self.models.get("burns", "impulsive"),
-                       steering=self.models.get("steering", "velocity"))
+                       steering=self.models.get("steering", "velocity"),
+                       gravity=self.model, drift_limit=self.drift_limit)
+
+    @property
+    def model(self) -> str:
+        """The plan's gravity model: ``point-mass`` (the default) or ``j2``."""
+        return "point-mass" if self.gravity is None else self.gravity.word.text
+
+    def _needs_j2(self, node, what: str) -> float:
+        """The body's J2, or a located error saying how to give one."""
+        j2 = self.body.j2
+        if not j2:
+            raise _err(f"{what} needs the J2 of {self.body.name}, and it has none", node,
+                       "give the body one: `body NAME { gm ... radius ... j2 0.0010826 }`"
+                       " (J2 referred to its radius), or go around a catalogue body that has"
+                       " one (`apsidal bodies` lists them)")
+        return j2
+
+    def _check_gravity(self) -> None:
+        if self.model == "j2":
+            self._needs_j2(self.gravity, "`gravity j2`")
+        elif self.drift_limit is not None:
+            limit = next(s for s in self.plan.statements
+                         if isinstance(s, ast.Setting) and s.key == "drift")
+            raise _err("`drift at most` is the longest wait for a route that lets J2 turn the "
+                       "node, and this plan flies the point-mass model (nothing drifts)",
+                       limit, "add the setting `gravity j2` (the body needs a J2), or drop "
+                       "this line")
+
+    def sun_rate(self, node) -> float:
+        """The Sun's mean motion seen from the plan's body (rad/s), or a located error."""
+        from . import j2 as secular
+
+        rate = secular.sun_rate(self.body)
+        if rate is None:
+            raise _err(f"{self.body.name} has no year to be sun-synchronous with: it is the "
+                       "Sun, or a body defined in the plan (whose orbit around the Sun is not "
+                       "known)", node, "give the inclination in degrees")
+        return rate
+
+    def sun_synchronous(self, node, a: float, e: float) -> float:
+        """The sun-synchronous inclination (rad) of an orbit of sma ``a``, eccentricity
+        ``e``, or a located error with the highest such orbit."""
+        from . import j2 as secular
+
+        j2 = self._needs_j2(node, "a sun-synchronous inclination")
+        body = self.body
+        rate = self.sun_rate(node)
+        if not (a > 0 and e < 1):
+            raise _err("an open orbit has no sun-synchronous inclination (no node drift "
+                       "averages over it)", node, "give the inclination in degrees")
+        inc = float(secular.sun_synchronous(body.gm, body.radius, j2, a, e, rate))
+        if not np.isfinite(inc):
+            top = secular.highest_sun_synchronous(body.gm, body.radius, j2, e, rate)
+            rate = float(np.degrees(secular.raan_rate(body.gm, body.radius, j2, a, e,
+                                                      np.pi)) * 86400)
+            raise _err(f"no inclination makes this orbit sun-synchronous: at sma {a:.3f} km "
+                       f"(eccentricity {e:.6f}) even a retrograde equatorial orbit's node "
+                       f"drifts only {rate:.6f} deg/d, less than the Sun's "
+                       f"{np.degrees(rate) * 86400:.6f} deg/d", node,
+                       f"a sun-synchronous orbit of this eccentricity needs an sma under "
+                       f"{top:.3f} km ({top - body.radius:.3f} km altitude)")
+        return inc
 
     def splice(self, program: Program, first: int, last: int, nodes, plan: ast.Plan
                ) -> Program | None:
@@ -221,7 +294,11 @@ class Lowerer:
         elif isinstance(st, ast.CraftDef):
             self._craft(st)
         elif isinstance(st, ast.Setting):
-            if st.key == "margin":
+            if st.key == "gravity":
+                self.gravity = st
+            elif st.key == "drift":
+                self.drift_limit = st.value.internal()
+            elif st.key == "margin":
                 self.margin = st.value.internal()
             elif st.key == "reserve":
                 self.reserve = st.value.internal()
@@ -372,8 +449,16 @@ class Lowerer:
             raise _err(f"the start orbit's periapsis ({rp - self.body.radius:.3f} km altitude) "
                        "is under the surface", shape_node,
                        ALTITUDE_HINT)
-        get = lambda k: f[k].value.internal() if k in f else 0.0
+        sso = isinstance(f["inclination"].value, ast.SunSynchronous) if "inclination" in f \
+            else False
+        get = lambda k: f[k].value.internal() if k in f and not (sso and k == "inclination") \
+            else 0.0
         inc, raan, argp, nu = get("inclination"), get("raan"), get("argp"), get("anomaly")
+        if sso:
+            if ra is None or not np.isfinite(ra):
+                inc = self.sun_synchronous(f["inclination"], -1.0, 2.0)
+            inc = self.sun_synchronous(f["inclination"], 0.5 * (rp + ra),
+                                       (ra - rp) / (ra + rp))
         if not 0.0 <= inc <= np.pi + 1e-12:
             raise _err(f"inclination {np.degrees(inc):g} deg is outside 0 to 180 deg",
                        f["inclination"], "a retrograde orbit has an inclination above 90 deg; "
@@ -638,7 +723,11 @@ class Lowerer:
             if goals["circular"].value is not None:
                 kw["circular_radius"] = self._radius(goals["circular"].value)
         for k in ("inclination", "raan"):
-            if k in goals:
+            if k in goals and isinstance(goals[k].value, ast.SunSynchronous):
+                self._needs_j2(goals[k], "a sun-synchronous inclination")
+                # the Sun's rate; the inclination is for the orbit after the burn (evaluator)
+                kw["sun_synchronous"] = self.sun_rate(goals[k])
+            elif k in goals:
                 kw[k] = goals[k].value.internal()
         if "inclination" in kw and not 0 <= kw["inclination"] <= np.pi:
             raise _err(f"inclination {np.degrees(kw['inclination']):g} deg is outside 0 to "
@@ -670,9 +759,20 @@ class Lowerer:
             raise _err(f"a transfer takes `circular`, `inclination to` and `raan to`, "
                        f"not `{bad[0]}`", goals[bad[0]],
                        "use a `burn` for single apsis changes or explicit components")
-        inc = goals["inclination"].value.internal() if "inclination" in goals else None
+        sso = "inclination" in goals and isinstance(goals["inclination"].value,
+                                                    ast.SunSynchronous)
+        inc = goals["inclination"].value.internal() if "inclination" in goals and not sso \
+            else None
         raan = goals["raan"].value.internal() if "raan" in goals else None
         via = self._radius(node.via) if node.via is not None else None
+        if sso and ("circular" not in goals or goals["circular"].value is None):
+            raise _err("a transfer reaches a sun-synchronous inclination only with its "
+                       "target circle (`circular ALT`), whose size fixes it",
+                       goals["inclination"],
+                       "add `circular ALT`, or give the inclination in degrees")
+        if sso:
+            inc = self.sun_synchronous(goals["inclination"],
+                                       self._radius(goals["circular"].value), 0.0)
         if "circular" in goals:
             if goals["circular"].value is None:
                 raise _err("a transfer needs the target altitude", goals["circular"],
@@ -766,6 +866,10 @@ class Lowerer:
                 target = c.value.internal() if c.value.unit else c.value.value
             tol = (c.tolerance.internal() if c.tolerance is not None
                    else DEFAULT_TOLERANCE[c.kind])
+            if c.kind == "raan drift" and self.model != "j2":
+                raise _err("`raan drift` is the secular J2 drift of the node, and this plan "
+                           "flies the point-mass model (no drift)", c,
+                           "add the setting `gravity j2` (the body needs a J2)")
             checks.append(CheckSpec(c.kind, target, c.comparator, tol, c.span))
         return Expect(name, tuple(checks), node.span, node.movable)
 

@@ -105,13 +105,20 @@ def phasing_velocity(r, v, mu: float, angle: float, revs: int, body_radius: floa
 
 def phasing_rows(step: Transfer, index: int, batch: Batch, ctx: Context, fails: Failures):
     """The two burns of a phasing transfer, priced; (batch after, rows)."""
-    r0, v0, coast = goto(step.place, batch.r, batch.v, ctx.mu, fails, radius=ctx.radius)
+    r0, v0, coast = goto(step.place, batch.r, batch.v, ctx.mu, fails, radius=ctx.radius,
+                          drift=ctx.drift)
     v1, period = phasing_velocity(r0, v0, ctx.mu, step.phase, step.revs, ctx.radius, fails,
                                   step.name)
     engine, margin = _engine(step, ctx), step.margin
     rows = []
+    r2, v2, v_back, wait = r0, v1, v0, step.revs * period
+    if ctx.drift is not None:  # N anomalistic periods of the drifting phasing orbit
+        rates = ctx.drift.rates(r0, v1)
+        r2, v2, wait, _ = ctx.drift.whole_revs(r0, v1, step.revs, rates)
+        # the orbit to return to, turned with the phasing orbit (the same point of it)
+        _, v_back = ctx.drift.turn(r0, v0, rates.raan * wait, rates.argp * wait)
     legs = ((f"{step.name}/1", BurnOutcome(r0, v0, v1, coast, fails, step.place.label())),
-            (f"{step.name}/2", BurnOutcome(r0, v1, v0, step.revs * period, fails,
+            (f"{step.name}/2", BurnOutcome(r2, v2, v_back, wait, fails,
                                            f"after {step.revs} rev")))
     for name, out in legs:
         new, vec, dv, dvm, prop, bt, covered = _price(batch, out, engine, margin, ctx, fails,

@@ -264,6 +264,12 @@ def fit_lines(report: dict) -> list[str]:
     return out
 
 
+def model_note(report: dict) -> str:
+    """What the heading adds for a plan priced with another gravity model than the
+    point-mass default (whose caution already says two-body)."""
+    return " (gravity j2)" if report.get("gravity") == "j2" else ""
+
+
 def screen(report: dict, columns: str | None = None) -> list[tuple]:
     """The pieces of a run's screen, top to bottom, each a tuple led by its kind:
 
@@ -283,7 +289,8 @@ def screen(report: dict, columns: str | None = None) -> list[tuple]:
     """
     cols, keep_all = pick_columns(columns, STEP_COLUMNS if columns else finite_columns(report))
     out: list[tuple] = [
-        ("line", f"Delta-v budget: {report['plan'] or report['source']}", "bold", False),
+        ("line", f"Delta-v budget: {report['plan'] or report['source']}{model_note(report)}",
+         "bold", False),
         ("table", cols, report["steps"], keep_all), ("blank",),
         *(("line", line, None, False) for line in total_lines(report["totals"])),
         *(("text", line) for line in fit_lines(report)),  # sentences, wrapped at the width
@@ -343,7 +350,7 @@ def _md_row(cells) -> str:
 
 
 def markdown(report: dict) -> str:
-    out = [f"## Delta-v budget: {report['plan'] or report['source']}", ""]
+    out = [f"## Delta-v budget: {report['plan'] or report['source']}{model_note(report)}", ""]
     columns = finite_columns(report)
     out.append(_md_row([c.heading for c in columns]))
     out.append("|" + "".join("--:|" if c.right else "---|" for c in columns))
@@ -384,7 +391,8 @@ STEP_CSV = ["index", "name", "kind", "at", "engine", "dv_m_s", "dv_with_margin_m
 FINITE_CSV = ("dv_impulsive_m_s", "gravity_loss_m_s", "thrust_time_s", "arc_deg")
 CHECK_CSV = ["check", "comparator", "expected", "tolerance", "actual", "unit", "passed"]
 MESSAGE_CSV = ["severity", "rule", "message"]
-CSV_COLUMNS = ["record", "source", *STEP_CSV, *CHECK_CSV, *MESSAGE_CSV, "body"]
+CSV_COLUMNS = ["record", "source", *STEP_CSV, *CHECK_CSV, *MESSAGE_CSV, "body",
+               "gravity"]  # the model that priced the plan, on the `total` record
 
 
 def csv_cell(x) -> str | float:
@@ -420,7 +428,7 @@ def csv_records(report: dict) -> list[dict]:
     rows.append({"record": "total", "source": src, "name": "total", "dv_m_s": tot["dv_m_s"],
                  "dv_with_margin_m_s": tot["dv_with_margin_m_s"],
                  "propellant_kg": tot["propellant_kg"], "mass_after_kg": tot["final_mass_kg"],
-                 "elapsed_s": tot["elapsed_s"]})
+                 "elapsed_s": tot["elapsed_s"], "gravity": report.get("gravity")})
     if not report.get("feasible", True) and "error" not in report:
         from .budget import shortfall_text
 

@@ -125,12 +125,16 @@ class Burn:
     energy_goal: str | None = None  # the goal that named it, for messages
     ecc: float | None = None  # target eccentricity
     argp: float | None = None  # rad: rotate the apse line to this argument of periapsis
+    # `inclination to sun-synchronous`: the Sun's mean motion (rad/s) the orbit after the
+    # burn matches with its node
+    sun_synchronous: float | None = None
     frame: str = "vnb"  # the frame of ``vector`` and of the reported components: vnb | rtn
     kind: str = field(default="burn", init=False)
 
     @property
     def changes_plane(self) -> bool:
-        return self.inclination is not None or self.raan is not None or self.normal is not None
+        return (self.inclination is not None or self.raan is not None or self.normal is not None
+                or self.sun_synchronous is not None)
 
     @property
     def changes_shape(self) -> bool:
@@ -266,6 +270,8 @@ class Program:
     ceiling: float | None = None  # highest apoapsis radius (km) a suggested detour may use
     burns: str = "impulsive"  # `burns finite`: every burn flown at its engine's thrust
     steering: str = "velocity"  # a finite burn's thrust: velocity | inertial
+    gravity: str = "point-mass"  # the model of the coasts: point-mass | j2 (secular drift)
+    drift_limit: float | None = None  # s: the longest wait a drift route may take
 
     def allowance_sums(self) -> tuple[float, float, float] | None:
         """(deterministic sum, root-sum-square of the statistical lines, their plain sum)

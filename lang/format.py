@@ -127,7 +127,7 @@ def canonical(node):
 
 
 def _value(v) -> str:
-    if isinstance(v, ast.Quantity):
+    if isinstance(v, ast.Quantity | ast.SunSynchronous):
         return v.text()
     if isinstance(v, ast.Distance):
         return ("radius " if v.is_radius else "") + v.quantity.text()
@@ -186,6 +186,8 @@ def _scene_line(stmt) -> str:
     if isinstance(stmt, ast.Setting) and stmt.word is not None:
         return f"{stmt.key} {stmt.word.text}"
     if isinstance(stmt, ast.Setting):
+        if stmt.key == "drift":
+            return f"drift at most {_value(stmt.value)}"
         return f"{stmt.key} {'radius ' if stmt.is_radius else ''}{stmt.value.text()}"
     if isinstance(stmt, ast.Start):
         return " ".join(["start" if stmt.form == "circular" else "start orbit",

@@ -239,6 +239,7 @@ def _slots() -> dict[str, Slot]:
         "setting.margin": Slot("margin", "ratio", NOT_NEGATIVE),
         "setting.reserve": Slot("reserve", "speed", NOT_NEGATIVE),
         "setting.ceiling": Slot("ceiling", "length", POSITIVE),
+        "setting.drift": Slot("drift at most", "time", POSITIVE),
         "start.circular": Slot("start circular", "length"),
         "start.periapsis": Slot("start periapsis", "length"),
         "start.apoapsis": Slot("start apoapsis", "length"),
@@ -282,7 +283,8 @@ def _slots() -> dict[str, Slot]:
                "raan": ("angle", ""), "argp": ("angle", ""), "period": ("time", POSITIVE),
                "mass": ("mass", NOT_NEGATIVE), "propellant": ("mass", NOT_NEGATIVE),
                "vinf": ("speed", NOT_NEGATIVE), "c3": ("specific energy", ""),
-               "elapsed": ("time", NOT_NEGATIVE), "anomaly": ("angle", "")}
+               "elapsed": ("time", NOT_NEGATIVE), "anomaly": ("angle", ""),
+               "raan drift": ("angular rate", "")}
     for kind, (dimension, sign) in checked.items():
         slots[f"expect.{kind}"] = Slot(f"expect {kind}", dimension, sign)
         slots[f"tolerance.{kind}"] = Slot(f"expect {kind} tolerance", dimension, NOT_NEGATIVE)
@@ -391,7 +393,8 @@ _NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_-]*")
 # still name things, since no name stands where they do; only an `expect` step cannot be
 # named after one of its checks (`expect c3 ...` reads the check).
 LATER_KEYWORDS = frozenset({"c3", "elapsed", "velocity", "normal", "binormal", "transverse",
-                            "frame", "burns", "steering", "leg", "trade"})
+                            "frame", "burns", "steering", "gravity", "drift",
+                            "sun-synchronous", "leg", "trade"})
 
 
 def _named(name: ast.Name | None, role: str) -> ast.Name | None:
@@ -410,11 +413,14 @@ def _named(name: ast.Name | None, role: str) -> ast.Name | None:
 
 
 # Plan settings that name a choice (the first is the default), and what the choices mean.
-MODEL_CHOICES = {"burns": ("impulsive", "finite"), "steering": ("velocity", "inertial")}
+MODEL_CHOICES = {"burns": ("impulsive", "finite"), "steering": ("velocity", "inertial"),
+                 "gravity": ("point-mass", "j2")}
 MODEL_HINTS = {
     "burns": " (impulsive velocity changes, or every burn flown at its engine's thrust)",
     "steering": (" (a finite burn's thrust held at the impulsive burn's angle to the "
-                 "velocity, or fixed in space along it)")}
+                 "velocity, or fixed in space along it)"),
+    "gravity": (" (two-body, the default, or the secular drift of the node and apse line "
+                "from the body's J2)")}
 
 FRAMES = ("rtn", "vnb")  # radial-transverse-normal, velocity-normal-binormal
 
@@ -527,10 +533,22 @@ class _ToSyntax(Transformer):
         choices = MODEL_CHOICES[key]
         if word.text not in choices:
             guess = did_you_mean(word.text, choices)
-            raise PlanError(f"unknown `{key}` choice `{word.text}`", word.span,
+            what = "gravity model" if key == "gravity" else f"`{key}` choice"
+            raise PlanError(f"unknown {what} `{word.text}`", word.span,
                             hint=(f"did you mean `{guess}`? " if guess else "") + f"`{key}` is "
                             + " or ".join(f"`{c}`" for c in choices) + MODEL_HINTS[key])
         return ast.Setting(key, None, _span(meta), word=word)
+
+    def drift_limit(self, meta, children):
+        return ast.Setting("drift", _checked(children[-1], SLOTS["setting.drift"]), _span(meta))
+
+    def sun_synchronous(self, meta, children):
+        return ast.Field("inclination", ast.SunSynchronous(_token_span(children[-1])),
+                         _span(meta))
+
+    def sun_synchronous_goal(self, meta, children):
+        return ast.Goal("inclination", ast.SunSynchronous(_token_span(children[-1])),
+                        _span(meta))
 
     def ceiling_radius(self, meta, children):
         return ast.Setting("ceiling", _checked(children[-1], SLOTS["setting.ceiling"]),
@@ -685,6 +703,9 @@ class _ToSyntax(Transformer):
         return children[0]
 
     value_kind = distance_kind
+
+    def drift_kind(self, meta, children):
+        return "raan drift"
 
     def tolerance(self, meta, children):
         return children[0]

@@ -72,6 +72,17 @@ class Where:
 
 
 @dataclass(frozen=True)
+class SunSynchronous:
+    """``sun-synchronous`` in place of an inclination: the inclination whose secular J2
+    node drift matches the Sun's mean motion, at the orbit's size (found by lowering)."""
+
+    span: Span
+
+    def text(self) -> str:
+        return "sun-synchronous"
+
+
+@dataclass(frozen=True)
 class Field:
     """``key value`` inside a block or a start orbit: ``gm 398600.4418 km3/s2``."""
 
@@ -169,10 +180,12 @@ class CraftDef:
 @dataclass(frozen=True)
 class Setting:
     """A plan-wide setting: ``margin 5 %``, ``reserve 25 m/s``, ``ceiling 150000 km`` (an
-    altitude) or ``ceiling radius 156378 km`` (from the centre)."""
+    altitude) or ``ceiling radius 156378 km`` (from the centre), ``gravity j2`` (the
+    model of the coasts: ``point-mass`` or ``j2``), ``drift at most 90 d`` (the longest
+    wait a drift may take, key ``drift``)."""
 
     key: str
-    value: Quantity | None
+    value: Quantity | None  # None for a setting that names a choice (``word``)
     span: Span
     is_radius: bool = False
     word: Name | None = None  # a setting that names a choice: ``burns finite``

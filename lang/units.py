@@ -2,7 +2,7 @@
 
 Every quantity literal in a plan is a number and an optional unit.  The unit fixes the
 dimension; the compiler asks for a dimension and receives the value in the compiler's
-internal unit for it (km, km/s, s, kg, N, rad, km3/s2, km2/s2, a plain fraction for %).
+internal unit for it (km, km/s, s, kg, N, rad, km3/s2, km2/s2, rad/s, a plain fraction for %).
 
 >>> to_internal(35786, "km")
 35786.0
@@ -43,6 +43,9 @@ UNITS: dict[str, tuple[str, float]] = {
     "m3/s2": ("gravitational parameter", 1e-9),
     "km2/s2": ("specific energy", 1.0),
     "m2/s2": ("specific energy", 1e-6),
+    # a rate of turn: J2's drift of the node (`expect raan drift 0.9856 deg/d`)
+    "deg/d": ("angular rate", math.pi / 180.0 / 86400.0),
+    "rad/s": ("angular rate", 1.0),
     "%": ("ratio", 0.01),
     "": ("number", 1.0),
 }
@@ -57,6 +60,7 @@ PREFERRED: dict[str, str] = {
     "force": "N",
     "gravitational parameter": "km3/s2",
     "specific energy": "km2/s2",
+    "angular rate": "deg/d",
     "ratio": "%",
     "number": "",
 }

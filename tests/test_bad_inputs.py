@@ -522,6 +522,57 @@ CASES = [
         ("`frame` is an option of a burn, not of a transfer",), "drop it"),
     Bad("expect-vinf-as-a-length", plan("expect vinf 3 km"), 10, 13, "3 km",
         ("expect vinf needs a speed",), "`3 m/s`"),
+    # --- gravity j2, sun-synchronous, raan drift ------------------------------------------
+    Bad("gravity-j2-body-without-j2", 'body rock { gm 17.3 km3/s2 radius 262 km }\n' + plan(
+        "coast c for 1 d", head=HEAD.replace("around earth", "around rock\ngravity j2"),
+        start="start circular 100 km"), 4, 1, "gravity j2",
+        ("`gravity j2` needs the J2 of rock, and it has none",), "j2 0.0010826"),
+    Bad("unknown-gravity-model", scene("}\n", "}\ngravity j3\n"), 9, 9, "j3",
+        ("unknown gravity model `j3`",), "`point-mass`"),
+    Bad("sun-synchronous-too-high", plan(start="start circular 6000 km inclination "
+        "sun-synchronous"), 9, 24, "inclination sun-synchronous",
+        ("no inclination makes this orbit sun-synchronous",), "needs an sma under"),
+    Bad("sun-synchronous-without-j2", 'body rock { gm 17.3 km3/s2 radius 262 km }\n' + plan(
+        head=HEAD.replace("around earth", "around rock"),
+        start="start circular 100 km inclination sun-synchronous"), 10, 23,
+        "inclination sun-synchronous", ("needs the J2 of rock",), "j2 0.0010826"),
+    Bad("sun-synchronous-without-a-year", 'body rock { gm 17.3 km3/s2 radius 262 km '
+        'j2 0.001 }\n' + plan(head=HEAD.replace("around earth", "around rock"),
+                               start="start circular 100 km inclination sun-synchronous"),
+        10, 23, "inclination sun-synchronous", ("rock has no year to be sun-synchronous with",),
+        "give the inclination in degrees"),
+    Bad("sun-synchronous-burn-too-high", plan(
+        "burn b: apoapsis to 40000 km", "coast to apoapsis",
+        "burn c: circular, inclination to sun-synchronous"), 12, 1, "burn c",
+        ("has no sun-synchronous inclination",), "lower the orbit first"),
+    Bad("sun-synchronous-transfer-without-circle", plan(
+        "transfer t at node: inclination to sun-synchronous via apoapsis 3000 km"), 10, 21,
+        "inclination to sun-synchronous", ("only with its target circle",),
+        "add `circular ALT`"),
+    Bad("raan-drift-in-point-mass", plan("expect raan drift 1 deg/d"), 10, 8, "raan drift",
+        ("this plan flies the point-mass model",), "`gravity j2`"),
+    Bad("raan-drift-as-an-angle", plan("expect raan drift 1 deg", head=HEAD + "gravity j2\n"),
+        11, 19, "1 deg", ("needs an angular rate",), "`1 deg/d`"),
+    Bad("transfer-raan-under-j2", plan("transfer t: circular 900 km, raan to 20 deg",
+                                       head=HEAD + "gravity j2\n"), 11, 1, "transfer t",
+        ("a transfer cannot arrive in a fixed plane",), "`at crossing: raan to ...`"),
+    Bad("equatorial-transfer-under-j2", plan(
+        "transfer geo at node: circular 35786 km, inclination to 0 deg",
+        head=HEAD + "gravity j2\n"), 11, 1, "transfer geo",
+        ("its far burn stands at latitude", "no plane has inclination 0.0000 deg"),
+        "turn the plane with a burn `at node: inclination to ...` after it"),
+    Bad("gravity-j2-leg-to-a-body-without-j2", (
+        "around jupiter\ngravity j2\n"
+        "craft c { dry 500 kg propellant 3000 kg engine main isp 320 s thrust 400 N }\n"
+        "start circular 2000000 km inclination 0 deg\nburn go: vinf to leg\n"
+        "leg tour to ganymede vinf 3 km/s to 2 km/s for 10 d\n"
+        "start orbit periapsis 500 km inclination 10 deg anomaly -30 deg\n"), 6, 1,
+        "leg tour", ("needs the J2 of every body", "Ganymede (after leg `tour`) has none"),
+        "`gravity point-mass`"),
+    Bad("negative-drift-limit", plan(head=HEAD + "drift at most -3 d\n"), 9, 15, "-3 d",
+        ("drift at most must be positive",), "greater than zero"),
+    Bad("drift-limit-in-point-mass", plan(head=HEAD + "drift at most 30 d\n"), 9, 1,
+        "drift at most", ("this plan flies the point-mass model",), "`gravity j2`"),
 ]
 
 assert len(CASES) >= 30

@@ -6,6 +6,7 @@ rewritten plan text and let ``Checker.prove`` price it; they never compute a sav
 """
 
 from .burns import cancelling_burns, long_burn, merge_burns
+from .drift import drift_node_change
 from .expectations import (
     beyond_sphere_of_influence,
     expectation_not_met,
@@ -31,6 +32,7 @@ RULES = (
     hohmann_cheaper,
     three_burn_plane_change,
     cancelling_burns,
+    drift_node_change,
     long_burn,
     finite_burn,
 )

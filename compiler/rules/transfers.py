@@ -65,7 +65,7 @@ def best_apoapsis(c: Checker, build, low: float, high: float,
         if new and c.budget.expired():
             c.budget.cut(rule_name)
             return False
-        cache.update(zip(new, c.prove_all([build(alt) for alt in new])))
+        cache.update(zip(new, c.prove_all([build(alt) for alt in new], rule_name)))
         return bool(new)
 
     def score(log_r: float) -> float:
