@@ -84,6 +84,12 @@ def _style():
     return plt.rc_context(STYLE)
 
 
+def _pale(colour: str) -> str:
+    """The colour mixed two parts in three with white: a margin over its step's bar."""
+    rgb = [int(colour[i:i + 2], 16) for i in (1, 3, 5)]
+    return "#" + "".join(f"{round(c + (255 - c) * 2 / 3):02X}" for c in rgb)
+
+
 def _colour(colours: dict[str, str], name: str) -> str:
     return colours.get(name, NEUTRAL)
 
@@ -266,8 +272,8 @@ def waterfall_figure(wf: Waterfall, colours: dict[str, str], title: str = "",
             base.set_gid(f"{prefix}bar-{bar.index}-dv")
             ax.add_patch(base)
             margin = Rectangle((k - 0.38, bar.bottom + bar.base), 0.76, bar.margin,
-                               facecolor="white", edgecolor=colour, hatch="....",
-                               linewidth=0.8, zorder=3)
+                               facecolor=_pale(colour), edgecolor=colour, linewidth=0.8,
+                               zorder=3)
             margin.set_gid(f"{prefix}bar-{bar.index}-margin")
             ax.add_patch(margin)
             if not bar.covered:
@@ -314,7 +320,7 @@ def waterfall_figure(wf: Waterfall, colours: dict[str, str], title: str = "",
         ax.legend(handles=[
             Patch(facecolor="#999999", label="burn delta-v"),
             Patch(facecolor="#999999", hatch="////", edgecolor="white", label="allowance"),
-            Patch(facecolor="white", edgecolor="#999999", hatch="....", label="margin"),
+            Patch(facecolor=_pale("#999999"), edgecolor="#999999", label="margin"),
         ], loc="upper left", bbox_to_anchor=(1.0, 1.0))
         fig.tight_layout()
     return fig
