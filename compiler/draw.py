@@ -109,7 +109,7 @@ def chain_figure(chain: Chain, colours: dict[str, str], title: str = "", view: s
             ax = fig.add_subplot()
             _chain_top(ax, chain, colours, prefix)
         ax.set_title(_title(title or "Orbit chain"), loc="left")
-        fig.tight_layout()
+        fig.subplots_adjust(left=0.13, right=0.74, bottom=0.09, top=0.9)
     return fig
 
 
@@ -126,7 +126,7 @@ def _chain_top(ax, chain: Chain, colours, prefix: str) -> None:
     handles = []
     for orbit in chain.orbits:
         xy = chain.project(orbit.points)
-        label = "start orbit" if orbit.index is None else f"{orbit.index} {orbit.name}"
+        label = "start orbit" if orbit.index is None else _short(f"{orbit.index} {orbit.name}")
         (line,) = ax.plot(xy[:, 0], xy[:, 1], zorder=2, label=label,
                           **_orbit_style(orbit, colours))
         line.set_gid(f"{prefix}orbit-{orbit.index or 0}")
@@ -153,7 +153,10 @@ def _chain_top(ax, chain: Chain, colours, prefix: str) -> None:
                     color=INK, zorder=7)
         else:  # burns at one place: their numbers beside the marker, outward
             out = np.array([x, y]) / max(np.hypot(x, y), 1e-9)
-            ax.annotate("burns " + ", ".join(str(b.index) for b in group), (x, y),
+            numbers = [str(b.index) for b in group]
+            if len(numbers) > 6:
+                numbers = numbers[:5] + [f"... {len(group)} burns"]
+            ax.annotate("burns " + ", ".join(numbers), (x, y),
                         xytext=tuple(out * 14), textcoords="offset points", fontsize=7,
                         color=INK, ha="left" if out[0] >= 0 else "right", va="center",
                         zorder=7)
@@ -208,12 +211,31 @@ def _label_orbit(ax, xy: np.ndarray, orbit, k: int, colour: str) -> None:
         angle = np.radians(50.0 + 47.0 * k)
         angles = np.arctan2(xy[:, 1], xy[:, 0])
         spot = int(np.nanargmin(np.abs(np.angle(np.exp(1j * (angles - angle))))))
+    elif orbit.closed:  # part-way round from the burn that made it, clear of the apsides
+        spot = int(xy.shape[0] * (0.3 + 0.11 * (k % 4)))
     else:
+        spot = int(np.nanargmax(radius))
+    if not np.isfinite(radius[spot]):
         spot = int(np.nanargmax(radius))
     out = xy[spot, :2] / max(radius[spot], 1e-9)
     ax.annotate(f"{orbit.index} {orbit.name}", xy[spot, :2], xytext=tuple(out * 6),
                 textcoords="offset points", fontsize=7, color=colour, zorder=5,
                 ha="left" if out[0] >= 0 else "right", va="bottom" if out[1] >= 0 else "top")
+
+
+def _short(text: str, width: int = 22) -> str:
+    """A label cut to ``width`` characters (an ellipsis says so)."""
+    return text if len(text) <= width else text[: width - 1] + "\u2026"
+
+
+def _layout(fig) -> None:
+    """Tight margins where matplotlib can find them; the default ones otherwise, silently
+    (a crowded axis is no reason to warn a user)."""
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        fig.tight_layout()
 
 
 def _title(text: str) -> str:
@@ -234,8 +256,8 @@ def _chain_3d(ax, chain: Chain, colours, prefix: str) -> None:
     for arc in chain.arcs:
         colour = NEUTRAL if arc.orbit_name == "start" else _colour(colours, arc.orbit_name)
         p = arc.points
-        ax.plot(p[:, 0], p[:, 1], p[:, 2], color=colour, linewidth=2.2).set_gid(
-            f"{prefix}coast-{arc.index}")
+        (line,) = ax.plot(p[:, 0], p[:, 1], p[:, 2], color=colour, linewidth=2.2)
+        line.set_gid(f"{prefix}coast-{arc.index}")
     for burn in chain.burns:
         x, y, z = burn.r
         (mark,) = ax.plot([x], [y], [z], marker="o", markersize=10, markerfacecolor="white",
@@ -288,8 +310,12 @@ def waterfall_figure(wf: Waterfall, colours: dict[str, str], title: str = "",
                           edgecolor="#555555", zorder=3)
         total.set_gid(f"{prefix}bar-total")
         ax.add_patch(total)
-        ax.text(n, wf.total * 0.5, f"{sig(wf.total)}\nm/s", ha="center", va="center",
-                fontsize=7.5, color="white", zorder=4)
+        if n <= 15:  # inside a wide bar; above a narrow one
+            ax.text(n, wf.total * 0.5, f"{sig(wf.total)}\nm/s", ha="center", va="center",
+                    fontsize=7.5, color="white", zorder=4)
+        else:
+            ax.text(n, wf.total, f"{sig(wf.total)} m/s ", ha="right", va="bottom",
+                    fontsize=7.5, color=INK, zorder=4)
         top = wf.total
         if wf.capacity is not None:
             (cap,) = ax.plot([-0.6, n + 0.6], [wf.capacity] * 2, color=INK, linewidth=1.1)
@@ -310,7 +336,7 @@ def waterfall_figure(wf: Waterfall, colours: dict[str, str], title: str = "",
                     transform=ax.transAxes, va="top", fontsize=7.5, color=INK)
         ax.set_xlim(-0.7, n + 0.7)
         ax.set_ylim(0.0, top * 1.1 if top > 0 else 1.0)
-        labels = [f"{b.index} {b.name}" for b in wf.bars] + ["total"]
+        labels = [_short(f"{b.index} {b.name}") for b in wf.bars] + ["total"]
         step = max(1, -(-len(labels) // 40))  # at most about 40 labels
         ax.set_xticks(range(0, n + 1, step), labels[::step], rotation=40, ha="right",
                       fontsize=7)
@@ -322,7 +348,7 @@ def waterfall_figure(wf: Waterfall, colours: dict[str, str], title: str = "",
             Patch(facecolor="#999999", hatch="////", edgecolor="white", label="allowance"),
             Patch(facecolor=_pale("#999999"), edgecolor="#999999", label="margin"),
         ], loc="upper left", bbox_to_anchor=(1.0, 1.0))
-        fig.tight_layout()
+        _layout(fig)
     return fig
 
 
@@ -358,7 +384,7 @@ def mass_figure(ms: MassSeries, colours: dict[str, str], title: str = "", prefix
         ax.set_ylim(bottom=min(0.0, float(ms.propellant.min()) * 1.1))
         ax.set_title(_title(title or "Mass over the mission"), loc="left")
         ax.legend(loc="upper right")
-        fig.tight_layout()
+        _layout(fig)
     return fig
 
 
@@ -392,7 +418,7 @@ def sweep_figure(series: SweepSeries, title: str = "", prefix: str = ""):
         ax.set_ylabel(METRICS.get(series.metric, series.metric))
         ax.set_title(_title(title or "Trade study"), loc="left")
         ax.legend(loc="best")
-        fig.tight_layout()
+        _layout(fig)
     return fig
 
 

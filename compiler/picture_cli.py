@@ -110,20 +110,21 @@ def picture(kind: str, result, report: dict, view: str = "top", prefix: str = ""
     """The matplotlib figure of one kind of picture of a priced plan."""
     from . import draw, pictures
 
+    plan = report["plan"] or report["source"]
     colours = colours if colours is not None else pictures.colours(
         pictures.priced_names(report))
     if kind == "chain":
         return draw.chain_figure(pictures.chain(result, report), colours,
                                  title if title is not None else
-                                 f"{report['plan']}: orbit chain", view, prefix)
+                                 f"{plan}: orbit chain", view, prefix)
     if kind == "waterfall":
         return draw.waterfall_figure(pictures.waterfall(report), colours,
                                      title if title is not None else
-                                     f"{report['plan']}: where the delta-v goes", prefix,
+                                     f"{plan}: where the delta-v goes", prefix,
                                      width)
     return draw.mass_figure(pictures.mass_series(report), colours,
                             title if title is not None else
-                            f"{report['plan']}: mass over the mission", prefix)
+                            f"{plan}: mass over the mission", prefix)
 
 
 def read_sweep(path: str) -> dict:

@@ -1,0 +1,303 @@
+"""`apsidal plot`: the pictures are read back, not only found on disk.
+
+The chain's burn markers are counted and turned back into kilometres with the scale the
+picture carries (the body, drawn to scale) and compared with the burn positions the
+evaluator's rows hold; the waterfall's bars are measured against the value axis's own
+ticks and must add up to the total `apsidal run --format json` reports.  What is checked
+is the drawing against the evaluator (an independent projection: distances within the
+start orbit's plane), not the drawing against itself.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import io
+import json
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+import svgread
+from apsidal.compiler.cli import main
+from apsidal.compiler.evaluate import run as evaluate
+from apsidal.compiler.load import load, load_text
+
+SAMPLES = sorted((Path(__file__).resolve().parent.parent / "samples").glob("*.aps"))
+IDS = [p.stem for p in SAMPLES]
+
+
+def cli(*args: str) -> tuple[int, str, str]:
+    out, err = io.StringIO(), io.StringIO()
+    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+        code = main(list(args))
+    return code, out.getvalue(), err.getvalue()
+
+
+def run_json(path) -> dict:
+    code, out, err = cli("run", str(path), "--format", "json")
+    assert code in (0, 1), err
+    return json.loads(out)
+
+
+def plot(tmp_path: Path, plan, kind: str, ext: str = "svg", *more: str) -> Path:
+    target = tmp_path / f"{Path(str(plan)).stem}-{kind}.{ext}"
+    code, _, err = cli("plot", str(plan), "--kind", kind, "-o", str(target), *more)
+    assert code in (0, 1), err
+    assert target.exists()
+    return target
+
+
+def in_plane(r: np.ndarray, h0: np.ndarray) -> np.ndarray:
+    """The part of a position in the start orbit's plane (what a view from above it shows)."""
+    return r - np.outer(r @ h0, h0)
+
+
+@pytest.mark.parametrize("path", SAMPLES, ids=IDS)
+def test_chain_has_one_marker_per_burn_at_the_burn_position(tmp_path, path):
+    report = run_json(path)
+    burns = [s for s in report["steps"] if s["kind"] == "burn"]
+    root = svgread.parse(plot(tmp_path, path, "chain").read_bytes())
+    marks = svgread.ids_like(root, r"burn-\d+")
+    assert sorted(marks) == sorted(f"burn-{s['index']}" for s in burns)
+    # the evaluator's burn positions (the chain's rows) and the start orbit's normal
+    program = load(str(path))
+    rows = evaluate(program).rows
+    h0 = np.cross(program.start_r, program.start_v)
+    h0 = h0 / np.linalg.norm(h0)
+    want = in_plane(np.array([rows[s["index"] - 1].after.r[0] for s in burns]), h0)
+    scale = svgread.body_scale(root, report["body"]["radius_km"])
+    got = np.array([svgread.to_km(svgread.marker_positions(marks[f"burn-{s['index']}"]),
+                                  scale)[0] for s in burns])
+    km_per_pt = 1.0 / scale[2]
+    tol = 0.01 * km_per_pt  # a hundredth of a point: the SVG's own precision is 1e-6 pt
+    # from the body's centre: the distance within the start orbit's plane
+    assert np.allclose(np.linalg.norm(got, axis=1), np.linalg.norm(want, axis=1), atol=tol)
+    # between burns: the same distances (so the same figure up to a turn of the view)
+    d_got = np.linalg.norm(got[:, None] - got[None], axis=-1)
+    d_want = np.linalg.norm(want[:, None] - want[None], axis=-1)
+    assert np.allclose(d_got, d_want, atol=2 * tol)
+    # each burn's marker sits on the orbit it starts (drawn from that very point)
+    orbits = svgread.ids_like(root, r"orbit-\d+")
+    for s, xy in zip(burns, got):
+        path_km = svgread.to_km(svgread.path_points(orbits[f"orbit-{s['index']}"]), scale)
+        assert np.min(np.linalg.norm(path_km - xy, axis=1)) < tol
+
+
+@pytest.mark.parametrize("path", SAMPLES, ids=IDS)
+def test_waterfall_bars_add_up_to_the_reported_total(tmp_path, path):
+    report = run_json(path)
+    root = svgread.parse(plot(tmp_path, path, "waterfall").read_bytes())
+    offset, slope = svgread.y_axis(root)
+
+    def height(el) -> float:
+        ys = svgread.path_points(el)[:, 1]
+        return abs(slope) * (ys.max() - ys.min())
+
+    def top(el) -> float:
+        return offset + slope * svgread.path_points(el)[:, 1].min()
+
+    ids = svgread.by_id(root)
+    priced = [s for s in report["steps"] if s["kind"] in ("burn", "allow")]
+    assert len(svgread.ids_like(root, r"bar-\d+-dv")) == len(priced)
+    total = report["totals"]["dv_with_margin_m_s"]
+    tol = 1e-4 * max(total, 1.0)  # drawing precision: 1e-6 pt on a few hundred points
+    drawn = 0.0
+    for s in priced:
+        dv, margin = height(ids[f"bar-{s['index']}-dv"]), height(ids[f"bar-{s['index']}-margin"])
+        assert dv == pytest.approx(s["dv_m_s"], abs=tol)
+        assert dv + margin == pytest.approx(s["dv_with_margin_m_s"], abs=tol)
+        drawn += dv + margin
+        assert top(ids[f"bar-{s['index']}-margin"]) == pytest.approx(drawn, abs=len(priced) * tol)
+    assert drawn == pytest.approx(total, abs=len(priced) * tol)
+    assert height(ids["bar-total"]) == pytest.approx(total, abs=tol)
+    capacity = total + report["totals"]["dv_capacity_left_m_s"]
+    assert top(ids["capacity"]) == pytest.approx(capacity, abs=tol)
+    if report["totals"]["reserve_m_s"]:
+        assert top(ids["reserve"]) == pytest.approx(capacity - report["totals"]["reserve_m_s"],
+                                                    abs=tol)
+
+
+@pytest.mark.parametrize("path", SAMPLES, ids=IDS)
+def test_mass_picture_starts_full_and_ends_at_the_final_mass(tmp_path, path):
+    report = run_json(path)
+    root = svgread.parse(plot(tmp_path, path, "mass").read_bytes())
+    offset, slope = svgread.y_axis(root)
+    ids = svgread.by_id(root)
+    mass = offset + slope * svgread.path_points(ids["mass"])[:, 1]
+    left = offset + slope * svgread.path_points(ids["propellant"])[:, 1]
+    craft, tot = report["craft"], report["totals"]
+    tol = 1e-4 * (craft["dry_kg"] + craft["propellant_kg"])
+    assert mass[0] == pytest.approx(craft["dry_kg"] + craft["propellant_kg"], abs=tol)
+    assert mass[-1] == pytest.approx(tot["final_mass_kg"], abs=tol)
+    assert left[0] == pytest.approx(tot["usable_kg"], abs=tol)
+    assert left[-1] == pytest.approx(tot["usable_kg"] - tot["propellant_kg"], abs=tol)
+    assert np.all(np.diff(mass) <= tol)  # mass only ever falls
+
+
+def test_pictures_regenerate_byte_for_byte(tmp_path):
+    (tmp_path / "a").mkdir()
+    (tmp_path / "b").mkdir()
+    first = plot(tmp_path / "a", SAMPLES[0], "chain")
+    second = plot(tmp_path / "b", SAMPLES[0], "chain")
+    assert first.read_bytes() == second.read_bytes()
+    text = first.read_text()
+    assert "<dc:date>" not in text and "Matplotlib v" not in text
+    a = plot(tmp_path / "a", SAMPLES[0], "waterfall", "png").read_bytes()
+    b = plot(tmp_path / "b", SAMPLES[0], "waterfall", "png").read_bytes()
+    assert a == b and a.startswith(b"\x89PNG")
+
+
+def test_png_pictures_are_drawn(tmp_path):
+    from matplotlib.image import imread
+
+    for kind in ("chain", "waterfall", "mass"):
+        img = imread(plot(tmp_path, SAMPLES[0], kind, "png"))
+        assert img.shape[0] > 300 and img.shape[1] > 600
+        assert img[..., :3].std() > 0.05  # not a blank page
+
+
+def test_three_d_view_marks_every_burn(tmp_path):
+    path = next(p for p in SAMPLES if p.stem == "lunar-polar")
+    report = run_json(path)
+    root = svgread.parse(plot(tmp_path, path, "chain", "svg", "--view", "3d").read_bytes())
+    burns = [s["index"] for s in report["steps"] if s["kind"] == "burn"]
+    assert sorted(svgread.ids_like(root, r"burn-\d+")) == sorted(f"burn-{i}" for i in burns)
+
+
+PLAN_OUT_OF_PROPELLANT = """plan "Short tank"
+around earth
+craft c { dry 500 kg propellant 40 kg engine e isp 300 s thrust 400 N }
+start circular 400 km
+burn up at periapsis: apoapsis to 20000 km
+burn round at apoapsis: circular
+"""
+
+
+def test_a_plan_that_does_not_fit_is_drawn_with_its_shortfall(tmp_path):
+    plan = tmp_path / "short.aps"
+    plan.write_text(PLAN_OUT_OF_PROPELLANT)
+    out = tmp_path / "w.svg"
+    code, _, err = cli("plot", str(plan), "--kind", "waterfall", "-o", str(out))
+    assert code == 1 and "does not fit its load" in err
+    root = svgread.parse(out.read_bytes())
+    ids = svgread.by_id(root)
+    assert "capacity" not in ids  # no capacity to draw: the load runs out part-way
+    report = run_json(plan)
+    assert report["totals"]["dv_with_margin_m_s"] > 0  # priced in full, never 0 m/s
+    offset, slope = svgread.y_axis(root)
+    ys = svgread.path_points(ids["bar-total"])[:, 1]
+    assert abs(slope) * (ys.max() - ys.min()) == pytest.approx(
+        report["totals"]["dv_with_margin_m_s"], rel=1e-4)
+    texts = " ".join(t.text or "" for t in root.iter(f"{svgread.SVG}text"))
+    assert "runs out at up" in texts or "runs out at round" in texts
+    code, _, _ = cli("plot", str(plan), "--kind", "mass", "-o", str(tmp_path / "m.svg"))
+    assert code == 1
+
+
+@pytest.mark.parametrize("args, words", [
+    (["--kind", "chain", "-o", "OUT.pdf"], ".svg or .png"),
+    (["--kind", "waterfall", "-o", "NOWHERE/x.svg"], "does not exist"),
+    (["--kind", "mass", "--view", "3d", "-o", "OUT.svg"], "--view is for --kind chain"),
+    (["--kind", "chain", "--metric", "propellant_kg", "-o", "OUT.svg"], "--metric is for"),
+])
+def test_plot_usage_mistakes_exit_2(tmp_path, args, words):
+    args = [a.replace("OUT", str(tmp_path / "p")).replace("NOWHERE", str(tmp_path / "none"))
+            for a in args]
+    code, _, err = cli("plot", str(SAMPLES[0]), *args)
+    assert code == 2 and words in err
+    assert not list(tmp_path.glob("p.*"))
+
+
+def test_a_plan_that_cannot_be_flown_writes_nothing(tmp_path):
+    plan = tmp_path / "bad.aps"
+    plan.write_text("around earth\ncraft c { dry 100 kg propellant 50 kg engine e isp 300 s "
+                    "thrust 10 N }\nstart circular 400 km\nburn low: periapsis to -3000 km\n")
+    out = tmp_path / "c.svg"
+    code, _, err = cli("plot", str(plan), "-o", str(out))
+    assert code == 2 and "bad.aps:4:" in err and "^" in err and "Traceback" not in err
+    assert not out.exists()
+
+
+def test_run_does_not_load_the_drawing_code():
+    code = ("import sys; from apsidal.compiler.cli import main; main(['run', sys.argv[1]]); "
+            "print(sorted(m for m in sys.modules if m.startswith(('matplotlib', "
+            "'apsidal.compiler.draw', 'apsidal.compiler.pictures', "
+            "'apsidal.compiler.report_html', 'apsidal.compiler.picture_cli'))), "
+            "file=sys.stderr)")
+    done = subprocess.run([sys.executable, "-c", code, str(SAMPLES[0])], capture_output=True,
+                          text=True, env={**os.environ, "COLUMNS": "100"}, check=True)
+    assert done.stderr.strip() == "[]"
+
+
+def test_a_long_plan_draws(tmp_path):
+    steps = []
+    for k in range(60):  # 180 burns and coasts, up and down between two orbits
+        steps += [f"burn up{k} at periapsis: apoapsis to {2000 + 10 * k} km",
+                  f"coast c{k} 1 rev", f"burn down{k} at periapsis: apoapsis to 400 km"]
+    plan = tmp_path / "long.aps"
+    plan.write_text("around earth\ncraft c { dry 100 kg propellant 50000 kg engine e isp 300 s "
+                    "thrust 1000 N }\nstart circular 400 km\n" + "\n".join(steps) + "\n")
+    for kind in ("chain", "waterfall", "mass"):
+        root = svgread.parse(plot(tmp_path, plan, kind).read_bytes())
+        if kind == "chain":
+            assert len(svgread.ids_like(root, r"burn-\d+")) == 120
+        if kind == "waterfall":
+            assert len(svgread.ids_like(root, r"bar-\d+-dv")) == 120
+
+
+# --- a trade study -------------------------------------------------------------------
+
+RELAY = next(p for p in SAMPLES if p.stem == "relay-geo")
+
+
+def priced_variants(parking: list[float]) -> dict:
+    """A sweep's JSON (the contract of `apsidal sweep --format json`) built by pricing
+    edited copies of a sample with the evaluator: the parking orbit's altitude varied."""
+    from apsidal.compiler.budget import budget
+
+    text = RELAY.read_text()
+    variants = []
+    for alt in parking:
+        edited = text.replace("periapsis 250 km apoapsis 250 km",
+                              f"periapsis {alt:g} km apoapsis {alt:g} km")
+        assert edited != text
+        report = budget(evaluate(load_text(edited, "relay.aps")))
+        variants.append({"values": {"parking": f"{alt:g} km"}, "totals": report["totals"],
+                         "feasible": report["feasible"]})
+    return {"plan": "relay-geo, parking altitude", "variants": variants}
+
+
+def test_sweep_curve_has_every_variant_and_marks_the_best(tmp_path):
+    data = priced_variants([200, 300, 500, 800, 1200])
+    source = tmp_path / "sweep.json"
+    source.write_text(json.dumps(data))
+    out = tmp_path / "sweep.svg"
+    code, _, err = cli("plot", str(source), "--kind", "sweep", "-o", str(out))
+    assert code == 0, err
+    root = svgread.parse(out.read_bytes())
+    ids = svgread.by_id(root)
+    assert len(svgread.marker_positions(ids["curve-0"])) == 5
+    offset, slope = svgread.y_axis(root)
+    drawn = offset + slope * svgread.marker_positions(ids["curve-0"])[:, 1]
+    want = [v["totals"]["dv_with_margin_m_s"] for v in data["variants"]]
+    assert np.allclose(drawn, want, atol=1e-4 * max(want))
+    best = offset + slope * svgread.marker_positions(ids["best"])[0, 1]
+    feasible = [w for w, v in zip(want, data["variants"]) if v["feasible"]]
+    assert best == pytest.approx(min(feasible), abs=1e-4 * max(want))
+
+
+def test_sweep_file_mistakes_exit_2(tmp_path):
+    bad = tmp_path / "bad.json"
+    bad.write_text('{"variants": [')
+    code, _, err = cli("plot", str(bad), "--kind", "sweep", "-o", str(tmp_path / "s.svg"))
+    assert code == 2 and "bad.json:1:" in err and "not JSON" in err
+    bad.write_text('{"steps": []}')
+    code, _, err = cli("plot", str(bad), "--kind", "sweep", "-o", str(tmp_path / "s.svg"))
+    assert code == 2 and "variants" in err
+    bad.write_text(json.dumps(priced_variants([300, 400])))
+    code, _, err = cli("plot", str(bad), "--kind", "sweep", "--metric", "nonsense",
+                       "-o", str(tmp_path / "s.svg"))
+    assert code == 2 and "dv_with_margin_m_s" in err
