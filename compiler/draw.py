@@ -302,6 +302,9 @@ def waterfall_figure(wf: Waterfall, colours: dict[str, str], title: str = "",
                 ax.add_patch(Rectangle((k - 0.44, bar.bottom), 0.88, bar.base + bar.margin,
                                        facecolor="none", edgecolor=INK, linewidth=1.2,
                                        linestyle=(0, (2, 1.5)), zorder=4))
+            if n <= 20:  # each step's figure over its bar (a 3 m/s trim is a hairline)
+                ax.text(k, bar.bottom + bar.base + bar.margin, sig(bar.base + bar.margin),
+                        ha="center", va="bottom", fontsize=6.5, color=INK, zorder=4)
             if k + 1 < n:
                 top = bar.bottom + bar.base + bar.margin
                 ax.plot([k + 0.38, k + 0.62], [top, top], color="#AAAAAA", linewidth=0.6,
@@ -317,25 +320,26 @@ def waterfall_figure(wf: Waterfall, colours: dict[str, str], title: str = "",
             ax.text(n, wf.total, f"{sig(wf.total)} m/s ", ha="right", va="bottom",
                     fontsize=7.5, color=INK, zorder=4)
         top = wf.total
+        lines = []
         if wf.capacity is not None:
-            (cap,) = ax.plot([-0.6, n + 0.6], [wf.capacity] * 2, color=INK, linewidth=1.1)
+            (cap,) = ax.plot([-0.6, n + 0.6], [wf.capacity] * 2, color=INK, linewidth=1.1,
+                             label=f"capacity of the load: {sig(wf.capacity)} m/s")
             cap.set_gid(f"{prefix}capacity")
-            ax.text(-0.55, wf.capacity, f"capacity {sig(wf.capacity)} m/s", va="bottom",
-                    fontsize=7.5, color=INK)
+            lines.append(cap)
             if wf.reserve:
                 limit = wf.capacity - wf.reserve
                 (res,) = ax.plot([-0.6, n + 0.6], [limit] * 2, color=INK, linewidth=0.9,
-                                 linestyle=(0, (5, 3)))
+                                 linestyle=(0, (5, 3)), label=f"capacity less the "
+                                 f"{sig(wf.reserve)} m/s reserve: {sig(limit)} m/s")
                 res.set_gid(f"{prefix}reserve")
-                ax.text(-0.55, limit, f"capacity less reserve {sig(wf.reserve)} m/s",
-                        va="top", fontsize=7.5, color=INK)
+                lines.append(res)
             top = max(top, wf.capacity)
         elif wf.first_uncovered is not None:
             ax.text(0.01, 0.98, f"the load runs out at {wf.first_uncovered}; short "
                     f"{sig(wf.shortfall_kg)} kg (bars outlined: not covered)",
                     transform=ax.transAxes, va="top", fontsize=7.5, color=INK)
         ax.set_xlim(-0.7, n + 0.7)
-        ax.set_ylim(0.0, top * 1.1 if top > 0 else 1.0)
+        ax.set_ylim(0.0, top * 1.08 if top > 0 else 1.0)
         labels = [_short(f"{b.index} {b.name}") for b in wf.bars] + ["total"]
         step = max(1, -(-len(labels) // 40))  # at most about 40 labels
         ax.set_xticks(range(0, n + 1, step), labels[::step], rotation=40, ha="right",
@@ -347,7 +351,7 @@ def waterfall_figure(wf: Waterfall, colours: dict[str, str], title: str = "",
             Patch(facecolor="#999999", label="burn delta-v"),
             Patch(facecolor="#999999", hatch="////", edgecolor="white", label="allowance"),
             Patch(facecolor=_pale("#999999"), edgecolor="#999999", label="margin"),
-        ], loc="upper left", bbox_to_anchor=(1.0, 1.0))
+            *lines], loc="upper left", bbox_to_anchor=(1.0, 1.0))
         _layout(fig)
     return fig
 
@@ -399,7 +403,8 @@ def sweep_figure(series: SweepSeries, title: str = "", prefix: str = ""):
         for k, c in enumerate(series.curves):
             colour = PALETTE[k % len(PALETTE)]
             (line,) = ax.plot(c.x, c.y, color=colour, linewidth=1.3, marker="o",
-                              markersize=3.5, label=c.label or series.metric)
+                              markersize=3.5,
+                              label=c.label or METRICS.get(series.metric, series.metric))
             line.set_gid(f"{prefix}curve-{k}")
             bad = ~c.feasible
             if bad.any():
