@@ -69,6 +69,7 @@ STYLE = {
 }
 SIZES = {"chain": (7.5, 6.2), "waterfall": (8.0, 4.6), "mass": (8.0, 4.0),
          "sweep": (7.5, 4.6)}
+LABEL_BOX = {"facecolor": "white", "edgecolor": "none", "pad": 0.6, "alpha": 0.85}
 LABELLED_ORBITS = 12  # beyond this many orbits the legend alone names them
 LEGEND_ENTRIES = 16
 
@@ -110,6 +111,7 @@ def chain_figure(chain: Chain, colours: dict[str, str], title: str = "", view: s
             _chain_top(ax, chain, colours, prefix)
         ax.set_title(_title(title or "Orbit chain"), loc="left")
         fig.subplots_adjust(left=0.13, right=0.74, bottom=0.09, top=0.9)
+        _note(fig)
     return fig
 
 
@@ -151,14 +153,14 @@ def _chain_top(ax, chain: Chain, colours, prefix: str) -> None:
         if len(group) == 1:
             ax.text(x, y, str(group[0].index), ha="center", va="center", fontsize=6.5,
                     color=INK, zorder=7)
-        else:  # burns at one place: their numbers beside the marker, outward
-            out = np.array([x, y]) / max(np.hypot(x, y), 1e-9)
+        else:  # burns at one place: their numbers beside the marker, inward (the body)
+            inward = -np.array([x, y]) / max(np.hypot(x, y), 1e-9)  # the axes edge is outward
             numbers = [str(b.index) for b in group]
             if len(numbers) > 6:
                 numbers = numbers[:5] + [f"... {len(group)} burns"]
             ax.annotate("burns " + ", ".join(numbers), (x, y),
-                        xytext=tuple(out * 14), textcoords="offset points", fontsize=7,
-                        color=INK, ha="left" if out[0] >= 0 else "right", va="center",
+                        xytext=tuple(inward * 14), textcoords="offset points", fontsize=7,
+                        color=INK, ha="left" if inward[0] >= 0 else "right", va="center",
                         zorder=7)
     sx, sy, _ = chain.project(chain.start)
     (start,) = ax.plot([sx], [sy], marker="s", markersize=5, color=INK, linestyle="none",
@@ -235,7 +237,16 @@ def _layout(fig) -> None:
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        fig.tight_layout()
+        fig.tight_layout(rect=(0.0, 0.025, 1.0, 1.0))  # room for the note
+
+
+NOTE = ("apsidal: preliminary-design estimate under the impulsive two-body "
+        "approximation")
+
+
+def _note(fig) -> None:
+    """The caution, small, in the corner: a picture pasted alone into a slide keeps it."""
+    fig.text(0.995, 0.005, NOTE, ha="right", va="bottom", fontsize=6, color="#888888")
 
 
 def _title(text: str) -> str:
@@ -304,7 +315,9 @@ def waterfall_figure(wf: Waterfall, colours: dict[str, str], title: str = "",
                                        linestyle=(0, (2, 1.5)), zorder=4))
             if n <= 20:  # each step's figure over its bar (a 3 m/s trim is a hairline)
                 ax.text(k, bar.bottom + bar.base + bar.margin, sig(bar.base + bar.margin),
-                        ha="center", va="bottom", fontsize=6.5, color=INK, zorder=4)
+                        ha="center", va="bottom", fontsize=6.5, color=INK, zorder=4,
+                        rotation=90 if n > 8 else 0,  # upright where bars crowd
+                        bbox=LABEL_BOX)
             if k + 1 < n:
                 top = bar.bottom + bar.base + bar.margin
                 ax.plot([k + 0.38, k + 0.62], [top, top], color="#AAAAAA", linewidth=0.6,
@@ -313,12 +326,13 @@ def waterfall_figure(wf: Waterfall, colours: dict[str, str], title: str = "",
                           edgecolor="#555555", zorder=3)
         total.set_gid(f"{prefix}bar-total")
         ax.add_patch(total)
-        if n <= 15:  # inside a wide bar; above a narrow one
+        if n <= 8:  # inside a wide bar; above a narrow one
             ax.text(n, wf.total * 0.5, f"{sig(wf.total)}\nm/s", ha="center", va="center",
                     fontsize=7.5, color="white", zorder=4)
         else:
-            ax.text(n, wf.total, f"{sig(wf.total)} m/s ", ha="right", va="bottom",
-                    fontsize=7.5, color=INK, zorder=4)
+            ax.text(n, wf.total, f"{sig(wf.total)} m/s", ha="center", va="bottom",
+                    fontsize=7, color=INK, zorder=5, rotation=90 if n <= 20 else 0,
+                    bbox=LABEL_BOX)
         top = wf.total
         lines = []
         if wf.capacity is not None:
@@ -339,7 +353,8 @@ def waterfall_figure(wf: Waterfall, colours: dict[str, str], title: str = "",
                     f"{sig(wf.shortfall_kg)} kg (bars outlined: not covered)",
                     transform=ax.transAxes, va="top", fontsize=7.5, color=INK)
         ax.set_xlim(-0.7, n + 0.7)
-        ax.set_ylim(0.0, top * 1.08 if top > 0 else 1.0)
+        headroom = 1.2 if 8 < n <= 20 else 1.08  # upright figures stand above the bars
+        ax.set_ylim(0.0, top * headroom if top > 0 else 1.0)
         labels = [_short(f"{b.index} {b.name}") for b in wf.bars] + ["total"]
         step = max(1, -(-len(labels) // 40))  # at most about 40 labels
         ax.set_xticks(range(0, n + 1, step), labels[::step], rotation=40, ha="right",
@@ -353,6 +368,7 @@ def waterfall_figure(wf: Waterfall, colours: dict[str, str], title: str = "",
             Patch(facecolor=_pale("#999999"), edgecolor="#999999", label="margin"),
             *lines], loc="upper left", bbox_to_anchor=(1.0, 1.0))
         _layout(fig)
+        _note(fig)
     return fig
 
 
@@ -389,6 +405,7 @@ def mass_figure(ms: MassSeries, colours: dict[str, str], title: str = "", prefix
         ax.set_title(_title(title or "Mass over the mission"), loc="left")
         ax.legend(loc="upper right")
         _layout(fig)
+        _note(fig)
     return fig
 
 
@@ -424,6 +441,7 @@ def sweep_figure(series: SweepSeries, title: str = "", prefix: str = ""):
         ax.set_title(_title(title or "Trade study"), loc="left")
         ax.legend(loc="best")
         _layout(fig)
+        _note(fig)
     return fig
 
 

@@ -53,6 +53,15 @@ def register(sub) -> None:
     r.set_defaults(func=cmd_report)
 
 
+def need_matplotlib() -> None:
+    """A clear word, not a traceback, where the drawing library is not installed."""
+    import importlib.util
+
+    if importlib.util.find_spec("matplotlib") is None:
+        raise UsageError("drawing needs matplotlib, which is not installed: "
+                         "pip install 'apsidal[plot]' (or pip install matplotlib)")
+
+
 def _format_of(path: str) -> str:
     fmt = FORMATS.get(Path(path).suffix.lower())
     if fmt is None:
@@ -144,9 +153,10 @@ def read_sweep(path: str) -> dict:
 
 
 def cmd_plot(args) -> int:
+    fmt = _format_of(args.output)
+    need_matplotlib()
     from . import draw
 
-    fmt = _format_of(args.output)
     out = _target(args.output)
     if args.kind == "sweep":
         from .pictures import SweepError, sweep_series
@@ -170,6 +180,7 @@ def cmd_plot(args) -> int:
 
 
 def cmd_report(args) -> int:
+    need_matplotlib()
     from .report_html import plan_page
 
     if Path(args.output).suffix.lower() not in (".html", ".htm"):

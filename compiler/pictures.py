@@ -60,8 +60,12 @@ def colours(names: list[str]) -> dict[str, str]:
 
 
 def priced_names(report: dict) -> list[str]:
-    """The names of the steps that carry delta-v, in plan order."""
-    return [s["name"] for s in report["steps"] if s["kind"] in PRICED_KINDS]
+    """The names of the steps that carry delta-v: the burns in plan order, then the
+    allowances (which the chain does not draw), so that the burns repeat a colour as
+    late as possible."""
+    steps = report["steps"]
+    return ([s["name"] for s in steps if s["kind"] == "burn"]
+            + [s["name"] for s in steps if s["kind"] in PRICED_KINDS and s["kind"] != "burn"])
 
 
 # --- the chain of orbits -------------------------------------------------------------

@@ -325,6 +325,10 @@ def cmd_diff(args) -> int:
             raise UsageError("--git-textconv takes only the file git hands it")
         return textconv(args.git_textconv)
     thresholds = [parse_threshold(t) for t in args.fail_over]
+    if args.format == "html":
+        from .picture_cli import need_matplotlib
+
+        need_matplotlib()
     old, new = _sides(args)
     if old.error and new.error:
         for side in (old, new):
