@@ -24,12 +24,12 @@ import matplotlib
 
 matplotlib.use("Agg")  # no display, ever
 
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-from matplotlib.lines import Line2D  # noqa: E402
-from matplotlib.patches import Circle, Patch, Rectangle  # noqa: E402
+import matplotlib.pyplot as plt
+import numpy as np
+from matplotlib.lines import Line2D
+from matplotlib.patches import Circle, Patch, Rectangle
 
-from .pictures import (  # noqa: E402
+from .pictures import (
     BODY_FILL,
     METRICS,
     NEUTRAL,
@@ -40,7 +40,7 @@ from .pictures import (  # noqa: E402
     Waterfall,
     time_unit,
 )
-from .textfmt import sig  # noqa: E402
+from .textfmt import sig
 
 INK = "#222222"
 GRID = "#E4E4E4"

@@ -61,8 +61,8 @@ footer { margin-top: 36px; color: var(--muted); font-size: 0.9em; }
 @media print { h2 { break-after: avoid; } figure, .finding { break-inside: avoid; } }
 """
 
-_XML_HEAD = re.compile(r"<\?xml[^>]*\?>\s*|<!DOCTYPE[^>]*>\s*", re.S)
-_METADATA = re.compile(r"<metadata>.*?</metadata>\s*", re.S)
+_XML_HEAD = re.compile(r"<\?xml[^>]*\?>\s*|<!DOCTYPE[^>]*>\s*", re.DOTALL)
+_METADATA = re.compile(r"<metadata>.*?</metadata>\s*", re.DOTALL)
 _NAMESPACES = re.compile(r'\s+xmlns(?::\w+)?="[^"]*"')
 _IDS = re.compile(r'(\bid="|url\(#|xlink:href="#|href="#)([^")]+)')
 
@@ -111,8 +111,8 @@ def _totals_rows(report: dict) -> list[tuple[str, str]]:
     if t.get("residual_kg"):
         rows.append(("residual (unusable)", f"{sig(t['residual_kg'])} kg"))
     if t.get("propellant_needed_kg") is not None:
-        rows.append(("propellant needed (size)", f"{sig(t['propellant_needed_kg'])} kg"
-                     f" of {sig(t['load_kg'])} kg loaded"))
+        rows.append(("propellant needed (size)", (f"{sig(t['propellant_needed_kg'])} kg"
+                     f" of {sig(t['load_kg'])} kg loaded")))
     return rows
 
 
@@ -179,8 +179,8 @@ def _finding(f: dict, k: int) -> str:
         saving = f" (saves {sig(f['saves_m_s'])} m/s, {sig(f['saves_kg'])} kg)"
     sev = "fail" if f["severity"] == "error" else ""
     parts = [f'<div class="finding" id="finding-{k}">',
-             f'<p><strong class="{sev}">{_e(f["severity"])}</strong> '
-             f'<code>{_e(f["rule"])}</code> [{_e(", ".join(f["steps"]))}]{_e(saving)}</p>',
+             (f'<p><strong class="{sev}">{_e(f["severity"])}</strong> '
+             f'<code>{_e(f["rule"])}</code> [{_e(", ".join(f["steps"]))}]{_e(saving)}</p>'),
              f"<p>{_e(f['message'])}</p>"]
     parts += [f"<p>note: {_e(n)}</p>" for n in f.get("notes", [])]
     if f.get("diff"):
@@ -198,8 +198,8 @@ def _findings(findings: list[dict] | None, report: dict, cut: list[str]) -> str:
         return head + ("\n".join(_finding(f, k) for k, f in enumerate(own, 1))
                        or "<p>None.</p>")
     out = [_finding(f, k) for k, f in enumerate(findings, 1)] or [
-        "<p>No finding: <code>apsidal check</code> found no cheaper plan and nothing "
-        "inconsistent.</p>"]
+        ("<p>No finding: <code>apsidal check</code> found no cheaper plan and nothing "
+        "inconsistent.</p>")]
     if cut:
         out.append(f"<p>Cut short by the time limit (not every candidate proven): "
                    f"{_e(', '.join(cut))}.</p>")
@@ -214,8 +214,8 @@ def _page(title: str, body: list[str]) -> str:
         '<meta name="viewport" content="width=device-width, initial-scale=1">',
         f"<title>{_e(title)}</title>", f"<style>{CSS}</style>", "</head>", "<body><main>",
         *body,
-        f'<footer><p class="caution"><strong>Caution.</strong> {_e(CAUTION)}</p>'
-        f"<p>Written by apsidal {_e(version())}.</p></footer>",
+        (f'<footer><p class="caution"><strong>Caution.</strong> {_e(CAUTION)}</p>'
+        f"<p>Written by apsidal {_e(version())}.</p></footer>"),
         "</main></body>", "</html>", ""])
 
 
@@ -228,10 +228,10 @@ def plan_page(result, report: dict, findings: list[dict] | None = None,
     burns = sum(1 for s in report["steps"] if s["kind"] == "burn")
     body = [
         f"<header><h1>Delta-v budget: {_e(report['plan'])}</h1>",
-        f'<p class="meta">{_e(report["source"])} · around {_e(report["body"]["name"])} · '
+        (f'<p class="meta">{_e(report["source"])} · around {_e(report["body"]["name"])} · '
         f'craft {_e(report["craft"]["name"])}, dry {sig(report["craft"]["dry_kg"])} kg, '
         f'propellant {sig(report["craft"]["propellant_kg"])} kg · margin '
-        f'{sig(report["margin_pct"])} %</p></header>',
+        f'{sig(report["margin_pct"])} %</p></header>'),
         f'<p class="caution"><strong>Caution.</strong> {_e(CAUTION)}</p>',
         '<section id="totals"><h2>Totals</h2>',
         _table(("total", "value"), [f"<tr><td>{_e(k)}</td><td class=n>{_e(v)}</td></tr>"
@@ -245,8 +245,8 @@ def plan_page(result, report: dict, findings: list[dict] | None = None,
                 "burns, numbered as in the table."),
         _figure(picture("waterfall", result, report, colours=colours, title=""),
                 "waterfall-", "Delta-v of each burn and allowance (striped), margin "
-                "as a pale tint on top, adding up to the total; the load's delta-v capacity in this order "
-                "and that capacity less the reserve as lines."),
+                "as a pale tint on top, adding up to the total; the load's delta-v capacity "
+                "in this order and that capacity less the reserve as lines."),
         _figure(picture("mass", result, report, colours=colours, title=""), "mass-",
                 "Mass and usable propellant left against elapsed time; each burn, drop "
                 "and allowance a step."),
@@ -295,21 +295,20 @@ def diff_page(diff: dict, old: dict, new: dict, old_label: str, new_label: str) 
     changed = sum(1 for e in diff["steps"] if e["status"] != "same")
     falls = []
     for report, label, prefix in ((old, old_label, "old-"), (new, new_label, "new-")):
-        fig = draw.waterfall_figure(pictures.waterfall(report), colours, f"{label}",
-                                    width=6.4)
-        falls.append(_figure(fig, prefix, f"{label}: delta-v {sig(report['totals']['dv_with_margin_m_s'])} "
-                             "m/s with margin"))
+        fig = draw.waterfall_figure(pictures.waterfall(report), colours, label, width=6.4)
+        total = sig(report["totals"]["dv_with_margin_m_s"])
+        falls.append(_figure(fig, prefix, f"{label}: delta-v {total} m/s with margin"))
     found = _findings_lines(diff)
     body = [
         f"<header><h1>Budget change: {_e(headline(diff))}</h1>",
-        f'<p class="meta">old: {_e(old_label)} ({_e(old["plan"])}) · new: {_e(new_label)} '
-        f'({_e(new["plan"])})</p></header>',
+        (f'<p class="meta">old: {_e(old_label)} ({_e(old["plan"])}) · new: {_e(new_label)} '
+        f'({_e(new["plan"])})</p></header>'),
         f'<p class="caution"><strong>Caution.</strong> {_e(CAUTION)}</p>',
         '<section id="totals"><h2>Totals before and after</h2>',
         _table(("total", "old", "new", "change"), totals, numeric=(1, 2, 3)), "</section>",
         '<section id="steps"><h2>Steps</h2>',
-        f"<p>{changed} of {len(diff['steps'])} steps changed, added, removed or moved "
-        "(highlighted).</p>",
+        (f"<p>{changed} of {len(diff['steps'])} steps changed, added, removed or moved "
+        "(highlighted).</p>"),
         _table(STEP_COLUMNS, steps, numeric=(3, 4, 5, 6, 7, 8)), "</section>",
         '<section id="pictures"><h2>Where the delta-v goes, before and after</h2>',
         '<div class="pair">', *falls, "</div></section>",

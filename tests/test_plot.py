@@ -187,7 +187,7 @@ def test_a_plan_that_does_not_fit_is_drawn_with_its_shortfall(tmp_path):
     assert "capacity" not in ids  # no capacity to draw: the load runs out part-way
     report = run_json(plan)
     assert report["totals"]["dv_with_margin_m_s"] > 0  # priced in full, never 0 m/s
-    offset, slope = svgread.y_axis(root)
+    _offset, slope = svgread.y_axis(root)
     ys = svgread.path_points(ids["bar-total"])[:, 1]
     assert abs(slope) * (ys.max() - ys.min()) == pytest.approx(
         report["totals"]["dv_with_margin_m_s"], rel=1e-4)

@@ -44,7 +44,7 @@ def report_page(tmp_path: Path, plan: Path, *more: str) -> tuple[int, str]:
 # is not a fragment of the page itself, a style sheet import or a url() that is not "#".
 EXTERNAL = re.compile(r"https?:|//[a-z0-9.-]+\.[a-z]{2,}/|\bsrc\s*=|\bhref\s*=\s*\"(?!#)|"
                       r"@import|url\(\s*(?!#)|<script|<link\b|<iframe|<object|<embed",
-                      re.I)
+                      re.IGNORECASE)
 
 
 def external_references(page: str) -> list[str]:
@@ -55,8 +55,8 @@ class Structure(HTMLParser):
     """Tags opened and closed, to check the page nests (an unclosed <svg> or <table>
     would swallow the rest of the page in a browser)."""
 
-    VOID = {"meta", "br", "hr", "img", "input", "link", "source", "wbr", "col", "area",
-            "base", "embed", "param", "track"}
+    VOID = frozenset({"meta", "br", "hr", "img", "input", "link", "source", "wbr", "col", "area",
+                      "base", "embed", "param", "track"})
 
     def __init__(self):
         super().__init__(convert_charrefs=True)
@@ -118,7 +118,7 @@ def test_report_holds_every_step_the_totals_and_nothing_external(tmp_path, path)
         assert sig(tot[key]) in text, key
     assert run["caution"] in text
     # the chain picture, inline: one marker per burn
-    root = svgread.parse(re.search(r"<svg .*?</svg>", page, re.S).group(0)
+    root = svgread.parse(re.search(r"<svg .*?</svg>", page, re.DOTALL).group(0)
                          .replace("<svg ", '<svg xmlns="http://www.w3.org/2000/svg" '
                                   'xmlns:xlink="http://www.w3.org/1999/xlink" ', 1))
     burns = [s_["index"] for s_ in run["steps"] if s_["kind"] == "burn"]
@@ -132,7 +132,7 @@ def test_report_holds_every_step_the_totals_and_nothing_external(tmp_path, path)
 
 
 def test_report_carries_checks_findings_with_their_rewrites(tmp_path):
-    code, out, _ = cli("check", str(RELAY), "--format", "json")
+    _code, out, _ = cli("check", str(RELAY), "--format", "json")
     found = json.loads(out)["plans"][0]["findings"]
     assert any(f["suggestion"] for f in found)  # the sample has a proven rewrite
     _, page = report_page(tmp_path, RELAY)
@@ -199,7 +199,7 @@ def test_diff_page_shows_totals_changes_and_two_waterfalls(tmp_path):
         assert sig(diff["old"][key]) in text and sig(diff["new"][key]) in text
     changed = [e["name"] for e in diff["steps"] if e["status"] == "changed"]
     assert changed
-    rows = re.findall(r'<tr class="status-(\w+)">(.*?)</tr>', page, re.S)
+    rows = re.findall(r'<tr class="status-(\w+)">(.*?)</tr>', page, re.DOTALL)
     highlighted = {name for status, row in rows if status == "changed"
                    for name in changed if name in html.unescape(row)}
     assert highlighted == set(changed)
