@@ -27,7 +27,7 @@ import numpy as np
 
 from . import kepler
 from .evaluate import PRICED_KINDS
-from .state import frame, norm, unit
+from .state import frame, norm, periapsis_radius, unit
 
 # Paul Tol's "muted" qualitative scheme (P. Tol, "Colour Schemes", SRON technical note
 # SRON/EPS/TN/09-002, issue 3.2, 2021; values from memory): nine colours distinct for
@@ -187,19 +187,8 @@ def chain(result, report: dict) -> Chain:
     for i, row in enumerate(result.rows):
         if row.kind == "burn":
             states.append((i + 1, row.name, row.after.r[0], row.after.v[0]))
-    widest = [np.linalg.norm(r) for _, _, r, _ in states]
-    for _, _, r, v in states:
-        energy = 0.5 * np.dot(v, v) - mu / np.linalg.norm(r)
-        if energy < 0.0:
-            a = -mu / (2.0 * energy)
-            e = np.linalg.norm(frame(r[None], v[None], mu).e_vec[0])
-            widest.append(a * (1.0 + e))
-    extent = OPEN_EXTENT * max(widest)
     out = Chain(p.body.name, radius, _view_axes(r0, v0, mu), start=r0,
                 end=result.final.r[0] if result.rows else r0)
-    for index, name, r, v in states:
-        pts, closed = _conic(r, v, mu, extent)
-        out.orbits.append(Orbit(index, name, _inside(pts, radius), closed))
     r, v, orbit = r0, v0, "start"
     for i, row in enumerate(result.rows):
         report_step = report["steps"][i]
@@ -212,6 +201,21 @@ def chain(result, report: dict) -> Chain:
                                       report_step["dv_with_margin_m_s"]))
             orbit = row.name
         r, v = row.after.r[0], row.after.v[0]
+    # how far out open orbits are drawn: past every closed orbit, every place the craft
+    # is, every arc it coasts, and four periapsis radii of each open orbit
+    widest = [np.linalg.norm(r) for _, _, r, _ in states]
+    widest += [float(norm(a.points).max()) for a in out.arcs if a.points.size]
+    for _, _, r, v in states:
+        rp, closed = periapsis_radius(r[None], v[None], mu)
+        if closed[0]:
+            energy = 0.5 * np.dot(v, v) - mu / np.linalg.norm(r)
+            widest.append(2.0 * (-mu / (2.0 * energy)) - float(rp[0]))  # the apoapsis
+        else:
+            widest.append(4.0 * float(rp[0]))
+    extent = OPEN_EXTENT * max(widest)
+    for index, name, r, v in states:
+        pts, closed = _conic(r, v, mu, extent)
+        out.orbits.append(Orbit(index, name, _inside(pts, radius), closed))
     return out
 
 

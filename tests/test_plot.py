@@ -301,3 +301,24 @@ def test_sweep_file_mistakes_exit_2(tmp_path):
     code, _, err = cli("plot", str(bad), "--kind", "sweep", "--metric", "nonsense",
                        "-o", str(tmp_path / "s.svg"))
     assert code == 2 and "dv_with_margin_m_s" in err
+
+
+def test_open_orbits_reach_past_the_arcs_flown_on_them(tmp_path):
+    # a flyby: the hyperbolas are drawn out past where the craft coasts (3 h after the
+    # burn), both ways from the burn, and the coast is drawn along its own orbit
+    plan = tmp_path / "flyby.aps"
+    plan.write_text("around mars\ncraft c { dry 100 kg propellant 50 kg engine e isp 300 s "
+                    "thrust 10 N }\nstart orbit periapsis 400 km vinf 2.65 km/s inclination "
+                    "75 deg anomaly -40 deg\nburn kick at periapsis: along 50 m/s\n"
+                    "coast out for 3 h\n")
+    report = run_json(plan)
+    root = svgread.parse(plot(tmp_path, plan, "chain").read_bytes())
+    scale = svgread.body_scale(root, report["body"]["radius_km"])
+    ids = svgread.by_id(root)
+    orbit = svgread.to_km(svgread.path_points(ids["orbit-1"]), scale)
+    coast = svgread.to_km(svgread.path_points(ids["coast-2"]), scale)
+    assert np.linalg.norm(orbit, axis=1).max() > np.linalg.norm(coast, axis=1).max()
+    # every point of the coast lies on the drawn orbit (to the sampling's chord error)
+    step = np.linalg.norm(np.diff(orbit, axis=0), axis=1).max()
+    for p in coast:
+        assert np.min(np.linalg.norm(orbit - p, axis=1)) < step
