@@ -260,10 +260,14 @@ def _chain_3d(ax, chain: Chain, colours, prefix: str) -> None:
     r = chain.radius
     ax.plot_wireframe(r * np.cos(u) * np.sin(v), r * np.sin(u) * np.sin(v), r * np.cos(v),
                       color=NEUTRAL, linewidth=0.3).set_gid(f"{prefix}body")
+    handles = []
     for orbit in chain.orbits:
         p = orbit.points
-        (line,) = ax.plot(p[:, 0], p[:, 1], p[:, 2], **_orbit_style(orbit, colours))
+        label = "start orbit" if orbit.index is None else _short(f"{orbit.index} {orbit.name}")
+        (line,) = ax.plot(p[:, 0], p[:, 1], p[:, 2], label=label,
+                          **_orbit_style(orbit, colours))
         line.set_gid(f"{prefix}orbit-{orbit.index or 0}")
+        handles.append(line)
     for arc in chain.arcs:
         colour = NEUTRAL if arc.orbit_name == "start" else _colour(colours, arc.orbit_name)
         p = arc.points
@@ -284,6 +288,11 @@ def _chain_3d(ax, chain: Chain, colours, prefix: str) -> None:
     ax.set_xlabel("x km")
     ax.set_ylabel("y km")
     ax.set_zlabel("z km (body's pole)")
+    shown = handles[:LEGEND_ENTRIES] + [
+        Line2D([], [], color=INK, linewidth=2.2, label="coast flown"),
+        Line2D([], [], marker="o", markersize=8, markerfacecolor="white",
+               markeredgecolor=INK, linestyle="none", label="burn (step number)")]
+    ax.legend(handles=shown, loc="upper left", bbox_to_anchor=(1.02, 1.0))
 
 
 # --- waterfall -----------------------------------------------------------------------
