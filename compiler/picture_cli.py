@@ -109,7 +109,8 @@ def _outcome(result, report) -> int:
         print(f"apsidal: the plan does not fit its load: {shortfall_text(report)}",
               file=sys.stderr)
         return EXIT_FINDINGS
-    if not report["totals"]["expectations_met"]:
+    if not report["totals"]["expectations_met"] or any(
+            f["severity"] == "error" for f in report["findings"]):
         return EXIT_FINDINGS
     return EXIT_OK
 

@@ -132,8 +132,8 @@ def _conic(r: np.ndarray, v: np.ndarray, mu: float, extent: float) -> tuple[np.n
     closed = bool(0.5 * np.dot(v, v) - mu / np.linalg.norm(r) < 0.0)
     if closed:
         sweep = np.linspace(0.0, 2.0 * np.pi, ORBIT_SAMPLES)
-        pts, _, ok = kepler.place(np.tile(r, (sweep.size, 1)), np.tile(v, (sweep.size, 1)),
-                                  mu, sweep)
+        pts, _, _ = kepler.place(np.tile(r, (sweep.size, 1)), np.tile(v, (sweep.size, 1)),
+                                 mu, sweep)  # a closed orbit: every sweep is reachable
         return pts, True
     sweep = np.linspace(0.0, np.pi, 4 * ORBIT_SAMPLES)
     parts = []

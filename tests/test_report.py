@@ -217,3 +217,18 @@ def diff_caution() -> str:
     from apsidal.compiler.budget import CAUTION
 
     return CAUTION
+
+
+def test_a_failed_expectation_shows_and_exits_1_as_run_does(tmp_path):
+    plan = tmp_path / "miss.aps"
+    plan.write_text("around earth\ncraft c { dry 500 kg propellant 400 kg engine e isp 300 s "
+                    "thrust 400 N }\nstart circular 400 km\n"
+                    "burn up at periapsis: apoapsis to 2000 km\n"
+                    "expect high apoapsis 3000 km within 1 km\n")
+    run_code, out, _ = cli("run", str(plan), "--format", "json")
+    assert run_code == 1
+    code, page = report_page(tmp_path, plan)
+    assert code == run_code
+    text = html.unescape("".join(structure(page).text))
+    check = json.loads(out)["steps"][1]["checks"][0]
+    assert not check["passed"] and "FAIL high: apoapsis 3000 km within 1 km" in text
