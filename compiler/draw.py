@@ -437,13 +437,17 @@ def sweep_figure(series: SweepSeries, title: str = "", prefix: str = ""):
                 ax.plot(c.x[bad], c.y[bad], marker="o", markersize=7, linestyle="none",
                         markerfacecolor="white", markeredgecolor=colour,
                         label="does not fit its load" if k == 0 else None)
-        if series.best is not None:
+        if series.best is not None and series.best[1] is not None:
             (best,) = ax.plot([series.best[0]], [series.best[1]], marker="*", markersize=14,
-                              color=INK, linestyle="none",
-                              label=f"best: {series.best_label}")
+                              color=INK, linestyle="none", label=series.best_label)
             best.set_gid(f"{prefix}best")
-        if series.ticks is not None:
-            ax.set_xticks(range(len(series.ticks)), series.ticks)
+        elif series.best is not None:  # the sweep minimised another total: where, not how much
+            best = ax.axvline(series.best[0], color=INK, linewidth=1.0, linestyle=(0, (1, 2)),
+                              label=series.best_label)
+            best.set_gid(f"{prefix}best")
+        if series.not_flown:
+            ax.plot([], [], linestyle="none", label=f"{series.not_flown} variants not flown "
+                    "(not drawn)")
         unit = f", {series.unit}" if series.unit else ""
         ax.set_xlabel(f"{series.parameter}{unit}")
         ax.set_ylabel(METRICS.get(series.metric, series.metric))

@@ -20,7 +20,6 @@ for colour-blind readers.
 from __future__ import annotations
 
 import math
-import re
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -311,29 +310,14 @@ def time_unit(seconds: float) -> tuple[str, float]:
 
 # --- a trade study -------------------------------------------------------------------
 
-_VALUE = re.compile(r"\s*([+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?)\s*(.*?)\s*")
-
 
 class SweepError(ValueError):
     """A sweep file that is not what `apsidal sweep --format json` writes."""
 
 
-def _number(value) -> tuple[float | None, str]:
-    """A variant's value as a number and its unit: ``300``, ``"300 km"``, ``"5 %"``."""
-    if isinstance(value, bool):
-        return None, ""
-    if isinstance(value, (int, float)):
-        return float(value), ""
-    if isinstance(value, dict) and "value" in value:
-        number, _ = _number(value["value"])
-        return number, str(value.get("unit", ""))
-    m = _VALUE.fullmatch(str(value))
-    return (float(m.group(1)), m.group(2)) if m else (None, "")
-
-
 @dataclass
 class Curve:
-    label: str  # the other parameters' values ("" when one parameter is varied)
+    label: str  # the other varied values ("" when one quantity is varied)
     x: np.ndarray
     y: np.ndarray
     feasible: np.ndarray  # bool
@@ -345,80 +329,89 @@ class SweepSeries:
     unit: str
     metric: str
     curves: list[Curve]
-    best: tuple[float, float] | None  # (x, y)
+    best: tuple[float, float | None] | None  # (x, y); y None: the best of another metric
     best_label: str
-    ticks: list[str] | None = None  # names of categorical values, else None
+    not_flown: int  # variants that could not be flown (no totals): not drawn
 
 
 METRICS = {"dv_with_margin_m_s": "delta-v with margin, m/s", "dv_m_s": "delta-v, m/s",
            "propellant_kg": "propellant used, kg", "final_mass_kg": "final mass, kg",
            "propellant_left_kg": "propellant left, kg",
-           "dv_capacity_left_m_s": "delta-v capacity left, m/s",
-           "propellant_needed_kg": "propellant needed, kg", "elapsed_s": "elapsed, s"}
+           "dv_capacity_left_m_s": "delta-v capacity left, m/s", "elapsed_s": "elapsed, s"}
+OBJECTIVES = {"propellant": "propellant_kg", "dv": "dv_m_s", "elapsed": "elapsed_s"}
+HIGHER_IS_BETTER = ("final_mass_kg", "propellant_left_kg", "dv_capacity_left_m_s")
 
 
-def _best_index(data: dict, variants: list[dict], metric: str) -> int | None:
+def _variants(data) -> list[dict]:
+    variants = data.get("variants") if isinstance(data, dict) else None
+    if not isinstance(variants, list) or not variants or not all(
+            isinstance(v, dict) and isinstance(v.get("values"), dict) and v["values"]
+            and (v.get("totals") is None or isinstance(v["totals"], dict))
+            for v in variants):
+        hint = (" (a --disperse file holds statistics, not variants: it has no curve to "
+                "draw)" if isinstance(data, dict) and "dispersions" in data else "")
+        raise SweepError("a sweep file holds `variants`, a list of objects each with "
+                         "`values` and `totals` (what `apsidal sweep --format json` "
+                         f"writes){hint}")
+    for v in variants:
+        if not all(isinstance(x, (int, float)) and not isinstance(x, bool)
+                   for x in v["values"].values()):
+            raise SweepError("the variants' `values` must be numbers (in their axis's unit)")
+    return variants
+
+
+def _best(data: dict, metric: str, parameter: str, flown: list[dict]):
+    """The best point: the sweep's own (`--minimise`: a value found between the grid's
+    points), else the best of the metric among the variants that fit their load."""
     best = data.get("best")
-    if isinstance(best, int) and not isinstance(best, bool) and 0 <= best < len(variants):
-        return best
-    if isinstance(best, dict):
-        if isinstance(best.get("index"), int) and 0 <= best["index"] < len(variants):
-            return best["index"]
-        if "values" in best:
-            for i, v in enumerate(variants):
-                if v.get("values") == best["values"]:
-                    return i
-    scored = [(v["totals"].get(metric), i) for i, v in enumerate(variants)
+    if isinstance(best, dict) and isinstance(best.get("value"), (int, float)):
+        key = OBJECTIVES.get(best.get("objective"))
+        y = best.get(key) if key == metric else None
+        unit = f" {best['unit']}" if best.get("unit") else ""
+        label = (f"best {best.get('name', parameter)} {best['value']:g}{unit} "
+                 f"(least {best.get('objective')})")
+        return (float(best["value"]), None if y is None else float(y)), label
+    scored = [(v["totals"][metric], i) for i, v in enumerate(flown)
               if v.get("feasible", True) and v["totals"].get(metric) is not None]
     if not scored:
-        return None
-    high = metric in ("final_mass_kg", "propellant_left_kg", "dv_capacity_left_m_s")
-    return (max(scored) if high else min(scored))[1]
+        return None, ""
+    _, i = max(scored) if metric in HIGHER_IS_BETTER else min(scored)
+    values = ", ".join(f"{k} {x:g}" for k, x in flown[i]["values"].items())
+    point = (float(flown[i]["values"][parameter]), float(flown[i]["totals"][metric]))
+    return point, f"best that fits: {values}"
 
 
 def sweep_series(data: dict, metric: str | None = None) -> SweepSeries:
-    """Curves of ``metric`` (a totals key) against the first varied value, one curve per
-    combination of the others; the best variant as the file names it (``best``), or else
-    the least (for masses and capacity left, the most) among those that fit their load.
+    """Curves of ``metric`` (a totals key) against the first varied quantity, one curve
+    per combination of the others; variants that could not be flown are counted, not
+    drawn.  The metric defaults to the sweep's own objective (``best.objective``), else
+    delta-v with margin.
     """
-    variants = data.get("variants") if isinstance(data, dict) else None
-    if not isinstance(variants, list) or not variants or not all(
-            isinstance(v, dict) and isinstance(v.get("values"), dict)
-            and isinstance(v.get("totals"), dict) for v in variants):
-        raise SweepError("a sweep file holds `variants`, a list of objects each with "
-                         "`values` and `totals` (what `apsidal sweep --format json` writes)")
-    named = data.get("minimise")
-    metric = metric or (named if isinstance(named, str) else None) or "dv_with_margin_m_s"
-    if metric not in variants[0]["totals"]:
-        known = ", ".join(k for k in METRICS if k in variants[0]["totals"])
+    variants = _variants(data)
+    best = data.get("best") if isinstance(data.get("best"), dict) else {}
+    metric = metric or OBJECTIVES.get(best.get("objective"), "dv_with_margin_m_s")
+    flown = [v for v in variants if v.get("totals") is not None]
+    if not flown:
+        raise SweepError("no variant of the sweep could be flown: there is nothing to draw "
+                         "(`apsidal sweep` says why, variant by variant)")
+    if metric not in flown[0]["totals"]:
+        known = ", ".join(k for k in METRICS if k in flown[0]["totals"])
         raise SweepError(f"the variants' totals have no `{metric}`; try one of: {known}")
-    names = list(variants[0]["values"])
-    if not names:
-        raise SweepError("the variants vary nothing: `values` is empty")
+    axes = [a for a in data.get("axes", []) if isinstance(a, dict) and "name" in a]
+    names = [a["name"] for a in axes] or list(variants[0]["values"])
     parameter, others = names[0], names[1:]
-    parsed = [_number(v["values"].get(parameter)) for v in variants]
-    numeric = all(x is not None for x, _ in parsed)
-    ticks = None
-    if numeric:
-        xs = [x for x, _ in parsed]
-    else:
-        ticks = list(dict.fromkeys(str(v["values"].get(parameter)) for v in variants))
-        xs = [float(ticks.index(str(v["values"].get(parameter)))) for v in variants]
-    unit = next((u for _, u in parsed if u), "")
-    groups: dict[str, list[int]] = {}
-    for i, v in enumerate(variants):
-        label = ", ".join(f"{k} {v['values'].get(k)}" for k in others)
-        groups.setdefault(label, []).append(i)
+    unit = str(axes[0].get("unit", "")) if axes else ""
+    groups: dict[str, list[dict]] = {}
+    for v in flown:
+        label = ", ".join(f"{k} {v['values'].get(k):g}" for k in others)
+        groups.setdefault(label, []).append(v)
     curves = []
-    for label, idx in groups.items():
-        idx = sorted((i for i in idx if variants[i]["totals"].get(metric) is not None),
-                     key=lambda i: xs[i])
-        curves.append(Curve(label, np.array([xs[i] for i in idx]),
-                            np.array([float(variants[i]["totals"][metric]) for i in idx]),
-                            np.array([bool(variants[i].get("feasible", True)) for i in idx])))
-    b = _best_index(data, variants, metric)
-    best = None if b is None or variants[b]["totals"].get(metric) is None else (
-        xs[b], float(variants[b]["totals"][metric]))
-    best_label = "" if b is None else ", ".join(
-        f"{k} {v}" for k, v in variants[b]["values"].items())
-    return SweepSeries(parameter, unit, metric, curves, best, best_label, ticks)
+    for label, members in groups.items():
+        members = sorted((v for v in members if v["totals"].get(metric) is not None),
+                         key=lambda v: v["values"][parameter])
+        curves.append(Curve(label, np.array([float(v["values"][parameter]) for v in members]),
+                            np.array([float(v["totals"][metric]) for v in members]),
+                            np.array([bool(v.get("feasible", True)) for v in members])))
+    point, label = _best(data, metric, parameter, flown)
+    return SweepSeries(parameter, unit, metric, curves, point, label,
+                       len(variants) - len(flown))

@@ -62,18 +62,23 @@ def to_km(xy: np.ndarray, scale) -> np.ndarray:
     return np.stack([(xy[..., 0] - cx) / k, (cy - xy[..., 1]) / k], axis=-1)
 
 
-def y_axis(root: ET.Element, prefix: str = "") -> tuple[float, float]:
-    """(offset, slope) with value = offset + slope * svg_y, from the labelled y ticks."""
+def axis(root: ET.Element, which: str = "y", prefix: str = "") -> tuple[float, float]:
+    """(offset, slope) with value = offset + slope * svg coordinate, from the labelled
+    ticks of the ``which`` axis ("x" or "y")."""
     pairs = []
     for key, el in by_id(root).items():
-        if not re.fullmatch(rf"{prefix}ytick_\d+", key):
+        if not re.fullmatch(rf"{prefix}{which}tick_\d+", key):
             continue
         use = next(el.iter(f"{SVG}use"), None)
         text = next(el.iter(f"{SVG}text"), None)
         if use is None or text is None or text.text is None:
             continue
         label = text.text.replace("\u2212", "-").replace(",", "")
-        pairs.append((float(use.get("y")), float(label)))
-    (y0, v0), (y1, v1) = pairs[0], pairs[-1]
-    slope = (v1 - v0) / (y1 - y0)
-    return v0 - slope * y0, slope
+        pairs.append((float(use.get(which)), float(label)))
+    (c0, v0), (c1, v1) = pairs[0], pairs[-1]
+    slope = (v1 - v0) / (c1 - c0)
+    return v0 - slope * c0, slope
+
+
+def y_axis(root: ET.Element, prefix: str = "") -> tuple[float, float]:
+    return axis(root, "y", prefix)

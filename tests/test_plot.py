@@ -254,9 +254,12 @@ RELAY = next(p for p in SAMPLES if p.stem == "relay-geo")
 
 
 def priced_variants(parking: list[float]) -> dict:
-    """A sweep's JSON (the contract of `apsidal sweep --format json`) built by pricing
-    edited copies of a sample with the evaluator: the parking orbit's altitude varied."""
+    """A sweep's JSON, in the contract of `apsidal sweep --format json`
+    (docs/pictures.md), built by pricing edited copies of a sample with the evaluator:
+    the parking orbit's altitude varied.  An altitude under the surface cannot be flown:
+    its variant has no totals, as a sweep reports it."""
     from apsidal.compiler.budget import budget
+    from apsidal.lang.errors import PlanError
 
     text = RELAY.read_text()
     variants = []
@@ -264,39 +267,83 @@ def priced_variants(parking: list[float]) -> dict:
         edited = text.replace("periapsis 250 km apoapsis 250 km",
                               f"periapsis {alt:g} km apoapsis {alt:g} km")
         assert edited != text
-        report = budget(evaluate(load_text(edited, "relay.aps")))
-        variants.append({"values": {"parking": f"{alt:g} km"}, "totals": report["totals"],
-                         "feasible": report["feasible"]})
-    return {"plan": "relay-geo, parking altitude", "variants": variants}
+        try:
+            result = evaluate(load_text(edited, "relay.aps"))
+        except PlanError as err:
+            variants.append({"values": {"start.circular": float(alt)}, "totals": None,
+                             "flown": False, "feasible": False, "reason": err.message})
+            continue
+        report = budget(result)
+        variants.append({"values": {"start.circular": float(alt)},
+                         "totals": report["totals"] if result.ok else None,
+                         "flown": result.ok, "feasible": report["feasible"]})
+    return {"plan": "relay-geo", "source": str(RELAY),
+            "axes": [{"name": "start.circular", "unit": "km", "low": min(parking),
+                      "high": max(parking), "points": len(parking)}],
+            "variants": variants, "not_flown": sum(not v["flown"] for v in variants),
+            "caution": "estimates"}
 
 
-def test_sweep_curve_has_every_variant_and_marks_the_best(tmp_path):
-    data = priced_variants([200, 300, 500, 800, 1200])
+def sweep_picture(tmp_path: Path, data: dict, *more: str):
     source = tmp_path / "sweep.json"
     source.write_text(json.dumps(data))
     out = tmp_path / "sweep.svg"
-    code, _, err = cli("plot", str(source), "--kind", "sweep", "-o", str(out))
+    code, _, err = cli("plot", str(source), "--kind", "sweep", "-o", str(out), *more)
     assert code == 0, err
-    root = svgread.parse(out.read_bytes())
+    return svgread.parse(out.read_bytes())
+
+
+def test_sweep_curve_has_every_flown_variant_and_marks_the_best(tmp_path):
+    data = priced_variants([-100, 200, 300, 500, 800, 1200])
+    assert data["not_flown"] == 1  # 100 km under the surface
+    root = sweep_picture(tmp_path, data)
     ids = svgread.by_id(root)
     assert len(svgread.marker_positions(ids["curve-0"])) == 5
     offset, slope = svgread.y_axis(root)
     drawn = offset + slope * svgread.marker_positions(ids["curve-0"])[:, 1]
-    want = [v["totals"]["dv_with_margin_m_s"] for v in data["variants"]]
+    flown = [v for v in data["variants"] if v["flown"]]
+    want = [v["totals"]["dv_with_margin_m_s"] for v in flown]
     assert np.allclose(drawn, want, atol=1e-4 * max(want))
     best = offset + slope * svgread.marker_positions(ids["best"])[0, 1]
-    feasible = [w for w, v in zip(want, data["variants"]) if v["feasible"]]
+    feasible = [w for w, v in zip(want, flown) if v["feasible"]]
     assert best == pytest.approx(min(feasible), abs=1e-4 * max(want))
+    texts = " ".join(t.text or "" for t in root.iter(f"{svgread.SVG}text"))
+    assert "1 variants not flown" in texts and "start.circular, km" in texts
+
+
+def test_sweep_best_is_the_sweeps_own_minimum(tmp_path):
+    data = priced_variants([200, 400, 600])
+    # a --minimise result: the value found between the grid's points and its objective
+    data["best"] = {"name": "start.circular", "unit": "km", "value": 512.5,
+                    "tolerance": 0.1, "objective": "propellant", "propellant_kg": 2000.0,
+                    "at_end_of_range": False, "evaluations": 30, "plan_text": ""}
+    root = sweep_picture(tmp_path, data)
+    offset, slope = svgread.y_axis(root)
+    x0, xs = svgread.axis(root, "x")
+    best = svgread.marker_positions(svgread.by_id(root)["best"])[0]
+    assert x0 + xs * best[0] == pytest.approx(512.5, abs=0.01)  # km
+    assert offset + slope * best[1] == pytest.approx(2000.0, abs=0.05)  # propellant: kg
+    drawn = offset + slope * svgread.marker_positions(svgread.by_id(root)["curve-0"])[:, 1]
+    assert np.allclose(drawn, [v["totals"]["propellant_kg"] for v in data["variants"]],
+                       atol=0.05)
+    # another metric than the one minimised: the best value as a line, not a point
+    root = sweep_picture(tmp_path, data, "--metric", "dv_m_s")
+    x0, xs = svgread.axis(root, "x")
+    line = svgread.path_points(svgread.by_id(root)["best"])
+    assert line.shape[0] == 2 and np.allclose(x0 + xs * line[:, 0], 512.5, atol=0.01)
 
 
 def test_sweep_file_mistakes_exit_2(tmp_path):
     bad = tmp_path / "bad.json"
-    bad.write_text('{"variants": [')
-    code, _, err = cli("plot", str(bad), "--kind", "sweep", "-o", str(tmp_path / "s.svg"))
-    assert code == 2 and "bad.json:1:" in err and "not JSON" in err
-    bad.write_text('{"steps": []}')
-    code, _, err = cli("plot", str(bad), "--kind", "sweep", "-o", str(tmp_path / "s.svg"))
-    assert code == 2 and "variants" in err
+    cases = [('{"variants": [', "bad.json:1:"), ('{"steps": []}', "variants"),
+             ('{"dispersions": [], "steps": []}', "--disperse"),
+             (json.dumps({"variants": [{"values": {"a": 1.0}, "totals": None,
+                                        "flown": False, "feasible": False}]}),
+              "no variant of the sweep could be flown")]
+    for text, words in cases:
+        bad.write_text(text)
+        code, _, err = cli("plot", str(bad), "--kind", "sweep", "-o", str(tmp_path / "s.svg"))
+        assert code == 2 and words in err, (text, err)
     bad.write_text(json.dumps(priced_variants([300, 400])))
     code, _, err = cli("plot", str(bad), "--kind", "sweep", "--metric", "nonsense",
                        "-o", str(tmp_path / "s.svg"))
