@@ -232,3 +232,10 @@ def test_a_failed_expectation_shows_and_exits_1_as_run_does(tmp_path):
     text = html.unescape("".join(structure(page).text))
     check = json.loads(out)["steps"][1]["checks"][0]
     assert not check["passed"] and "FAIL high: apoapsis 3000 km within 1 km" in text
+
+
+def test_diff_page_of_a_plan_that_does_not_parse_is_no_page(tmp_path):
+    bad = tmp_path / "bad.aps"
+    bad.write_text("around earth\nstart circular 400 km\nburn\n")
+    code, out, err = cli("diff", str(RELAY), str(bad), "--format", "html")
+    assert code == 2 and out == "" and "bad.aps:" in err and "does not parse" in err
