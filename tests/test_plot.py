@@ -79,11 +79,16 @@ def test_chain_has_one_marker_per_burn_at_the_burn_position(tmp_path, path):
     d_got = np.linalg.norm(got[:, None] - got[None], axis=-1)
     d_want = np.linalg.norm(want[:, None] - want[None], axis=-1)
     assert np.allclose(d_got, d_want, atol=2 * tol)
-    # each burn's marker sits on the orbit it starts (drawn from that very point)
+    # each burn's marker sits on the orbit it starts (drawn from that very point), and
+    # the coast that leads to it (the wait for its place) ends there
     orbits = svgread.ids_like(root, r"orbit-\d+")
+    coasts = svgread.ids_like(root, r"coast-\d+")
     for s, xy in zip(burns, got):
         path_km = svgread.to_km(svgread.path_points(orbits[f"orbit-{s['index']}"]), scale)
         assert np.min(np.linalg.norm(path_km - xy, axis=1)) < tol
+        if s["coast_before_s"] > 0:
+            arc = svgread.to_km(svgread.path_points(coasts[f"coast-{s['index']}"]), scale)
+            assert np.linalg.norm(arc[-1] - xy) < tol
 
 
 @pytest.mark.parametrize("path", SAMPLES, ids=IDS)
