@@ -36,6 +36,7 @@ th, td { padding: 3px 9px; border-bottom: 1px solid var(--rule); vertical-align:
 th { text-align: left; font-weight: 600; background: var(--band); }
 td.n, th.n { text-align: right; white-space: nowrap; }
 .scroll { overflow-x: auto; }
+table.rows td { white-space: nowrap; }
 .chip { display: inline-block; width: 0.8em; height: 0.8em; margin-right: 6px;
         border: 1px solid #0003; vertical-align: -0.05em; }
 .pass { color: var(--ok); font-weight: 600; }
@@ -147,7 +148,8 @@ def _step_row(s: dict, colours: dict) -> str:
 def _table(headings, rows: list[str], numeric=()) -> str:
     head = "".join(f'<th{" class=n" if i in numeric else ""}>{_e(h)}</th>'
                    for i, h in enumerate(headings))
-    return (f'<div class="scroll"><table><thead><tr>{head}</tr></thead><tbody>\n'
+    # a row is one line, as on the terminal: a wide table scrolls in its box instead
+    return (f'<div class="scroll"><table class="rows"><thead><tr>{head}</tr></thead><tbody>\n'
             + "\n".join(rows) + "\n</tbody></table></div>")
 
 
