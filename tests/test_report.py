@@ -239,3 +239,28 @@ def test_diff_page_of_a_plan_that_does_not_parse_is_no_page(tmp_path):
     bad.write_text("around earth\nstart circular 400 km\nburn\n")
     code, out, err = cli("diff", str(RELAY), str(bad), "--format", "html")
     assert code == 2 and out == "" and "bad.aps:" in err and "does not parse" in err
+
+
+def colour_of(page: str, element_id: str, prop: str) -> str:
+    """The ``prop`` (fill or stroke) colour of the first path in the element ``id``."""
+    m = re.search(rf'id="{element_id}">\s*<path[^>]*?style="[^"]*?\b{prop}: (#[0-9a-f]{{6}})',
+                  page)
+    assert m, element_id
+    return m.group(1).lower()
+
+
+def test_a_step_has_one_colour_in_every_picture_and_table(tmp_path):
+    plan = next(p for p in SAMPLES if p.stem == "geo-fifteen-years")  # burns and allowances
+    _, out, _ = cli("run", str(plan), "--format", "json")
+    run = json.loads(out)
+    _, page = report_page(tmp_path, plan)
+    burns = [s for s in run["steps"] if s["kind"] == "burn"]
+    seen = set()
+    for s in burns:
+        n = s["index"]
+        orbit = colour_of(page, f"chain-orbit-{n}", "stroke")
+        bar = colour_of(page, f"waterfall-bar-{n}-dv", "fill")
+        chip = re.search(rf'<tr id="step-{n}">.*?background:(#[0-9A-Fa-f]{{6}})', page).group(1)
+        assert orbit == bar == chip.lower(), s["name"]
+        seen.add(orbit)
+    assert len(seen) == len(burns)  # the burns come first: five burns, five colours
