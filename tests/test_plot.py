@@ -16,6 +16,7 @@ import json
 import os
 import subprocess
 import sys
+import xml.etree.ElementTree as ET
 from pathlib import Path
 
 import numpy as np
@@ -24,6 +25,8 @@ import svgread
 from apsidal.compiler.cli import main
 from apsidal.compiler.evaluate import run as evaluate
 from apsidal.compiler.load import load, load_text
+from hypothesis import HealthCheck, given, settings
+from plangen import plan_texts
 
 SAMPLES = sorted((Path(__file__).resolve().parent.parent / "samples").glob("*.aps"))
 IDS = [p.stem for p in SAMPLES]
@@ -374,3 +377,27 @@ def test_open_orbits_reach_past_the_arcs_flown_on_them(tmp_path):
     step = np.linalg.norm(np.diff(orbit, axis=0), axis=1).max()
     for p in coast:
         assert np.min(np.linalg.norm(orbit - p, axis=1)) < step
+
+
+# --- any plan draws ------------------------------------------------------------------
+
+@settings(max_examples=12, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(plan_texts(max_steps=6))
+def test_every_generated_plan_draws_its_burns_and_its_total(text):
+    from apsidal.compiler import draw
+    from apsidal.compiler.budget import budget
+    from apsidal.compiler.picture_cli import picture
+
+    result = evaluate(load_text(text, "gen.aps"))
+    report = budget(result)
+    burns = sorted(f"burn-{s['index']}" for s in report["steps"] if s["kind"] == "burn")
+    chain = svgread.parse(draw.render(picture("chain", result, report), "svg"))
+    assert sorted(svgread.ids_like(chain, r"burn-\d+")) == burns
+    assert "nan" not in ET.tostring(chain, encoding="unicode").lower()
+    fall = svgread.parse(draw.render(picture("waterfall", result, report), "svg"))
+    ids = svgread.by_id(fall)
+    ys = svgread.path_points(ids["bar-total"])[:, 1]
+    total = report["totals"]["dv_with_margin_m_s"]
+    if total > 0:
+        _, slope = svgread.y_axis(fall)
+        assert abs(slope) * (ys.max() - ys.min()) == pytest.approx(total, rel=1e-4)
