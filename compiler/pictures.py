@@ -95,7 +95,6 @@ class BurnMark:
     index: int  # the report's step index
     name: str
     r: np.ndarray  # (3,) km, inertial
-    dv_m_s: float
 
 
 @dataclass
@@ -107,7 +106,6 @@ class Chain:
     arcs: list[Arc] = field(default_factory=list)
     burns: list[BurnMark] = field(default_factory=list)
     start: np.ndarray | None = None  # (3,) km
-    end: np.ndarray | None = None  # (3,) km
 
     def project(self, points: np.ndarray) -> np.ndarray:
         """Inertial points (..., 3) in the view's axes (..., 3): x, y in the first orbit's
@@ -186,8 +184,7 @@ def chain(result, report: dict) -> Chain:
     for i, row in enumerate(result.rows):
         if row.kind == "burn":
             states.append((i + 1, row.name, row.after.r[0], row.after.v[0]))
-    out = Chain(p.body.name, radius, _view_axes(r0, v0, mu), start=r0,
-                end=result.final.r[0] if result.rows else r0)
+    out = Chain(p.body.name, radius, _view_axes(r0, v0, mu), start=r0)
     r, v, orbit = r0, v0, "start"
     for i, row in enumerate(result.rows):
         report_step = report["steps"][i]
@@ -196,8 +193,7 @@ def chain(result, report: dict) -> Chain:
         if seconds and seconds > 0.0:
             out.arcs.append(Arc(i + 1, row.name, orbit, _arc(r, v, mu, seconds)))
         if row.kind == "burn":
-            out.burns.append(BurnMark(i + 1, row.name, row.after.r[0],
-                                      report_step["dv_with_margin_m_s"]))
+            out.burns.append(BurnMark(i + 1, row.name, row.after.r[0]))
             orbit = row.name
         r, v = row.after.r[0], row.after.v[0]
     # how far out open orbits are drawn: past every closed orbit, every place the craft
