@@ -356,7 +356,12 @@ def _variants(data) -> list[dict]:
     return variants
 
 
-def _best(data: dict, metric: str, parameter: str, flown: list[dict]):
+def _with_unit(name: str, value: float, units: dict) -> str:
+    """``shell.circular 900 km``: a varied value as a legend names it."""
+    return f"{name} {value:g}" + (f" {units[name]}" if units.get(name) else "")
+
+
+def _best(data: dict, metric: str, parameter: str, flown: list[dict], units: dict):
     """The best point: the sweep's own (`--minimise`: a value found between the grid's
     points), else the best of the metric among the variants that fit their load."""
     best = data.get("best")
@@ -364,15 +369,16 @@ def _best(data: dict, metric: str, parameter: str, flown: list[dict]):
         key = OBJECTIVES.get(best.get("objective"))
         y = best.get(key) if key == metric else None
         unit = f" {best['unit']}" if best.get("unit") else ""
+        edge = ", at an end of the range" if best.get("at_end_of_range") else ""
         label = (f"best {best.get('name', parameter)} {best['value']:g}{unit} "
-                 f"(least {best.get('objective')})")
+                 f"(least {best.get('objective')}{edge})")
         return (float(best["value"]), None if y is None else float(y)), label
     scored = [(v["totals"][metric], i) for i, v in enumerate(flown)
               if v.get("feasible", True) and v["totals"].get(metric) is not None]
     if not scored:
         return None, ""
     _, i = max(scored) if metric in HIGHER_IS_BETTER else min(scored)
-    values = ", ".join(f"{k} {x:g}" for k, x in flown[i]["values"].items())
+    values = ", ".join(_with_unit(k, x, units) for k, x in flown[i]["values"].items())
     point = (float(flown[i]["values"][parameter]), float(flown[i]["totals"][metric]))
     return point, f"best that fits: {values}"
 
@@ -396,10 +402,11 @@ def sweep_series(data: dict, metric: str | None = None) -> SweepSeries:
     axes = [a for a in data.get("axes", []) if isinstance(a, dict) and "name" in a]
     names = [a["name"] for a in axes] or list(variants[0]["values"])
     parameter, others = names[0], names[1:]
-    unit = str(axes[0].get("unit", "")) if axes else ""
+    units = {a["name"]: str(a.get("unit", "")) for a in axes}
+    unit = units.get(parameter, "")
     groups: dict[str, list[dict]] = {}
     for v in flown:
-        label = ", ".join(f"{k} {v['values'].get(k):g}" for k in others)
+        label = ", ".join(_with_unit(k, v["values"][k], units) for k in others)
         groups.setdefault(label, []).append(v)
     curves = []
     for label, members in groups.items():
@@ -408,6 +415,6 @@ def sweep_series(data: dict, metric: str | None = None) -> SweepSeries:
         curves.append(Curve(label, np.array([float(v["values"][parameter]) for v in members]),
                             np.array([float(v["totals"][metric]) for v in members]),
                             np.array([bool(v.get("feasible", True)) for v in members])))
-    point, label = _best(data, metric, parameter, flown)
+    point, label = _best(data, metric, parameter, flown, units)
     return SweepSeries(parameter, unit, metric, curves, point, label,
                        len(variants) - len(flown))

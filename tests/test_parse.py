@@ -308,7 +308,7 @@ def test_keyword_sets():
     assert not words & {"km", "m/s", "%", "{", ":"}
     assert statement_keywords() == ("plan", "around", "body", "craft", "margin", "reserve",
                                     "ceiling", "start", "burn", "transfer", "coast", "drop",
-                                    "entry", "allow", "expect")
+                                    "entry", "allow", "expect", "trade")
 
 
 def test_the_quantities_parsed_convert_to_internal_units():

@@ -341,6 +341,49 @@ def test_sweep_best_is_the_sweeps_own_minimum(tmp_path):
     assert line.shape[0] == 2 and np.allclose(x0 + xs * line[:, 0], 512.5, atol=0.01)
 
 
+def test_real_sweep_output_draws_with_its_best_value(tmp_path):
+    # `apsidal sweep --minimise` on a sample: every flown variant on the curve at its
+    # value and total, the value the sweep found starred at its objective
+    code, out, err = cli("sweep", str(RELAY), "--vary", "raise.apoapsis=30000..42000 km",
+                         "--minimise", "propellant", "--format", "json")
+    assert code == 0, err
+    data = json.loads(out)
+    root = sweep_picture(tmp_path, data)
+    ids = svgread.by_id(root)
+    x0, xs = svgread.axis(root, "x")
+    y0, ys = svgread.y_axis(root)
+    flown = sorted((v for v in data["variants"] if v["flown"]),
+                   key=lambda v: v["values"]["raise.apoapsis"])
+    drawn = svgread.marker_positions(ids["curve-0"])
+    assert len(drawn) == len(flown) > 2
+    assert np.allclose(x0 + xs * drawn[:, 0], [v["values"]["raise.apoapsis"] for v in flown],
+                       atol=1.0)  # km, on a 12 000 km axis
+    assert np.allclose(y0 + ys * drawn[:, 1], [v["totals"]["propellant_kg"] for v in flown],
+                       atol=0.01)
+    star = svgread.marker_positions(ids["best"])[0]
+    assert x0 + xs * star[0] == pytest.approx(data["best"]["value"], abs=1.0)
+    assert y0 + ys * star[1] == pytest.approx(data["best"]["propellant_kg"], abs=0.01)
+    texts = " ".join(t.text or "" for t in root.iter(f"{svgread.SVG}text"))
+    if data["not_flown"]:
+        assert f"{data['not_flown']} variants not flown" in texts
+
+
+def test_a_plans_own_trade_statement_draws(tmp_path):
+    plan = next(p for p in SAMPLES if p.stem == "marten-shell")
+    code, out, err = cli("sweep", str(plan), "--trade", "altitude", "--format", "json")
+    assert code == 0, err
+    data = json.loads(out)
+    root = sweep_picture(tmp_path, data)
+    ids = svgread.by_id(root)
+    assert len(svgread.marker_positions(ids["curve-0"])) == sum(
+        v["flown"] for v in data["variants"])
+    y0, ys = svgread.y_axis(root)
+    best = y0 + ys * svgread.marker_positions(ids["best"])[0, 1]
+    fits = [v["totals"]["dv_with_margin_m_s"] for v in data["variants"]
+            if v["flown"] and v["feasible"]]
+    assert best == pytest.approx(min(fits), abs=0.01)
+
+
 def test_sweep_file_mistakes_exit_2(tmp_path):
     bad = tmp_path / "bad.json"
     cases = [('{"variants": [', "bad.json:1:"), ('{"steps": []}', "variants"),
