@@ -3,6 +3,7 @@
     .venv/bin/python docs/make_pictures.py
 
 writes docs/images/relay-geo-chain.svg, relay-geo-waterfall.svg and relay-geo-mass.svg,
+marten-shell-sweep.svg (the sample's `trade altitude`),
 docs/samples/relay-geo-report.html (`apsidal report`) and relay-geo-diff.html (`apsidal
 diff --format html` against the revision the README's review section makes).  The SVG
 output is deterministic (docs/pictures.md), so running this again on an unchanged tree
@@ -46,6 +47,13 @@ def make() -> list[Path]:
     for kind in ("chain", "waterfall", "mass"):
         target = Path("docs/images") / f"relay-geo-{kind}.svg"
         apsidal("plot", SAMPLE, "--kind", kind, "-o", str(target))
+        written.append(target)
+    with tempfile.TemporaryDirectory() as tmp:  # a trade study: the sample's own trade
+        sweep = Path(tmp) / "altitude.json"
+        sweep.write_text(apsidal("sweep", "samples/marten-shell.aps", "--trade", "altitude",
+                                 "--format", "json"))
+        target = Path("docs/images/marten-shell-sweep.svg")
+        apsidal("plot", str(sweep), "--kind", "sweep", "-o", str(target))
         written.append(target)
     report = Path("docs/samples/relay-geo-report.html")
     apsidal("report", SAMPLE, "-o", str(report))
