@@ -110,6 +110,9 @@ def chain_figure(chain: Chain, colours: dict[str, str], title: str = "", view: s
             ax = fig.add_subplot()
             _chain_top(ax, chain, colours, prefix)
         ax.set_title(_title(title or "Orbit chain"), loc="left")
+        if chain.cut:
+            ax.text(0.01, 0.99, chain.cut, transform=ax.transAxes, va="top", fontsize=7,
+                    color=INK, bbox=LABEL_BOX, zorder=8)
         fig.subplots_adjust(left=0.13, right=0.74, bottom=0.09, top=0.9)
         _note(fig)
     return fig

@@ -106,6 +106,7 @@ class Chain:
     arcs: list[Arc] = field(default_factory=list)
     burns: list[BurnMark] = field(default_factory=list)
     start: np.ndarray | None = None  # (3,) km
+    cut: str | None = None  # where the plan leaves this body (later phases not drawn)
 
     def project(self, points: np.ndarray) -> np.ndarray:
         """Inertial points (..., 3) in the view's axes (..., 3): x, y in the first orbit's
@@ -177,16 +178,26 @@ def chain(result, report: dict) -> Chain:
     >>> len(c.orbits), len(c.burns), bool(abs(c.project(c.start)[2]) < 1e-9)
     (2, 1, True)
     """
+    from .legs import is_leg
+
     p = result.program
     mu, radius = p.body.gm, p.body.radius
     r0, v0 = np.asarray(p.start_r, float), np.asarray(p.start_v, float)
+    # a plan of several bodies (patched-conic legs) is drawn around its first body only,
+    # up to its first leg: a state around another body is not drawn around this one
+    leg = next((i for i, s in enumerate(p.steps) if is_leg(s)), None)
+    rows = [row for row in result.rows if leg is None or row.step < leg]
     states = [(None, "start", r0, v0)]
-    for i, row in enumerate(result.rows):
+    for i, row in enumerate(rows):
         if row.kind == "burn":
             states.append((i + 1, row.name, row.after.r[0], row.after.v[0]))
     out = Chain(p.body.name, radius, _view_axes(r0, v0, mu), start=r0)
+    if leg is not None:
+        step = p.steps[leg]
+        out.cut = (f"drawn up to leg {step.name} to {step.body.name}; the steps after it "
+                   f"fly around {step.body.name} and are not drawn here")
     r, v, orbit = r0, v0, "start"
-    for i, row in enumerate(result.rows):
+    for i, row in enumerate(rows):
         report_step = report["steps"][i]
         seconds = report_step.get("coast_before_s", 0.0) if row.kind == "burn" else (
             report_step["coast_time_s"] if row.kind in ("coast", "entry") else 0.0)

@@ -227,7 +227,6 @@ def plan_page(result, report: dict, findings: list[dict] | None = None,
     from .picture_cli import picture
 
     colours = pictures.colours(pictures.priced_names(report))
-    burns = sum(1 for s in report["steps"] if s["kind"] == "burn")
     body = [
         f"<header><h1>Delta-v budget: {_e(report['plan'])}</h1>",
         (f'<p class="meta">{_e(report["source"])} · around {_e(report["body"]["name"])} · '
@@ -243,8 +242,8 @@ def plan_page(result, report: dict, findings: list[dict] | None = None,
         _figure(picture("chain", result, report, colours=colours, title=""), "chain-",
                 f"The orbits of the plan to scale around {report['body']['name']}, seen "
                 f"from above the start orbit's plane: dashed, each orbit in the colour of "
-                f"the step that made it; solid, the arcs coasted; circles, the {burns} "
-                "burns, numbered as in the table."),
+                "the step that made it; solid, the arcs coasted; circles, the burns, "
+                "numbered as in the table."),
         _figure(picture("waterfall", result, report, colours=colours, title=""),
                 "waterfall-", "Delta-v of each burn and allowance (striped), margin "
                 "as a pale tint on top, adding up to the total; the load's delta-v capacity "

@@ -61,12 +61,18 @@ def in_plane(r: np.ndarray, h0: np.ndarray) -> np.ndarray:
 @pytest.mark.parametrize("path", SAMPLES, ids=IDS)
 def test_chain_has_one_marker_per_burn_at_the_burn_position(tmp_path, path):
     report = run_json(path)
-    burns = [s for s in report["steps"] if s["kind"] == "burn"]
+    program = load(str(path))
+    # a plan of several bodies is drawn around its first, up to its first leg
+    leg = next((s.name for s in program.steps if s.kind == "leg"), None)
+    until = next((s["index"] for s in report["steps"] if s["name"] == leg), 10**9)
+    burns = [s for s in report["steps"] if s["kind"] == "burn" and s["index"] < until]
     root = svgread.parse(plot(tmp_path, path, "chain").read_bytes())
+    if leg is not None:
+        texts = " ".join(t.text or "" for t in root.iter(f"{svgread.SVG}text"))
+        assert f"drawn up to leg {leg}" in texts
     marks = svgread.ids_like(root, r"burn-\d+")
     assert sorted(marks) == sorted(f"burn-{s['index']}" for s in burns)
     # the evaluator's burn positions (the chain's rows) and the start orbit's normal
-    program = load(str(path))
     rows = evaluate(program).rows
     h0 = np.cross(program.start_r, program.start_v)
     h0 = h0 / np.linalg.norm(h0)
