@@ -16,15 +16,46 @@ from .frames import NAMES, components
 from .legs import is_leg, step_bodies
 from .state import elements_from_state
 
-CAUTION = ("Preliminary-design estimates under the impulsive two-body approximation; "
-           "confirm with high-fidelity analysis and the responsible flight-dynamics "
+CONFIRM = ("confirm with high-fidelity analysis and the responsible flight-dynamics "
            "authority before committing a mission to them.")
-
+CAUTION = f"Preliminary-design estimates under the impulsive two-body approximation; {CONFIRM}"
 CAUTION_J2 = ("Preliminary-design estimates under the impulsive two-body approximation with "
               "the secular first-order J2 drift of the node, apse line and mean motion (no "
-              "short-period terms, drag or third bodies); confirm with high-fidelity analysis "
-              "and the responsible flight-dynamics authority before committing a mission to "
-              "them.")
+              f"short-period terms, drag or third bodies); {CONFIRM}")
+
+
+def models_of(*plans) -> tuple[bool, bool]:
+    """(any burns flown finite, any coasts drifting under J2) among ``plans``: programs
+    or their reports (``run --format json``; one without the keys is impulsive and
+    point-mass), None where a plan could not be read."""
+    def model(p, key, default):
+        return p.get(key, default) if isinstance(p, dict) else getattr(p, key, default)
+
+    ps = [p for p in plans if p is not None]
+    return (any(model(p, "burns", "impulsive") == "finite" for p in ps),
+            any(model(p, "gravity", "point-mass") == "j2" for p in ps))
+
+
+def approximation(finite_burns: bool, j2: bool, short: bool = False) -> str:
+    """The approximation that priced a plan, named for its caution (``short``: for the
+    corner of a picture)."""
+    burns = ("two-body approximation with burns flown at constant thrust along a fixed "
+             "steering law" if finite_burns else "impulsive two-body approximation")
+    if short:
+        return burns.split(" along")[0] + (" and secular J2 drift" if j2 else "")
+    if j2:
+        return (f"{burns}{' and' if finite_burns else ' with'} the secular first-order J2 "
+                "drift of the node, apse line and mean motion (no short-period terms, drag "
+                "or third bodies)")
+    return burns + (" (no J2, drag or third bodies)" if finite_burns else "")
+
+
+def caution(*plans) -> str:
+    """The caution of a report on ``plans`` (``models_of``): every report repeats it, naming the
+    approximation the plans were priced under (one caution for several plans names every
+    departure from the impulsive point-mass model any of them makes)."""
+    return f"Preliminary-design estimates under the {approximation(*models_of(*plans))}; " \
+        + CONFIRM
 
 
 def finite(x, digits: int | None = None):
@@ -361,11 +392,12 @@ def budget(result: Result) -> dict:
                   "default_engine": p.craft.default_engine.name},
         "margin_pct": finite(p.margin * 100.0, 9),
         "gravity": p.gravity,
+        "burns": p.burns,
         "feasible": feasible,
         "steps": steps,
         "totals": totals,
         "findings": [],
-        "caution": CAUTION if p.gravity == "point-mass" else CAUTION_J2,
+        "caution": caution(p),
     }
     if any(is_leg(s) for s in p.steps):
         out["phases"] = phases_list(result)

@@ -217,9 +217,9 @@ def to_json(reports) -> dict:
                               "column": err.span.column if err.span else None,
                               "hint": err.hint}
         plans.append(entry)
-    from .budget import CAUTION
+    from .budget import caution
 
-    return {"plans": plans, "caution": CAUTION}
+    return {"plans": plans, "caution": caution(*(program for _, program, _, _ in reports))}
 
 
 CSV_COLUMNS = ["record", "source", "plan", "severity", "rule", "steps", "saves_m_s",
@@ -229,11 +229,11 @@ CSV_COLUMNS = ["record", "source", "plan", "severity", "rule", "steps", "saves_m
 def to_csv(reports) -> str:
     """One row per finding, per plan that could not be checked (``error``), and the
     caution; every row has every column, so a strict CSV reader loads it."""
-    from .budget import CAUTION
     from .render import write_csv
 
     rows = []
-    for plan in to_json(reports)["plans"]:
+    data = to_json(reports)
+    for plan in data["plans"]:
         for f in plan["findings"]:
             rows.append({"record": "finding", "source": plan["source"], "plan": plan["plan"],
                          **f, "steps": " ".join(f.get("steps", []))})
@@ -243,7 +243,7 @@ def to_csv(reports) -> str:
                          "message": err["message"] + (f" ({err['hint']})" if err["hint"]
                                                       else ""),
                          "line": err["line"], "column": err["column"]})
-    rows.append({"record": "caution", "message": CAUTION})
+    rows.append({"record": "caution", "message": data["caution"]})
     return write_csv(rows, CSV_COLUMNS)
 
 
@@ -288,13 +288,14 @@ def table(reports, console, silenced: dict | None = None) -> None:
     console.print(f"{n} finding{'s' if n != 1 else ''} in {len(reports)} "
                   f"plan{'s' if len(reports) != 1 else ''}"
                   + (f" ({quiet} silenced)" if quiet else "") + ".")
-    from .budget import CAUTION
+    from .budget import caution
 
-    console.print(f"Caution: {CAUTION}", style="italic", highlight=False)
+    console.print(f"Caution: {caution(*(p for _, p, _, _ in reports))}", style="italic",
+                  highlight=False)
 
 
 def markdown(reports) -> str:
-    from .budget import CAUTION
+    from .budget import caution
 
     out = []
     for path, program, findings, err in reports:
@@ -313,7 +314,7 @@ def markdown(reports) -> str:
                 out += ["", "  ```diff", *("  " + line for line in f.diff.splitlines()),
                         "  ```"]
         out.append("")
-    out += [f"_Caution: {CAUTION}_", ""]
+    out += [f"_Caution: {caution(*(p for _, p, _, _ in reports))}_", ""]
     return "\n".join(out)
 
 

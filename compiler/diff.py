@@ -37,6 +37,8 @@ import difflib
 import re
 from dataclasses import dataclass, replace
 
+from .budget import caution
+
 # A step's own numbers, compared with these tolerances to tell `changed` from `same`.
 OWN_NUMBERS = {"dv_m_s": 1e-3, "dv_with_margin_m_s": 1e-3, "propellant_kg": 1e-4,
                "duration_s": 1e-3, "margin_pct": 1e-9}
@@ -318,7 +320,8 @@ def diff_reports(old: dict, new: dict, old_info: dict[str, StepInfo] | None = No
            "feasible": {"old": old.get("feasible", True), "new": new.get("feasible", True)},
            # the model that priced each side (reports before it carried none: point-mass)
            "gravity": {"old": old.get("gravity", "point-mass"),
-                       "new": new.get("gravity", "point-mass")}}
+                       "new": new.get("gravity", "point-mass")},
+           "caution": caution(old, new)}
     if findings or (findings is None and (old.get("findings") or new.get("findings"))):
         out["findings"] = findings_change(old.get("findings", []), new.get("findings", []))
     return out

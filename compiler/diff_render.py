@@ -10,6 +10,10 @@ from rich.console import Console
 from rich.table import Table
 
 from .budget import CAUTION
+
+
+def _caution(diff: dict) -> str:
+    return diff.get("caution", CAUTION)
 from .render import Column, fit, priced
 from .textfmt import duration, sig
 from .textfmt import signed as _signed
@@ -197,7 +201,7 @@ def table(diff: dict, console: Console, old_label: str, new_label: str) -> None:
             console.print(f"  {how}: {_finding_text(f)}", highlight=False)
     for line in trade_lines(diff):
         console.print(line, highlight=False, markup=False)
-    console.print(f"Caution: {CAUTION}", style="italic", highlight=False)
+    console.print(f"Caution: {_caution(diff)}", style="italic", highlight=False)
 
 
 def trade_lines(diff: dict) -> list[str]:
@@ -240,7 +244,7 @@ def markdown(diff: dict, old_label: str, new_label: str) -> str:
         out += [f"- {how}: {_finding_text(f)}" for how, f in lines]
     if diff.get("trades"):
         out += ["", "**Trade studies**", ""] + [f"- {x}" for x in trade_lines(diff) if x]
-    out += ["", f"_{CAUTION}_", ""]
+    out += ["", f"_{_caution(diff)}_", ""]
     return "\n".join(out)
 
 
@@ -318,5 +322,5 @@ def to_csv(diff: dict) -> str:
     if diff.get("error"):
         rows.append({"record": "error", "status": diff["error"]["side"],
                      "message": diff["error"]["message"]})
-    rows.append({"record": "caution", "message": CAUTION})
+    rows.append({"record": "caution", "message": _caution(diff)})
     return write_csv(rows, DIFF_CSV)

@@ -169,14 +169,9 @@ def governing_value(kind: str, r, v, mu, h0=None, e0=None, toward=None):
     raise ValueError(kind)
 
 
-def fly(r, v_before, v_after, mass, thrust_n: float, ve: float, mu: float, steering: str,
-        kind: str | None) -> FiniteBurn:
-    """The finite burn that replaces the impulsive one from ``v_before`` to ``v_after``
-    at ``r`` (B, 3), for a craft of ``mass`` (B,) kg, thrust ``thrust_n`` N, exhaust speed
-    ``ve`` km/s.  ``kind`` is the governing scalar (``governing_value``) the burn's length
-    must reach as the impulsive end orbit has it, or None to spend the impulsive delta-v.
-    """
-    size = r.shape[0]
+def _pointing(r, v_before, v_after):
+    """The thrust direction of the finite burn that replaces the impulsive one at ``r``:
+    (inertial unit direction, its vnb components)."""
     dv_imp = v_after - v_before
     dvn = norm(dv_imp)
     direction = unit(np.where(dvn[:, None] > 0, dv_imp, v_before))
@@ -186,6 +181,37 @@ def fly(r, v_before, v_after, mass, thrust_n: float, ve: float, mu: float, steer
     comps = np.stack([dot(direction, V), dot(direction, N), dot(direction, B)], axis=-1)
     if np.all(np.abs(comps[:, 1:]) <= 1e-15 * np.abs(comps[:, :1])):
         comps = comps[:, :1]  # along the velocity only (or against it): fewer operations
+    return direction, comps
+
+
+def arc_points(r, v_before, v_after, mass: float, thrust_n: float, ve: float, mu: float,
+               steering: str, length: float, samples: int) -> np.ndarray:
+    """Points (samples, 3) km along the thrust arc of one finite burn of ``length`` s
+    centred on the impulse point ``r`` (3,), from ignition to cutoff, flown as ``fly``
+    flies it (for drawing): every sample is the same arc integrated to a fraction of its
+    length."""
+    one = lambda x: np.tile(np.asarray(x, float), (samples, 1))
+    rr, vb, va = one(r), one(v_before), one(v_after)
+    direction, comps = _pointing(rr, vb, va)
+    rs, vs, _ = back(rr, vb, mu, np.full(samples, 0.5 * length))
+    mdot = thrust_n / (ve * 1000.0)
+    pts, _, _, _ = integrate(rs, vs, np.full(samples, float(mass)),
+                             np.linspace(0.0, length, samples), mu,
+                             np.full(samples, thrust_n / 1000.0), np.full(samples, mdot),
+                             steering, comps, direction)
+    return pts
+
+
+def fly(r, v_before, v_after, mass, thrust_n: float, ve: float, mu: float, steering: str,
+        kind: str | None) -> FiniteBurn:
+    """The finite burn that replaces the impulsive one from ``v_before`` to ``v_after``
+    at ``r`` (B, 3), for a craft of ``mass`` (B,) kg, thrust ``thrust_n`` N, exhaust speed
+    ``ve`` km/s.  ``kind`` is the governing scalar (``governing_value``) the burn's length
+    must reach as the impulsive end orbit has it, or None to spend the impulsive delta-v.
+    """
+    size = r.shape[0]
+    dvn = norm(v_after - v_before)
+    direction, comps = _pointing(r, v_before, v_after)
     thrust_kn = np.full(size, thrust_n / 1000.0)
     mdot = np.full(size, thrust_n / (ve * 1000.0))
     t_imp = mass * -np.expm1(-dvn / ve) / mdot  # the impulsive delta-v's burn time

@@ -42,7 +42,9 @@ def register(sub) -> None:
     d.add_argument("--rev", metavar="REV", help="read the old side from git at REV "
                    "(the new side is the working file), or both sides with REV_A..REV_B; "
                    "default HEAD when one plan is given")
-    d.add_argument("--format", choices=("table", "markdown", "json", "csv"), default="table")
+    d.add_argument("--format", choices=("table", "markdown", "json", "csv", "html"),
+                   default="table", help="html: one self-contained page with the two "
+                   "waterfalls side by side (docs/pictures.md)")
     d.add_argument("--fail-over", action="append", default=[], metavar="AMOUNT",
                    help="exit 1 when delta-v with margin grows by more than a speed "
                    "(`10m/s` or `10 m/s`) or propellant by more than a mass (`2kg`); "
@@ -304,6 +306,8 @@ def _emit_one_sided(args, old: Side, new: Side) -> int:
         sys.stdout.write(diff_render.to_json(_one_sided(good, broken, good is new)) + "\n")
     elif args.format == "csv":
         sys.stdout.write(diff_render.to_csv(_one_sided(good, broken, good is new)))
+    elif args.format == "html":  # no page for half a diff: the error says why
+        pass
     elif args.format == "markdown":
         sys.stdout.write(f"**The {which} plan (`{broken.label}`) does not parse.** "
                          f"Budget of `{good.label}`:\n\n" + render.markdown(good.report))
@@ -321,6 +325,10 @@ def cmd_diff(args) -> int:
             raise UsageError("--git-textconv takes only the file git hands it")
         return textconv(args.git_textconv)
     thresholds = [parse_threshold(t) for t in args.fail_over]
+    if args.format == "html":
+        from .picture_cli import need_matplotlib
+
+        need_matplotlib()
     old, new = _sides(args)
     if old.error and new.error:
         for side in (old, new):
@@ -341,6 +349,10 @@ def cmd_diff(args) -> int:
         sys.stdout.write(diff_render.to_csv(result))
     elif args.format == "markdown":
         sys.stdout.write(diff_render.markdown(result, old.label, new.label))
+    elif args.format == "html":
+        from .report_html import diff_page
+
+        sys.stdout.write(diff_page(result, old.report, new.report, old.label, new.label))
     else:
         diff_render.table(result, _console(), old.label, new.label)
     if old.flight_error is not None:

@@ -12,7 +12,7 @@ from .cliutil import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_OK, console
 
 
 def sizing_report(result) -> dict:
-    from .budget import CAUTION, budget
+    from .budget import budget
     from .size import size
 
     p = result.program
@@ -37,7 +37,7 @@ def sizing_report(result) -> dict:
         "reserve_m_s": p.reserve * 1000.0,
         "feasible": report["feasible"],
         "why": s.why,
-        "caution": CAUTION,
+        "caution": report["caution"],
     }
 
 

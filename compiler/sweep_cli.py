@@ -375,10 +375,10 @@ def _where(study, message, hint, plan):
 # --- reports --------------------------------------------------------------------------
 
 
-def _caution() -> str:
-    from .budget import CAUTION
+def _caution(model) -> str:
+    from .budget import caution
 
-    return CAUTION
+    return caution(model.base)
 
 
 def _columns(X, priced, names) -> tuple[dict, dict, list, list, dict]:
@@ -423,7 +423,7 @@ def sweep_report(model, X, priced, plan, points: int, variants: bool = True) -> 
                  for j, (k, u) in enumerate(zip(model.knobs, model.units))],
         "variants": list(variants_of(model, X, priced)) if variants else [],
         "not_flown": int((~priced.flown).sum()),
-        "caution": _caution(),
+        "caution": _caution(model),
     }
 
 
@@ -482,7 +482,7 @@ def sweep_csv_of(model, X, priced, best: tuple | None = None, out=None,
             cols.append([reasons.get(i) or "" for i in range(n)])
             cols.append([""] * n)
             w.writerows(zip(*cols))
-    w.writerow(["caution"] + [""] * (len(head) - 2) + [_caution()])
+    w.writerow(["caution"] + [""] * (len(head) - 2) + [_caution(model)])
     return buf.getvalue() if out is None else None
 
 
@@ -524,7 +524,7 @@ def dispersion_report(model, X, priced, plan, sigmas, seed: int) -> dict:
                                    else None),
         "steps": steps,
         "total": total,
-        "caution": _caution(),
+        "caution": _caution(model),
     }
 
 

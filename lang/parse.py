@@ -1070,7 +1070,10 @@ def _bad_token(e: UnexpectedInput, source: Source, stack: list) -> PlanError:
         return PlanError(f"`{word}` belongs inside a `{block[0]}` block", span,
                          hint=f"e.g. `{block[1]}`")
 
-    mistake = e.match_examples(_example_parse, [(m, m.examples) for m in _MISTAKES])
+    try:
+        mistake = e.match_examples(_example_parse, [(m, m.examples) for m in _MISTAKES])
+    except TypeError:  # lark 1.3 formats a debug line with `%d` of a parser state object
+        mistake = None  # (an example in the same state accepting other tokens): no match
     if mistake is not None and (mistake.applies is None or mistake.applies(token)):
         tokens = [v for v in stack if isinstance(v, Token)]
         opened = next((t for t in reversed(tokens) if t.type == "LBRACE"), None)

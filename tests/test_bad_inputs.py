@@ -153,6 +153,9 @@ CASES = [
         "apoapsys", ("unexpected `apoapsys`",), "did you mean `apoapsis`?"),
     Bad("misspelt-statement", plan("brun raise at periapsis: apoapsis to 1000 km"), 10, 1,
         "brun", ("unexpected `brun`",), "did you mean `burn`?"),
+    # lark's example matching used to fail with a TypeError here (an internal error)
+    Bad("brace-after-place", plan("coast to apoapsis{"), 10, 18, "{", ("unexpected `{`",),
+        "expected"),
     Bad("unterminated-title", 'plan "Probe\naround earth\n', 1, 6, '"Probe',
         ("unterminated string",), 'plan "..."'),
     Bad("unclosed-craft-block", plan(head=HEAD.replace("}\n", "")), 8, 1, "start",
