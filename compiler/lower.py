@@ -104,7 +104,7 @@ class Lowerer:
                 steps_ast.append(st)
                 continue
             key = {ast.PlanTitle: "plan", ast.Around: "around", ast.CraftDef: "craft",
-                   ast.Start: "start"}.get(type(st))
+                   ast.Start: "start", ast.Epoch: "epoch"}.get(type(st))
             if isinstance(st, ast.Setting):
                 key = st.key
             if key is not None:

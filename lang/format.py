@@ -185,6 +185,8 @@ def _scene_line(stmt) -> str:
         return f"around {stmt.body.text}"
     if isinstance(stmt, ast.Setting):
         return f"{stmt.key} {'radius ' if stmt.is_radius else ''}{stmt.value.text()}"
+    if isinstance(stmt, ast.Epoch):
+        return f"epoch {stmt.timestamp} {stmt.scale}"
     if isinstance(stmt, ast.Start):
         return " ".join(["start" if stmt.form == "circular" else "start orbit",
                          *(_field(f) for f in stmt.fields)])
@@ -308,7 +310,8 @@ class _Block:
 
 
 SECTION = {ast.PlanTitle: "title", ast.Around: "around", ast.BodyDef: "body",
-           ast.CraftDef: "craft", ast.Setting: "settings", ast.Start: "start"}
+           ast.CraftDef: "craft", ast.Setting: "settings", ast.Start: "start",
+           ast.Epoch: "start"}
 
 
 def _section(stmt) -> str:

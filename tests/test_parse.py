@@ -307,7 +307,7 @@ def test_keyword_sets():
     assert {"apoapsis", "periapsis", "node", "ascending", "within", "least", "j2"} <= words
     assert not words & {"km", "m/s", "%", "{", ":"}
     assert statement_keywords() == ("plan", "around", "body", "craft", "margin", "reserve",
-                                    "ceiling", "start", "burn", "transfer", "coast", "drop",
+                                    "ceiling", "epoch", "start", "burn", "transfer", "coast", "drop",
                                     "entry", "allow", "expect")
 
 
