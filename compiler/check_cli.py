@@ -271,7 +271,6 @@ def _saving(f) -> str:
 def table(reports, console, silenced: dict | None = None) -> None:
     from rich.markup import escape
     from rich.padding import Padding
-    from rich.syntax import Syntax
     from rich.text import Text
 
     for path, program, findings, err in reports:
@@ -290,8 +289,10 @@ def table(reports, console, silenced: dict | None = None) -> None:
             console.print(Padding(Text(f.message), (0, 0, 0, 4)), highlight=False)
             for note in f.notes:  # prose wraps under its own indent, not at column 0
                 console.print(Padding(Text(f"note: {note}"), (0, 0, 0, 4)), highlight=False)
-            if f.diff:
-                console.print(Syntax(f.diff, "diff", theme="ansi_dark", background_color="default"))
+            if f.diff:  # plan text coloured as plan text (lang/highlight.py)
+                from apsidal.lang.highlight import rich_diff
+
+                console.print(rich_diff(f.diff), highlight=False)
         console.print()
     n = sum(len(fs) for _, _, fs, _ in reports)
     quiet = sum((silenced or {}).values())
