@@ -70,7 +70,7 @@ def _region(span) -> dict:
     return region
 
 
-def _step_spans(program) -> dict:
+def step_spans(program) -> dict:
     """Each step's name (and the names a transfer expands into) -> its statement span."""
     out = {}
     for step in program.steps:
@@ -81,7 +81,7 @@ def _step_spans(program) -> dict:
     return out
 
 
-def _span_of(name: str, spans: dict):
+def span_of(name: str, spans: dict):
     return spans.get(name) or spans.get(name.split("/", 1)[0])
 
 
@@ -140,9 +140,9 @@ def to_sarif(reports, version: str = "unknown") -> dict:
                                    _region(err.span) if err.span else None))
             continue
         text = program.source.text
-        spans = _step_spans(program)
+        spans = step_spans(program)
         for f in findings:
-            named = [(s, _span_of(s, spans)) for s in f.steps]
+            named = [(s, span_of(s, spans)) for s in f.steps]
             named = [(s, sp) for s, sp in named if sp is not None]
             region = _region(named[0][1]) if named else {"startLine": 1, "startColumn": 1}
             related = [(f"step {s}", _region(sp)) for s, sp in named[1:]]
