@@ -183,7 +183,7 @@ def completions(text: str, line: int, character: int) -> list[tuple[str, str]]:
 
     lines = text.splitlines()
     before = lines[line][:character] if line < len(lines) else ""
-    head = re.sub(r"[\w\-/%]*$", "", before)
+    head = re.sub(r"[A-Za-z_%/][\w\-/%]*$", "", before)  # less the word being typed
     code = re.sub(r"#[^\n]*", "", text)  # engines named in comments are not engines
     engines = sorted(set(re.findall(r"\bengine\s+([A-Za-z_][\w\-]*)", code)))
     if re.search(r"\busing\s+$", head):
