@@ -18,7 +18,10 @@ def register(sub) -> None:
                          description="Write the plan's start state and every burn as a "
                          "CCSDS Orbit Parameter Message in keyword = value form "
                          "(docs/export.md).  The plan needs an `epoch`.")
-    exp.add_argument("plan", help="plan file (.aps); `-` reads standard input")
+    exp.add_argument("plan", nargs="?", help="plan file (.aps); `-` reads standard input")
+    exp.add_argument("--read", metavar="MESSAGE", default=None,
+                     help="read an OPM (KVN) back and print its epoch, start orbit and "
+                     "burns as plan lines, instead of writing one")
     exp.add_argument("--format", choices=("opm",), default="opm",
                      help="the message to write (opm: CCSDS 502.0-B-3 Orbit Parameter "
                      "Message, KVN)")
@@ -40,6 +43,12 @@ def cmd_export(args) -> int:
     from .load import load
     from .opm import ExportError, build, write
 
+    if args.read is not None:
+        if args.plan is not None:
+            raise UsageError("--read takes the message only, not a plan")
+        return read_back(args.read)
+    if args.plan is None:
+        raise UsageError("export needs a plan file (or --read MESSAGE)")
     program = load(args.plan)
     result = run(program)
     if result.error is not None:
@@ -65,4 +74,25 @@ def cmd_export(args) -> int:
     return EXIT_OK
 
 
-__all__ = ["register", "cmd_export", "EXIT_BAD_INPUT"]
+def read_back(path: str) -> int:
+    """The message's epoch, start orbit and burns as plan lines (docs/export.md)."""
+    from pathlib import Path
+
+    from .opm import OpmError, plan_lines, read
+
+    try:
+        text = sys.stdin.read() if path == "-" else Path(path).read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as err:
+        raise UsageError(f"cannot read `{path}`: {getattr(err, 'strerror', None) or err}"
+                         ) from None
+    try:
+        message = read(text)
+        lines = plan_lines(message)
+    except OpmError as err:
+        print(f"{path}: error: {err}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    sys.stdout.write(f"# read from {path}: {message.metadata['OBJECT_NAME']} around "
+                     f"{message.metadata['CENTER_NAME']} ({message.metadata['REF_FRAME']}); "
+                     "the craft, its engines and `around` are not in an OPM\n")
+    sys.stdout.write("\n".join(lines) + "\n")
+    return EXIT_OK

@@ -27,7 +27,9 @@ EPOCH = "epoch 2027-03-01T00:00:00 UTC"
 
 
 def with_epoch(text: str, epoch: str = EPOCH) -> str:
-    """A plan with an `epoch` line above its start orbit."""
+    """A plan with an `epoch` line above its start orbit (kept where it has one)."""
+    if re.search(r"(?m)^epoch ", text):
+        return text
     return re.sub(r"(?m)^start ", epoch + "\nstart ", text, count=1)
 
 
@@ -256,3 +258,21 @@ def test_bad_epochs_are_located():
             load_text(with_epoch(PLAN, epoch))
         assert expected in err.value.render()
         assert err.value.span is not None
+
+
+def test_read_back_on_the_command_line(tmp_path, capsys):
+    plan = tmp_path / "tug.aps"
+    plan.write_text(with_epoch(PLAN))
+    message = tmp_path / "tug.opm"
+    assert main(["export", str(plan), "-o", str(message)]) == 0
+    assert main(["export", "--read", str(message)]) == 0
+    out = capsys.readouterr().out.splitlines()
+    assert out[1] == "epoch 2027-03-01T00:00:00.000000 UTC"
+    assert out[2].startswith("start orbit sma ")
+    assert [ln.split()[1].rstrip(":") for ln in out[3:] if ln.startswith(("burn", "drop"))] == \
+        ["up-1", "up-2", "panel", "trim"]
+    broken = tmp_path / "broken.opm"
+    broken.write_text(message.read_text().replace("X_DOT", "X_SPEED"))
+    assert main(["export", "--read", str(broken)]) == 2
+    err = capsys.readouterr().err
+    assert "X_SPEED" in err and "line" in err
