@@ -209,6 +209,9 @@ def build(program, result, ref_frame: str | None = None, object_id: str = "UNKNO
             opm.maneuvers.append(Maneuver(t - timedelta(seconds=duration / 2.0), duration,
                                           -used, "RTN", tuple(float(x) for x in dv),
                                           row.name, "burn"))
+        elif row.kind == "allow" and mass - after > 0.0:
+            opm.comments.append(f"allowance {row.name}: {mass - after:.6g} kg of propellant "
+                                "booked, not a manoeuvre (no block)")
         elif row.kind == "drop" and mass - after > 0.0:
             opm.maneuvers.append(Maneuver(t, 0.0, -(mass - after), "RTN", (0.0, 0.0, 0.0),
                                           row.name, "drop"))
