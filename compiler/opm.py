@@ -32,7 +32,7 @@ from __future__ import annotations
 import math
 import re
 from dataclasses import dataclass, field
-from datetime import datetime, timedelta, timezone
+from datetime import UTC, datetime, timedelta
 
 import numpy as np
 
@@ -164,7 +164,7 @@ def build(program, result, ref_frame: str | None = None, object_id: str = "UNKNO
                           "direction of raan 0; name the frame with --ref-frame (for "
                           "example ICRF, or a frame agreed in your interface document)")
     epoch = parse_epoch(epoch_st.timestamp)
-    created = created or datetime.now(timezone.utc).replace(tzinfo=None)
+    created = created or datetime.now(UTC).replace(tzinfo=None)
     mu = program.body.gm
     el = elements_from_state(program.start_r[None], program.start_v[None], mu)
     deg = lambda x: float(np.degrees(x[0]))
@@ -375,8 +375,8 @@ def plan_lines(opm: Opm) -> list[str]:
     deg = lambda x: repr(float(np.degrees(x[0])) % 360.0)
     shape = (f"sma {float(el.sma[0])!r} km ecc {float(el.ecc[0])!r}")
     lines = [f"epoch {format_epoch(opm.epoch)} {opm.metadata['TIME_SYSTEM']}",
-             f"start orbit {shape} inclination {float(np.degrees(el.inclination[0]))!r} deg "
-             f"raan {deg(el.raan)} deg argp {deg(el.argp)} deg anomaly {deg(el.anomaly)} deg"]
+             (f"start orbit {shape} inclination {float(np.degrees(el.inclination[0]))!r} deg "
+              f"raan {deg(el.raan)} deg argp {deg(el.argp)} deg anomaly {deg(el.anomaly)} deg")]
     now = opm.epoch
     for k, m in enumerate(opm.maneuvers, 1):
         name = m.name.replace("/", "-") or f"{m.kind}-{k}"

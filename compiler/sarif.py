@@ -42,7 +42,7 @@ def _rules() -> list[dict]:
     docs += [(name, text, None) for name, text in SUMMARY_FINDINGS.items()]
     docs.append((PLAN_ERROR, PLAN_ERROR_HELP, "error"))
     for name, doc, severity in docs:
-        first, _, rest = doc.partition("\n")
+        first = doc.partition("\n")[0]
         rule = {"id": name, "name": name,
                 "shortDescription": {"text": first.strip()},
                 "fullDescription": {"text": " ".join(doc.split())},

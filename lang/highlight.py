@@ -22,6 +22,7 @@ from __future__ import annotations
 import re
 from functools import cache
 from pathlib import Path
+from typing import ClassVar
 
 from pygments.lexer import RegexLexer, bygroups
 from pygments.token import (
@@ -75,13 +76,13 @@ class PlanLexer(RegexLexer):
     their units, dates, titles and comments."""
 
     name = "apsidal plan"
-    aliases = ["apsidal", "aps"]
-    filenames = ["*.aps"]
-    mimetypes = ["text/x-apsidal"]
+    aliases: ClassVar[list[str]] = ["apsidal", "aps"]
+    filenames: ClassVar[list[str]] = ["*.aps"]
+    mimetypes: ClassVar[list[str]] = ["text/x-apsidal"]
     url = "https://pypi.org/project/apsidal/"
 
     _kw = _keyword_alternation()
-    tokens = {
+    tokens: ClassVar[dict] = {
         "root": [
             # a statement that names something: the keyword, then the name
             (r"(?<![\w\-/])(" + "|".join(NAMED) + r")(\s+)(?!" + _kw + _EDGE_AFTER + r")("

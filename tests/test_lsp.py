@@ -200,6 +200,6 @@ def test_without_pygls_the_command_says_what_to_install():
     code = ("import sys; sys.modules['pygls'] = None; "
             "from apsidal.compiler.cli import main; sys.exit(main(['lsp']))")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
-                         timeout=120)
+                         timeout=120, check=False)
     assert out.returncode == 2
     assert "pip install 'apsidal[lsp]'" in out.stderr and "Traceback" not in out.stderr
