@@ -30,6 +30,9 @@ def register(sub) -> None:
     exp.add_argument("--ref-frame", metavar="NAME", default=None,
                      help="the inertial frame the plan's axes stand for (default EME2000 "
                      "around earth, MCI around mars; needed for other bodies)")
+    exp.add_argument("--impulsive", action="store_true",
+                     help="write each burn as an impulsive manoeuvre (duration 0, ignition "
+                     "at the impulse) instead of a finite burn centred on it")
     exp.add_argument("--object-id", metavar="ID", default="UNKNOWN",
                      help="the craft's international designator (default UNKNOWN)")
     exp.set_defaults(func=cmd_export)
@@ -54,7 +57,8 @@ def cmd_export(args) -> int:
     if result.error is not None:
         raise result.error
     try:
-        text = write(build(program, result, args.ref_frame, args.object_id))
+        text = write(build(program, result, args.ref_frame, args.object_id,
+                          impulsive=args.impulsive))
     except ExportError as err:
         span = next((s.span for s in program.plan.statements
                      if type(s).__name__ == "Start"), None)

@@ -144,8 +144,12 @@ class ExportError(ValueError):
 
 
 def build(program, result, ref_frame: str | None = None, object_id: str = "UNKNOWN",
-          originator: str = "apsidal", created: datetime | None = None) -> Opm:
-    """The OPM of a priced plan (``evaluate.run``).  Needs the plan's ``epoch``."""
+          originator: str = "apsidal", created: datetime | None = None,
+          impulsive: bool = False) -> Opm:
+    """The OPM of a priced plan (``evaluate.run``).  Needs the plan's ``epoch``.
+
+    With ``impulsive`` every burn is written as the standard's impulsive manoeuvre
+    (duration 0, ignition at the impulse) instead of a finite burn centred on it."""
     from apsidal.lang import syntax as ast
 
     from .budget import CAUTION
@@ -183,7 +187,9 @@ def build(program, result, ref_frame: str | None = None, object_id: str = "UNKNO
                   "TRUE_ANOMALY": deg(el.anomaly) % 360.0, "GM": float(mu)},
         mass=float(program.craft.dry + program.craft.propellant),
         comments=[program.title or "apsidal plan", *_wrap(CAUTION),
-                  "Ignition is centred on the impulse of the two-body estimate; the delta",
+                  ("Burns are impulsive (duration 0, ignition at the impulse)" if impulsive else
+                   "Ignition is centred on the impulse of the two-body estimate")
+                  + "; the delta",
                   "mass is the budget's propellant, margin included; no leap seconds are",
                   "inserted."],
     )
@@ -197,6 +203,7 @@ def build(program, result, ref_frame: str | None = None, object_id: str = "UNKNO
             dv = components("rtn", row.after.r[:1], row.v_before[:1],
                             row.after.v[:1] - row.v_before[:1])[0]
             duration = float(row.burn_time[0]) if row.burn_time is not None else 0.0
+            duration = 0.0 if impulsive else duration
             used = mass - after
             if not used > 0.0:  # a burn of nothing: no manoeuvre to fly
                 opm.comments.append(f"burn {row.name} changes nothing and is left out")

@@ -243,6 +243,22 @@ def test_output_file_and_a_plan_that_does_not_fit(tmp_path, capsys):
     assert [m.name for m in message.maneuvers] == ["up/1", "up/2", "panel", "trim"]
 
 
+def test_impulsive_burns_have_no_duration_and_ignite_at_the_impulse(tmp_path, capsys):
+    plan = tmp_path / "relay.aps"
+    plan.write_text(sample("relay-geo"))
+    assert main(["export", str(plan), "--impulsive"]) == 0
+    text = capsys.readouterr().out
+    message = read(text)
+    program = load_text(plan.read_text())
+    rows = [r for r in run(program).rows if r.kind == "burn"]
+    burns = [m for m in message.maneuvers if m.kind == "burn"]
+    assert [m.duration for m in burns] == [0.0] * len(rows)
+    for m, row in zip(burns, rows):
+        assert (m.ignition - message.epoch).total_seconds() == pytest.approx(
+            float(row.after.t[0]), abs=1e-6)
+    assert "ignites" not in text and "Burns are impulsive" in text
+
+
 def test_a_burn_before_the_epoch_is_said(tmp_path):
     text = export_text(sample("relay-geo"))
     assert "COMMENT burn raise ignites" in text  # the first burn fires at the epoch
