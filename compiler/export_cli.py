@@ -57,8 +57,9 @@ def cmd_export(args) -> int:
     if result.error is not None:
         raise result.error
     try:
-        text = write(build(program, result, args.ref_frame, args.object_id,
-                          impulsive=args.impulsive))
+        message = build(program, result, args.ref_frame, args.object_id,
+                        impulsive=args.impulsive)
+        text = write(message)
     except ExportError as err:
         span = next((s.span for s in program.plan.statements
                      if type(s).__name__ == "Start"), None)
@@ -70,6 +71,10 @@ def cmd_export(args) -> int:
             raise UsageError(f"cannot write `{args.output}`: {err.strerror or err}") from None
     else:
         sys.stdout.write(text)
+    for note in message.comments:
+        if "before the epoch" in note:
+            print(f"apsidal: note: {note}; the receiving tool starts that much earlier, or "
+                  "move the plan's epoch", file=sys.stderr)
     report = budget(result)
     if not report["feasible"]:
         print(f"apsidal: the plan does not fit its load: {shortfall_text(report)}; the "

@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import re
 from dataclasses import dataclass
+from functools import lru_cache
 
 from apsidal.lang.errors import PlanError
 
@@ -88,17 +89,29 @@ def _findings(text: str, program, findings) -> list[Diagnostic]:
     return out
 
 
-def diagnose(text: str, path: str = "<plan>", full: bool = False) -> list[Diagnostic]:
-    """The diagnostics of a plan's text: errors, the plan's own findings and, with
-    ``full`` (on save), the `check` findings."""
+@lru_cache(maxsize=4)
+def _priced(text: str, path: str):
+    """The plan lowered and priced, with its report; or the PlanError that stops it.
+    Kept for the last few texts: a hover right after the diagnostics prices nothing."""
+    from .budget import budget
     from .evaluate import run
     from .load import load_text
 
     try:
         program = load_text(text.removeprefix("\ufeff"), path)
     except PlanError as err:
-        return [_error(text, err)]
+        return err
     result = run(program)
+    return program, result, budget(result)
+
+
+def diagnose(text: str, path: str = "<plan>", full: bool = False) -> list[Diagnostic]:
+    """The diagnostics of a plan's text: errors, the plan's own findings and, with
+    ``full`` (on save), the `check` findings."""
+    priced = _priced(text, path)
+    if isinstance(priced, PlanError):
+        return [_error(text, priced)]
+    program, result, _ = priced
     out = [_error(text, result.error)] if result.error is not None else []
     if full:
         from .check import Budget, check_program
@@ -110,7 +123,7 @@ def diagnose(text: str, path: str = "<plan>", full: bool = False) -> list[Diagno
     else:
         from .cli import self_consistency
 
-        findings = self_consistency(program, result)
+        findings = self_consistency(program, result, priced[2])
     return out + _findings(text, program, findings)
 
 
@@ -135,20 +148,15 @@ def hover(text: str, line: int, character: int, path: str = "<plan>") -> str | N
     """Markdown for the step under the position: each burn it flies (a transfer flies
     several) with its delta-v, propellant, mass and orbit after, as the `run` report
     gives them; None off a step or where the plan does not parse."""
-    from .budget import budget
-    from .evaluate import run
-    from .load import load_text
-
-    try:
-        program = load_text(text.removeprefix("\ufeff"), path)
-    except PlanError:
+    priced = _priced(text, path)
+    if isinstance(priced, PlanError):
         return None
+    program, _, report = priced
     where = _offset(text, line, character)
     index = next((k for k, st in enumerate(program.steps)
                   if st.span is not None and st.span.start <= where <= st.span.end), None)
     if index is None:
         return None
-    report = budget(run(program))
     name = program.steps[index].name
     steps = [s for s in report["steps"] if s["name"] == name
              or s["name"].startswith(name + "/")]
