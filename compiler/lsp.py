@@ -12,9 +12,10 @@ What an editor gets:
 * formatting through `apsidal fmt`'s formatter (the whole document);
 * completion of keywords, body names, the craft's engine names and units.
 
-The analysis below is plain Python on text and positions (zero-based lines, columns in
-UTF-16 code units as the protocol counts them); :func:`serve` wires it to pygls, which is
-imported only when the server runs.
+The analysis below is plain Python on text and positions (zero-based lines and columns
+in code points); :func:`serve` wires it to pygls, which is imported only when the server
+runs, and converts columns to and from the encoding the editor and server agreed on
+(UTF-16 unless the editor offers another).
 """
 
 from __future__ import annotations
@@ -31,7 +32,7 @@ CHECK_SECONDS = 10.0  # the time limit of the check run on save
 
 @dataclass(frozen=True)
 class Diagnostic:
-    """One message at a range of the text: zero-based (line, UTF-16 column) pairs."""
+    """One message at a range of the text: zero-based (line, code-point column) pairs."""
 
     start: tuple[int, int]
     end: tuple[int, int]
@@ -46,18 +47,12 @@ class Diagnostic:
                 "message": self.message}
 
 
-def _utf16(line: str, column: int) -> int:
-    """A code-point column (zero-based) as the protocol's UTF-16 column."""
-    head = line[:column]
-    return column + sum(1 for ch in head if ord(ch) > 0xFFFF)
-
-
 def _range(text: str, span) -> tuple[tuple[int, int], tuple[int, int]]:
     lines = text.splitlines() or [""]
 
     def at(line: int, column: int) -> tuple[int, int]:
         k = min(max(line - 1, 0), len(lines) - 1)
-        return k, _utf16(lines[k], max(column - 1, 0))
+        return k, max(column - 1, 0)
 
     if span is None:
         return (0, 0), (0, len(lines[0]))
@@ -131,17 +126,12 @@ def diagnose(text: str, path: str = "<plan>", full: bool = False) -> list[Diagno
 
 
 def _offset(text: str, line: int, character: int) -> int:
-    """A zero-based (line, UTF-16 column) position as a character offset."""
+    """A zero-based (line, code-point column) position as a character offset."""
     lines = text.splitlines(keepends=True)
     if line >= len(lines):
         return len(text)
     row = lines[line]
-    units = 0
-    for k, ch in enumerate(row):
-        if units >= character:
-            return sum(map(len, lines[:line])) + k
-        units += 2 if ord(ch) > 0xFFFF else 1
-    return sum(map(len, lines[:line])) + len(row.rstrip("\r\n"))
+    return sum(map(len, lines[:line])) + min(character, len(row.rstrip("\r\n")))
 
 
 def hover(text: str, line: int, character: int, path: str = "<plan>") -> str | None:
@@ -225,10 +215,20 @@ def serve() -> None:  # pragma: no cover - run in a subprocess by tests/test_lsp
 
     server = LanguageServer("apsidal", version())
 
+    def client(doc, point: tuple[int, int]):
+        """A code-point position in the units the editor counts."""
+        return doc.position_codec.position_to_client_units(doc.lines, types.Position(*point))
+
+    def ours(doc, position) -> tuple[int, int]:
+        if position.line >= len(doc.lines):  # past the last line: an empty one
+            return position.line, 0
+        p = doc.position_codec.position_from_client_units(doc.lines, position)
+        return p.line, p.character
+
     def publish(uri: str, full: bool) -> None:
         doc = server.workspace.get_text_document(uri)
         diagnostics = [types.Diagnostic(
-            range=types.Range(start=types.Position(*d.start), end=types.Position(*d.end)),
+            range=types.Range(start=client(doc, d.start), end=client(doc, d.end)),
             message=d.message, severity=types.DiagnosticSeverity(d.severity), code=d.code,
             source="apsidal") for d in diagnose(doc.source, doc.path or uri, full)]
         server.text_document_publish_diagnostics(
@@ -255,7 +255,7 @@ def serve() -> None:  # pragma: no cover - run in a subprocess by tests/test_lsp
     @server.feature(types.TEXT_DOCUMENT_HOVER)
     def on_hover(ls, params: types.HoverParams):
         doc = server.workspace.get_text_document(params.text_document.uri)
-        text = hover(doc.source, params.position.line, params.position.character,
+        text = hover(doc.source, *ours(doc, params.position),
                      doc.path or params.text_document.uri)
         if text is None:
             return None
@@ -282,8 +282,7 @@ def serve() -> None:  # pragma: no cover - run in a subprocess by tests/test_lsp
     def on_complete(ls, params: types.CompletionParams):
         doc = server.workspace.get_text_document(params.text_document.uri)
         items = [types.CompletionItem(label=label, kind=kinds[kind], detail=kind)
-                 for label, kind in completions(doc.source, params.position.line,
-                                                params.position.character)]
+                 for label, kind in completions(doc.source, *ours(doc, params.position))]
         return types.CompletionList(is_incomplete=False, items=items)
 
     server.start_io()

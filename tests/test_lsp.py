@@ -196,6 +196,20 @@ def test_save_adds_check_findings_formatting_and_completion(client, tmp_path):
     assert {"burn", "apoapsis", "inclination"} <= labels(len(lines), 0)
 
 
+def test_columns_are_utf16_code_units(client, tmp_path):
+    """The protocol counts columns in UTF-16 code units unless the editor agrees on
+    another: a character outside the Basic Multilingual Plane counts two."""
+    text = CLEAN.replace('plan "Editor test"', 'plan "Editor \U0001F6F0" soon')
+    uri = (tmp_path / "wide.aps").as_uri()
+    client.notify("textDocument/didOpen", {"textDocument": {
+        "uri": uri, "languageId": "apsidal", "version": 1, "text": text}})
+    [d] = client.diagnostics(uri, 1)
+    assert "`soon`" in d["message"]
+    column = text.splitlines()[0].index("soon")  # in code points
+    assert d["range"]["start"] == {"line": 0, "character": column + 1}
+    assert d["range"]["end"] == {"line": 0, "character": column + 1 + 4}
+
+
 def test_without_pygls_the_command_says_what_to_install():
     code = ("import sys; sys.modules['pygls'] = None; "
             "from apsidal.compiler.cli import main; sys.exit(main(['lsp']))")
