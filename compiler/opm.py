@@ -276,6 +276,12 @@ def write(opm: Opm) -> str:
 
 # --- reading ---------------------------------------------------------------------------
 
+# Keywords of the standard's OPM that carry nothing apsidal reads: the other header and
+# metadata items, the mean anomaly (the state vector is the data), the other spacecraft
+# parameters, the covariance and user-defined parameters.
+_IGNORED = re.compile(r"MESSAGE_ID|CLASSIFICATION|REF_FRAME_EPOCH|MEAN_ANOMALY|SOLAR_RAD_AREA"
+                      r"|SOLAR_RAD_COEFF|DRAG_AREA|DRAG_COEFF|COV_REF_FRAME|C[XYZ](_DOT)?_"
+                      r"[XYZ](_DOT)?|USER_DEFINED_\w+")
 _LINE = re.compile(r"([A-Z0-9_]+)\s*=\s*(.*?)\s*(?:\[([^\]]*)\])?\s*")
 
 
@@ -326,6 +332,8 @@ def read(text: str) -> Opm:
         if not m:
             raise OpmError(f"line {number}: `{raw}` is not KEYWORD = value")
         key, value, unit = m.groups()
+        if key not in UNITS and _IGNORED.fullmatch(key):
+            continue  # a keyword of the standard that apsidal has no use for
         if key not in UNITS:
             raise OpmError(f"line {number}: `{key}` is not an OPM keyword apsidal reads")
         if unit is not None and unit != UNITS[key]:

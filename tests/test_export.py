@@ -243,6 +243,22 @@ def test_output_file_and_a_plan_that_does_not_fit(tmp_path, capsys):
     assert [m.name for m in message.maneuvers] == ["up/1", "up/2", "panel", "trim"]
 
 
+def test_a_message_with_other_keywords_of_the_standard_reads():
+    """Keywords of the standard apsidal has no use for (drag and radiation parameters, a
+    covariance line, user-defined ones) are passed over; an unknown keyword is not."""
+    text = export_text(with_epoch(PLAN)).replace(
+        "MASS               = 900.0 [kg]",
+        "MASS = 900.0 [kg]\nSOLAR_RAD_AREA = 4.0 [m**2]\nSOLAR_RAD_COEFF = 1.3\n"
+        "DRAG_AREA = 4.0 [m**2]\nDRAG_COEFF = 2.2\nCOV_REF_FRAME = RTN\nCX_X = 1e-3 [km**2]\n"
+        "USER_DEFINED_TANK = A")
+    assert "SOLAR_RAD_AREA" in text
+    assert read(text).mass == 900.0
+    from apsidal.compiler.opm import OpmError
+
+    with pytest.raises(OpmError, match="MASS_RATIO"):
+        read(text.replace("DRAG_COEFF", "MASS_RATIO"))
+
+
 def test_impulsive_burns_have_no_duration_and_ignite_at_the_impulse(tmp_path, capsys):
     plan = tmp_path / "relay.aps"
     plan.write_text(sample("relay-geo"))
