@@ -104,3 +104,28 @@ def test_run_does_not_import_pygments():
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          timeout=120, check=False)
     assert out.stderr.strip().splitlines()[-1] == "False False"
+
+
+def test_check_colours_its_rewrites_in_a_terminal_only(capsys):
+    """`check`'s screen: the rewrite's plan text coloured by the lexer on a terminal, the
+    same characters without escapes elsewhere."""
+    import io
+
+    from apsidal.compiler.check import check_program
+    from apsidal.compiler.check_cli import table
+    from apsidal.compiler.load import load_text
+    from rich.console import Console
+
+    path = SAMPLES[0].parent / "relay-geo.aps"
+    program = load_text(path.read_text(), str(path))
+    reports = [(str(path), program, check_program(program), None)]
+    screens = {}
+    for terminal in (True, False):
+        out = io.StringIO()
+        table(reports, Console(file=out, force_terminal=terminal, width=120, highlight=False))
+        screens[terminal] = out.getvalue()
+    assert ANSI.search(screens[True]) and not ANSI.search(screens[False])
+    assert ANSI.sub("", screens[True]) == screens[False]
+    burn = next(ln for ln in screens[True].splitlines()
+                if ANSI.sub("", ln).startswith("+transfer raise"))
+    assert burn.count("\x1b[") >= 6  # marker, keyword, name, numbers and units each styled
