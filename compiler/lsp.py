@@ -9,6 +9,7 @@ What an editor gets:
   too (searches for cheaper plans, with a time limit);
 * hover on a step: its delta-v, propellant, mass and orbit after, as `apsidal run
   --format json` gives them (the numbers are the report's own);
+* a quick fix for each `check` finding with a rewrite: the proven rewritten plan;
 * formatting through `apsidal fmt`'s formatter (the whole document);
 * completion of keywords, body names, the craft's engine names and units.
 
@@ -39,6 +40,8 @@ class Diagnostic:
     severity: int
     message: str
     code: str
+    fix: str | None = None  # the proven rewritten plan, for a quick fix
+    fix_title: str = ""
 
     def as_lsp(self) -> dict:
         return {"range": {"start": {"line": self.start[0], "character": self.start[1]},
@@ -80,7 +83,13 @@ def _findings(text: str, program, findings) -> list[Diagnostic]:
         span = next((s for s in (span_of(n, spans) for n in f.steps) if s is not None), None)
         start, end = _range(text, span)
         message = f.message + "".join(f"\nnote: {n}" for n in f.notes)
-        out.append(Diagnostic(start, end, SEVERITY[f.severity], message, f.rule))
+        title = ""
+        if f.suggestion:
+            title = f"Apply the {f.rule} rewrite"
+            if f.saves_m_s is not None:
+                title += f" (saves {f.saves_m_s:.4g} m/s, {f.saves_kg:.4g} kg)"
+        out.append(Diagnostic(start, end, SEVERITY[f.severity], message, f.rule,
+                              f.suggestion or None, title))
     return out
 
 
@@ -119,7 +128,24 @@ def diagnose(text: str, path: str = "<plan>", full: bool = False) -> list[Diagno
         from .cli import self_consistency
 
         findings = self_consistency(program, result, priced[2])
-    return out + _findings(text, program, findings)
+    found = out + _findings(text, program, findings)
+    if full:
+        _CHECKED[text] = found
+        while len(_CHECKED) > 4:
+            _CHECKED.pop(next(iter(_CHECKED)))
+    return found
+
+
+_CHECKED: dict[str, list[Diagnostic]] = {}  # the last texts checked on save
+
+
+def quick_fixes(text: str, start: tuple[int, int], end: tuple[int, int]) -> list[Diagnostic]:
+    """The findings of the last check of exactly this text that carry a rewrite and
+    touch the lines from ``start`` to ``end``: each is offered as a quick fix that
+    replaces the document with the proven rewritten plan.  None once the text changed
+    (the rewrite was proven for the text as saved)."""
+    return [d for d in _CHECKED.get(text, ()) if d.fix is not None
+            and d.start[0] <= end[0] and d.end[0] >= start[0]]
 
 
 # --- hover -------------------------------------------------------------------------------
@@ -272,6 +298,21 @@ def serve() -> None:  # pragma: no cover - run in a subprocess by tests/test_lsp
         end = types.Position(line=len(lines), character=0)
         return [types.TextEdit(range=types.Range(start=types.Position(line=0, character=0),
                                                  end=end), new_text=new)]
+
+    @server.feature(types.TEXT_DOCUMENT_CODE_ACTION,
+                    types.CodeActionOptions(code_action_kinds=[types.CodeActionKind.QuickFix]))
+    def on_code_action(ls, params: types.CodeActionParams):
+        uri = params.text_document.uri
+        doc = server.workspace.get_text_document(uri)
+        lines = doc.source.splitlines()
+        whole = types.Range(start=types.Position(line=0, character=0),
+                            end=types.Position(line=len(lines), character=0))
+        return [types.CodeAction(
+            title=d.fix_title, kind=types.CodeActionKind.QuickFix,
+            edit=types.WorkspaceEdit(changes={uri: [types.TextEdit(range=whole,
+                                                                   new_text=d.fix)]}))
+            for d in quick_fixes(doc.source, ours(doc, params.range.start),
+                                 ours(doc, params.range.end))]
 
     kinds = {"keyword": types.CompletionItemKind.Keyword,
              "engine": types.CompletionItemKind.Variable,

@@ -157,7 +157,7 @@ def test_typo_then_fix_then_hover(client, tmp_path, capsys):
         "textDocument": {"uri": uri}, "position": {"line": 1, "character": 2}}) is None
 
 
-def test_save_adds_check_findings_formatting_and_completion(client, tmp_path):
+def test_save_adds_check_findings_formatting_and_completion(client, tmp_path, capsys):
     text = SAMPLE.read_text()
     path = tmp_path / "relay.aps"
     path.write_text(text)
@@ -173,10 +173,25 @@ def test_save_adds_check_findings_formatting_and_completion(client, tmp_path):
     assert shared["range"]["start"]["line"] == text.splitlines().index(
         next(ln for ln in text.splitlines() if ln.startswith("burn raise")))
 
+    # the rewrite `check` proved, offered as a quick fix on the finding's line
+    [action] = client.request("textDocument/codeAction", {
+        "textDocument": {"uri": uri}, "range": shared["range"],
+        "context": {"diagnostics": [shared]}})
+    assert action["kind"] == "quickfix" and "shared-plane-change" in action["title"]
+    [fix] = action["edit"]["changes"][uri]
+    assert main(["check", str(path), "--format", "json"]) == 0
+    found = json.loads(capsys.readouterr().out)["plans"][0]["findings"]
+    assert fix["newText"] == next(f["suggestion"] for f in found
+                                  if f["rule"] == "shared-plane-change")
+
     scruffy = text.replace("margin 5 %", "margin    5 %")
     client.notify("textDocument/didChange", {
         "textDocument": {"uri": uri, "version": 2}, "contentChanges": [{"text": scruffy}]})
     client.diagnostics(uri, 2)
+    # the text changed since the check: its rewrite is no longer offered
+    assert client.request("textDocument/codeAction", {
+        "textDocument": {"uri": uri}, "range": shared["range"],
+        "context": {"diagnostics": []}}) == []
     [edit] = client.request("textDocument/formatting", {
         "textDocument": {"uri": uri}, "options": {"tabSize": 4, "insertSpaces": True}})
     assert edit["newText"] == text and edit["range"]["start"] == {"line": 0, "character": 0}
