@@ -194,11 +194,12 @@ def build_parser(command: str | None = None) -> Parser:
     bod = sub.add_parser("bodies", help="list the body catalogue and its sources")
     bod.set_defaults(func=cmd_bodies)
     if command != "run":
-        from . import check_cli, export_cli, lsp_cli, review_cli, size_cli
+        from . import check_cli, export_cli, lsp_cli, review_cli, size_cli, sweep_cli
 
         check_cli.register(sub)
         review_cli.register(sub)
         size_cli.register(sub)
+        sweep_cli.register(sub)
         export_cli.register(sub)
         lsp_cli.register(sub)
     p.commands = dict(sub.choices)
@@ -229,6 +230,10 @@ def main(argv: list[str] | None = None) -> int:
 
 def _main(argv: list[str]) -> int:
     parser = build_parser(argv[0] if argv else None)
+    if argv[:1] == ["sweep"]:
+        from .sweep_cli import join_ranges
+
+        argv = join_ranges(argv)
     args = parser.parse_args(join_amounts(argv))
     if args.version:
         print(f"apsidal {version()}")

@@ -187,7 +187,20 @@ def table(diff: dict, console: Console, old_label: str, new_label: str) -> None:
         console.print("Findings", style="bold")
         for how, f in lines:
             console.print(f"  {how}: {_finding_text(f)}", highlight=False)
+    for line in trade_lines(diff):
+        console.print(line, highlight=False, markup=False)
     console.print(f"Caution: {CAUTION}", style="italic", highlight=False)
+
+
+def trade_lines(diff: dict) -> list[str]:
+    """The trade studies a revision added, removed or changed (they price nothing)."""
+    out = []
+    for t in diff.get("trades", []):
+        if t["status"] == "changed":
+            out.append(f"trade {t['name']} changed: was `{t['old']}`, now `{t['new']}`")
+        else:
+            out.append(f"trade {t['name']} {t['status']}: `{t['old'] or t['new']}`")
+    return out + [""] if out else out
 
 
 def _md_row(cells) -> str:
@@ -217,6 +230,8 @@ def markdown(diff: dict, old_label: str, new_label: str) -> str:
     if lines:
         out += ["", "**Findings**", ""]
         out += [f"- {how}: {_finding_text(f)}" for how, f in lines]
+    if diff.get("trades"):
+        out += ["", "**Trade studies**", ""] + [f"- {x}" for x in trade_lines(diff) if x]
     out += ["", f"_{CAUTION}_", ""]
     return "\n".join(out)
 

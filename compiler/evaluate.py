@@ -57,6 +57,12 @@ HERE_TOL = 1e-9  # rad: a place this close ahead is "here"
 PRICED_KINDS = ("burn", "allow")  # rows that carry delta-v and propellant
 
 
+def element(x, i: int) -> float:
+    """Element ``i`` of a step's value: a number, or an array over the batch (a trade's
+    variants), for a message worded on demand."""
+    return float(x[i]) if np.ndim(x) else float(x)
+
+
 @dataclass(frozen=True)
 class Batch:
     r: np.ndarray  # (B, 3) km
@@ -92,11 +98,14 @@ _FIELDS = ("r", "v", "mass", "propellant", "t", "dv", "dv_margin", "expect_ok")
 
 
 def start_batch(program: Program, size: int = 1) -> Batch:
+    """The start state, ``size`` times; a program whose start state and masses are arrays
+    over the batch (a trade's variants, ``compiler/sweep.py``) gives one per element."""
     ones = np.ones(size)
     craft = program.craft
+    each = lambda x: np.array(np.broadcast_to(x, (size, 3)), dtype=float)
     return Batch(
-        r=np.tile(program.start_r, (size, 1)),
-        v=np.tile(program.start_v, (size, 1)),
+        r=each(program.start_r),
+        v=each(program.start_v),
         mass=ones * (craft.dry + craft.propellant),
         propellant=ones * craft.usable,  # the residual rides along as mass
         t=np.zeros(size),
@@ -322,11 +331,11 @@ def _solve_burn(step: Burn, r, v, ctx: Context, fails: Failures, normal=None):
             R = step.circular_radius
             off = np.abs(rmag - R) > 1e-9 * rmag
             fails.add(off, lambda i: (
-                (f"`circular {R - ctx.radius:.3f} km` needs the craft at that altitude, "
-                f"but it is at {rmag[i] - ctx.radius:.3f} km; one burn can only "
+                (f"`circular {element(R, i) - ctx.radius:.3f} km` needs the craft at that "
+                f"altitude, but it is at {rmag[i] - ctx.radius:.3f} km; one burn can only "
                 "circularise at the current radius"),
-                (f"use `transfer NAME: circular {R - ctx.radius:g} km`, or drop the altitude "
-                "to circularise here")))
+                (f"use `transfer NAME: circular {element(R, i) - ctx.radius:g} km`, or drop "
+                "the altitude to circularise here")))
         shape = Shape(periapsis=rmag, apoapsis=rmag)
     elif step.apsis_here:
         far = np.full_like(rmag, step.apoapsis if step.apoapsis is not None else step.periapsis)
@@ -708,41 +717,33 @@ def _three_burn_plane_change(step: Transfer, index, batch: Batch, ctx: Context, 
 
     The raise makes the first point the periapsis of the detour, so the turn is half a
     revolution on and the lowering is back at the first point's radius, where it restores
-    both apsides of the orbit the craft started from (the apse line may have turned).
+    both apsides of the orbit the craft started from (the apse line may have turned): an
+    ordinary burn whose two apsis goals are per element, the apsides each element started
+    from.
     """
     tmp = Failures(batch.size)
     r0, v0, _ = goto(step.place, batch.r, batch.v, ctx.mu, tmp, sweep, ctx.radius)
     el = elements_from_state(r0, v0, ctx.mu)
     circular = el.ecc < CIRCULAR_ECC
-    keep_pe = np.where(circular, norm(r0), el.periapsis)
-    keep_ap = np.where(circular | ~el.closed, norm(r0), el.apoapsis)  # open: refused below
+    here = norm(r0)
+    keep_pe = np.where(circular, here, el.periapsis)
+    keep_ap = np.where(circular | ~el.closed, here, el.apoapsis)  # open: refused below
     eng, margin, span = step.engine, step.margin, step.span
     raise_ = Burn(f"{step.name}/1", step.place, apoapsis=step.via, apsis_here=True,
                   engine=eng, margin=margin, span=span)
     turn = Burn(f"{step.name}/2", Place("apoapsis"), inclination=step.inclination,
                 raan=step.raan, engine=eng, margin=margin, span=span)
+    # the first point is the detour's periapsis: its radius lies within the apsides kept
+    lower = Burn(f"{step.name}/3", Place("periapsis"), periapsis=np.minimum(keep_pe, here),
+                 apoapsis=np.maximum(keep_ap, here), engine=eng, margin=margin, span=span)
     fails.add(~el.closed, lambda i: (
         (f"a three-burn plane change starts from a closed orbit; this one is open "
          f"(eccentricity {el.ecc[i]:.6f})"), "capture first, then turn the plane"))
     rows = []
-    for burn, first in ((raise_, sweep), (turn, None)):
+    for burn, first in ((raise_, sweep), (turn, None), (lower, None)):
         batch, row = _burn_rows(burn, index, burn.name, batch, ctx, fails, None, first)
         rows.append(row)
-    lower = Burn(f"{step.name}/3", Place("periapsis"), engine=eng, margin=margin, span=span)
-    out = burn_outcome(lower, batch.r, batch.v, ctx)
-    sub = Failures(batch.size)
-    r3, v3 = out.r, out.v_before
-    shape = Shape(periapsis=np.minimum(keep_pe, norm(r3)), apoapsis=np.maximum(keep_ap, norm(r3)))
-    v_new = new_velocity(r3, v3, ctx.mu, shape, None, sub, ctx.radius)
-    fails.merge(~sub.ok, sub)
-    out = BurnOutcome(r3, v3, np.where(sub.ok[:, None], v_new, v3), out.coast, out.fails)
-    fails.merge(~out.fails.ok, out.fails)
-    new, vec, dv, dvm, prop, bt, covered = _price(batch, out, _engine(lower, ctx), margin, ctx,
-                                                  fails, lower.name)
-    rows.append(Row(index, lower.name, "burn", "periapsis", new, vec, dv, dvm, prop, bt,
-                    out.coast, out.coast, _engine(lower, ctx), margin, v_before=out.v_before,
-                    covered=covered))
-    return new, rows
+    return batch, rows
 
 
 # --- the other steps -----------------------------------------------------------------
@@ -762,7 +763,8 @@ def _coast(step: Coast, index: int, batch: Batch, ctx: Context, fails: Failures)
         r, v, ok = kepler.propagate(batch.r, batch.v, mu, np.full(batch.size, step.duration))
         fails.add(~ok, lambda i: ("the coast could not be propagated", None))
         dt = np.full(batch.size, step.duration)
-        at = f"for {_span_text(step.duration)}"
+        at = (f"for {_span_text(step.duration)}" if np.ndim(step.duration) == 0
+              else "for a time")
     elif step.mode == "to":
         r, v, dt = goto(step.place, batch.r, batch.v, mu, fails, radius=ctx.radius)
         at = step.place.label()
@@ -794,8 +796,8 @@ def _coast(step: Coast, index: int, batch: Batch, ctx: Context, fails: Failures)
 def _drop(step: Drop, index: int, batch: Batch, ctx: Context, fails: Failures):
     dry = batch.mass - batch.propellant
     fails.add(step.mass >= dry, lambda i: (
-        (f"{step.name} drops {step.mass:.3f} kg but the craft holds only {dry[i]:.3f} kg "
-        "besides its propellant"),
+        (f"{step.name} drops {element(step.mass, i):.3f} kg but the craft holds only "
+        f"{dry[i]:.3f} kg besides its propellant"),
         "drop less, or check the craft's dry mass"))
     new = replace(batch, mass=np.where(fails.ok, batch.mass - step.mass, batch.mass))
     return new, [Row(index, step.name, "drop", "here", new)]

@@ -49,5 +49,6 @@ def components(name: str, r: np.ndarray, v: np.ndarray, dv: np.ndarray) -> np.nd
 def inertial(name: str, r: np.ndarray, v: np.ndarray, comps) -> np.ndarray:
     """Components in frame ``name`` as an inertial velocity change (B, 3)."""
     a, b, c = axes(name, r, v)
-    x, y, z = comps
+    # a component may be an array over the batch (a trade's variants): one per element
+    x, y, z = (np.asarray(k, dtype=float)[..., None] if np.ndim(k) else k for k in comps)
     return x * a + y * b + z * c

@@ -56,7 +56,8 @@ def phasing_velocity(r, v, mu: float, angle: float, revs: int, body_radius: floa
     closed = el.closed
     period = np.where(closed, el.period, 1.0)
     ahead, _ = kepler.time_of_flight(r, v, mu, np.full(r.shape[0], np.mod(angle, TWO_PI)))
-    lead = ahead - (period if angle < 0 else 0.0)  # the time the craft gains on its orbit
+    # the time the craft gains on its orbit (``angle`` may be an array over the batch)
+    lead = ahead - np.where(np.asarray(angle) < 0, period, 0.0)
     new_period = period - lead / revs
     a_new = (mu * (new_period / TWO_PI) ** 2) ** (1.0 / 3.0)
     rmag, speed = norm(r), norm(v)
@@ -77,9 +78,10 @@ def phasing_velocity(r, v, mu: float, angle: float, revs: int, body_radius: floa
         rp = rmag * x * cos2 / (1.0 + np.sqrt(np.maximum(1.0 - 2.0 * x * cos2 + x * x * cos2,
                                                          0.0)))
     low = closed & (lead > 0) & (new_period < t_min)
-    deg = np.degrees(angle)
+    degs = np.broadcast_to(np.degrees(angle), period.shape)
 
     def under(i: int) -> tuple[str, str]:
+        deg = float(degs[i])
         asked = f"`phase {deg:g} deg in {revs} rev`"
         if speed2[i] > 0:
             why = (f"its periapsis falls to {rp[i] - Rb:.3f} km altitude, under the surface "

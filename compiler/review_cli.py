@@ -338,6 +338,11 @@ def cmd_diff(args) -> int:
         return _emit_one_sided(args, old, new)
     result = diff_reports(old.report, new.report, step_info(old.program),
                           step_info(new.program), findings=not args.no_findings)
+    from .trade import changes
+
+    traded = changes(old.program.plan, new.program.plan)  # trade studies: text, not budget
+    if traded:
+        result["trades"] = traded
     if args.format == "json":
         sys.stdout.write(diff_render.to_json(result) + "\n")
     elif args.format == "csv":

@@ -190,6 +190,9 @@ def _scene_line(stmt) -> str:
     if isinstance(stmt, ast.Start):
         return " ".join(["start" if stmt.form == "circular" else "start orbit",
                          *(_field(f) for f in stmt.fields)])
+    if isinstance(stmt, ast.Trade):
+        items = (" ".join(w.text for w in (i.word, *i.args)) for i in stmt.items)
+        return f"trade {stmt.name.text}: " + ", ".join(items)
     raise TypeError(f"not a statement: {type(stmt).__name__}")
 
 
@@ -311,7 +314,7 @@ class _Block:
 
 SECTION = {ast.PlanTitle: "title", ast.Around: "around", ast.BodyDef: "body",
            ast.CraftDef: "craft", ast.Setting: "settings", ast.Start: "start",
-           ast.Epoch: "start"}
+           ast.Epoch: "start", ast.Trade: "trades"}
 
 
 def _section(stmt) -> str:

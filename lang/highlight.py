@@ -40,10 +40,10 @@ from pygments.token import (
 GRAMMAR = Path(__file__).with_name("grammar.lark")
 # The statements: the words a line starts with (their order in the grammar).
 STATEMENTS = ("plan", "around", "body", "craft", "margin", "reserve", "ceiling", "epoch",
-              "start", "burn", "transfer", "coast", "drop", "entry", "allow", "expect")
+              "start", "burn", "transfer", "coast", "drop", "entry", "allow", "expect", "trade")
 # Statements whose second word, when it is not a keyword, is the step's name.
 NAMED = ("burn", "transfer", "coast", "drop", "entry", "allow", "expect", "engine", "craft",
-         "body")
+         "body", "trade")
 
 
 @cache
@@ -94,8 +94,14 @@ class PlanLexer(RegexLexer):
             (r"#.*?$", Comment.Single),
             (r'"[^"\n]*"', String.Double),
             (r"\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d(?:\.\d+)?", Literal.Date),
+            # a trade's LOW..HIGH range and NAME.FIELD target
+            (r"[A-Za-z_][\w\-]*\.[A-Za-z_][\w\-]*", Name.Variable),
+            (_EDGE_BEFORE + "(" + _NUMBER + r"\.\." + _NUMBER + r")(\s*)("
+             + "|".join(map(re.escape, _units())) + ")" + _EDGE_AFTER,
+             bygroups(Number, Whitespace, Keyword.Type)),
             (_EDGE_BEFORE + "(" + _NUMBER + r")(\s*)(" + "|".join(map(re.escape, _units()))
              + ")" + _EDGE_AFTER, bygroups(Number, Whitespace, Keyword.Type)),
+            (_EDGE_BEFORE + _NUMBER + r"\.\." + _NUMBER, Number),
             (_EDGE_BEFORE + _NUMBER, Number),
             (_EDGE_BEFORE + _kw + _EDGE_AFTER, Keyword),
             (r"[{}:,]", Punctuation),

@@ -391,7 +391,7 @@ _NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_-]*")
 EPOCH_SCALES = ("UTC", "TAI", "TT", "GPS", "TDB")
 
 LATER_KEYWORDS = frozenset({"c3", "elapsed", "velocity", "normal", "binormal", "transverse",
-                            "frame", "epoch"})
+                            "frame", "epoch", "trade"})
 
 
 def _named(name: ast.Name | None, role: str) -> ast.Name | None:
@@ -656,6 +656,16 @@ class _ToSyntax(Transformer):
     def allow(self, meta, children):
         name, amount, duration, options = children
         return ast.Allow(name, _checked(amount, SLOTS["allow"]), duration, options, _span(meta))
+
+    def trade(self, meta, children):
+        name, *items = children
+        return ast.Trade(_named(name, "a trade"), tuple(items), _span(meta))
+
+    def trade_item(self, meta, children):
+        kinds = {"WORD": "word", "TARGET": "target", "NUMBER": "number", "RANGE": "range"}
+        words = tuple(ast.TradeWord(kinds.get(t.type, "word"), str(t), _token_span(t))
+                      for t in children)
+        return ast.TradeItem(words[0], words[1:], _span(meta))
 
     def allow_rate(self, meta, children):
         return _checked(children[0], SLOTS["allow.for"])

@@ -276,9 +276,38 @@ class Entry:
     span: Span
 
 
+@dataclass(frozen=True)
+class TradeWord:
+    """One token of a trade item as written: a word, a NAME.FIELD target, a number or a
+    LOW..HIGH range."""
+
+    kind: str  # word | target | number | range
+    text: str
+    span: Span
+
+
+@dataclass(frozen=True)
+class TradeItem:
+    """``vary geo.circular 30000..42000 km points 25``: its first word and the rest."""
+
+    word: TradeWord
+    args: tuple[TradeWord, ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class Trade:
+    """``trade NAME: ITEM, ...``: a trade study `apsidal sweep` reads; not a step, and
+    nothing `run` prices."""
+
+    name: Name
+    items: tuple[TradeItem, ...]
+    span: Span
+
+
 Statement = (
     PlanTitle | Around | BodyDef | CraftDef | Setting | Epoch | Start | Burn | Transfer | Coast
-    | Drop | Expect | Allow | Entry
+    | Drop | Expect | Allow | Entry | Trade
 )
 STEP_TYPES = (Burn, Transfer, Coast, Drop, Expect, Allow, Entry)
 

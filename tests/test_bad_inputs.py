@@ -171,6 +171,10 @@ CASES = [
         ("out of range",), "ordinary number"),
     Bad("keyword-as-step-name", plan("burn apoapsis: along 5 m/s"), 10, 6, "apoapsis",
         ("is a keyword and cannot name a step",), "choose another name"),
+    Bad("trade-missing-colon", plan("trade size vary raise.apoapsis 1..2 km"), 10, 12, "vary",
+        ("unexpected `vary`",), "expected `:`"),
+    Bad("trade-spaced-range", plan("trade size: vary raise.apoapsis 1 .. 2 km"), 10, 35, ".",
+        ("unexpected character `.`",), "a number"),
     Bad("no-revolutions", plan("coast wait 0 rev"), 10, 12, "0",
         ("a positive number of revolutions",), "`0.5 rev`"),
     # --- the craft and the body -------------------------------------------------------------
