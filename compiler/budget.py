@@ -13,6 +13,7 @@ import numpy as np
 
 from .evaluate import PRICED_KINDS, Result, Row
 from .frames import NAMES, components
+from .legs import is_leg, step_bodies
 from .state import elements_from_state
 
 CAUTION = ("Preliminary-design estimates under the impulsive two-body approximation; "
@@ -99,6 +100,33 @@ def _step_dict(i: int, row: Row, mu: float, radius: float) -> dict:
         out["checks"] = [_check_dict(c, radius) for c in row.checks]
     if row.kind == "entry":
         out["entry"] = entry_dict(row.after.r[0], row.after.v[0], radius)
+    return out
+
+
+def body_dict(body) -> dict:
+    return {"name": body.name, "gm_km3_s2": body.gm, "radius_km": body.radius}
+
+
+def leg_dict(leg) -> dict:
+    """A leg's patched-conic figures: both hyperbolic excess speeds and the time of flight."""
+    return {"from": leg.depart.name, "to": leg.body.name, "form": leg.form,
+            "vinf_depart_km_s": finite(leg.vinf_depart, 9),
+            "vinf_arrive_km_s": finite(leg.vinf_arrive, 9),
+            "time_of_flight_s": finite(leg.duration, 6)}
+
+
+def phases_list(result: Result) -> list[dict]:
+    """The plan's phases in order: the body each flies around, the leg that starts it
+    (none for the first) and the report ``index`` of its first step (None when the
+    chain stopped before it, or the phase has no step)."""
+    program, rows = result.program, result.rows
+    starts = [(0, program.body, None)] + [(i + 1, s.body, s.name)
+                                          for i, s in enumerate(program.steps) if is_leg(s)]
+    out = []
+    for k, (first, body, leg) in enumerate(starts):
+        end = starts[k + 1][0] if k + 1 < len(starts) else len(program.steps)
+        index = next((n + 1 for n, row in enumerate(rows) if first <= row.step < end), None)
+        out.append({"body": body_dict(body), "leg": leg, "first_index": index})
     return out
 
 
@@ -229,8 +257,13 @@ def budget(result: Result) -> dict:
     from .size import size
 
     p = result.program
-    mu, radius = p.body.gm, p.body.radius
-    steps = [_step_dict(i + 1, row, mu, radius) for i, row in enumerate(result.rows)]
+    around = step_bodies(p)
+    steps = [_step_dict(i + 1, row, around[row.step].gm, around[row.step].radius)
+             for i, row in enumerate(result.rows)]
+    for row, step in zip(result.rows, steps):
+        step["body"] = around[row.step].name
+        if row.kind == "leg":
+            step["leg"] = leg_dict(p.steps[row.step])
     book = ledger(result)
     short = result.first_uncovered
     for k, parts in book.per_row.items():
@@ -292,7 +325,7 @@ def budget(result: Result) -> dict:
     out = {
         "plan": p.title,
         "source": p.source.path,
-        "body": {"name": p.body.name, "gm_km3_s2": p.body.gm, "radius_km": p.body.radius},
+        "body": body_dict(p.body),
         "craft": {"name": p.craft.name, "dry_kg": p.craft.dry,
                   "propellant_kg": p.craft.propellant,
                   "default_engine": p.craft.default_engine.name},
@@ -303,6 +336,8 @@ def budget(result: Result) -> dict:
         "findings": [],
         "caution": CAUTION,
     }
+    if any(is_leg(s) for s in p.steps):
+        out["phases"] = phases_list(result)
     if result.error is not None:
         err = result.error
         out["error"] = {

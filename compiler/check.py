@@ -24,6 +24,7 @@ from apsidal.lang.errors import PlanError
 from .budget import budget
 from .evaluate import Batch, Result, apply, carry, context_for, run, start_batch
 from .load import load_text
+from .legs import PhaseBodies, final_body, is_leg
 from .lower import Lowerer, lower
 from .proofs import Node, Walk, add
 from .state import elements_from_state
@@ -133,7 +134,7 @@ class Rewrite:
 
 
 @dataclass
-class Checker:
+class Checker(PhaseBodies):
     """What every rule reads: the plan, its syntax tree, its priced chain."""
 
     program: Program
@@ -212,7 +213,7 @@ class Checker:
         kinds = {g.kind for g in goals}
         if "inclination" not in kinds or "raan" in kinds:
             return goals
-        mu = self.program.body.gm
+        mu = self.body_at(given_at if isinstance(given_at, int) else given_at[0]).gm
         given = (given_at,) if isinstance(given_at, int) else tuple(given_at)
         states = [self.state_before(k) for k in given]
         if not any(bool(elements_from_state(b.r, b.v, mu).equatorial[0]) for b in states):
@@ -442,7 +443,7 @@ class Checker:
             return None
         from .reorder import orientation_matters, same_orbit  # proofs only, not `run`
 
-        same = same_orbit(final, self.result.final, program.body.gm,
+        same = same_orbit(final, self.result.final, final_body(program).gm,
                           orientation_matters(self.program))
         if not bool(same[0]):
             return None
@@ -471,24 +472,62 @@ class Checker:
         proof.text = self.text_of(rewrite)
         if not new:
             return
+        # each new statement is read back in its phase (after the legs before it)
+        legs_before = [sum(1 for s in proof.program.steps[:index] if is_leg(s))
+                       for _, index in new]
+        for phase in sorted(set(legs_before)):
+            self._read_back([n for n, p in zip(new, legs_before) if p == phase], proof, phase)
+
+    def _read_back(self, new, proof: Proof, phase: int) -> None:
         lines = "\n".join(self.unparse(x) for x, _ in new)
         # read back before the plan's `entry`, if it ends with one: only there may a last
         # burn put the periapsis under the surface
         last = self.statements[-1] if self.statements else None
         tail = self.unparse(last) + "\n" if isinstance(last, ast.Entry) else ""
+        tail = self._next_leg(phase) or tail  # a `vinf to leg` goal reads the leg after it
         try:
-            program = load_text(self._settings + "\n" + lines + "\n" + tail,
+            program = load_text(self._phase_settings(phase) + "\n" + lines + "\n" + tail,
                                 self.program.source.path)
         except PlanError as exc:
             raise RuntimeError(f"a rewritten statement does not parse back: {exc.message}\n"
                                f"{lines}") from exc
-        for (node, index), read in zip(new, program.steps):
+        for (node, index), read in zip(new, program.steps[phase:]):
             priced = proof.program.steps[index]
             if node.name is None:
                 read, priced = replace(read, name=""), replace(priced, name="")
             if _plain(read) != _plain(priced):
                 raise RuntimeError(f"a rewritten statement does not read back as the step "
                                    f"priced:\n{self.unparse(node)}")
+
+    def _next_leg(self, phase: int) -> str:
+        """The lines of the leg that ends phase ``phase`` and of its arrival start ("" in
+        the last phase)."""
+        nodes = [st for st in self.program.plan.statements if isinstance(st, ast.Leg)]
+        if phase >= len(nodes):
+            return ""
+        at = self.program.plan.statements.index(nodes[phase])
+        start = self.program.plan.statements[at + 1]
+        return "".join(self.text[slice(*self._line_range(x))] + "\n" for x in (nodes[phase], start))
+
+    def _phase_settings(self, phase: int) -> str:
+        """The plan without its steps, up to its ``phase``-th leg and that leg's arrival
+        start (the plan's settings alone for the first phase)."""
+        if phase == 0 and not any(is_leg(s) for s in self.program.steps):
+            return self._settings
+        cuts, legs = [], 0
+        for st in self.program.plan.statements:
+            if isinstance(st, ast.Leg):
+                legs += 1
+            if (isinstance(st, ast.STEP_TYPES) and not (isinstance(st, ast.Leg)
+                                                        and legs <= phase)) \
+                    or (isinstance(st, ast.Start) and legs > phase):
+                cuts.append(self._line_range(st))
+        pieces, at = [], 0
+        for start, end in cuts:
+            pieces.append(self.text[at:start])
+            at = end
+        pieces.append(self.text[at:])
+        return "".join(pieces)
 
     def findings_of(self, rule: str, proposals: list) -> list[Finding]:
         """Findings from (rewrite, report) proposals, all priced in one walk

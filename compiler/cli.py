@@ -32,6 +32,7 @@ from .cliutil import (
     join_amounts,
     screen_width,
 )
+from .legs import PhaseBodies
 
 FORMATS = ("table", "json", "markdown", "csv")
 COLUMN_KEYS = ("index", "step", "kind", "at", "dv", "margin", "propellant", "mass", "burn",
@@ -62,7 +63,7 @@ def cmd_run(args) -> int:
     return EXIT_OK
 
 
-class PricedPlan:
+class PricedPlan(PhaseBodies):
     """What the consistency rules read of a plan: the program, its priced chain and its
     report, the first three fields of ``check.Checker``.  The Checker itself also lays
     out the plan's text and the state before each step for the rules that rewrite the

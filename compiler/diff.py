@@ -40,14 +40,16 @@ from dataclasses import dataclass, replace
 # A step's own numbers, compared with these tolerances to tell `changed` from `same`.
 OWN_NUMBERS = {"dv_m_s": 1e-3, "dv_with_margin_m_s": 1e-3, "propellant_kg": 1e-4,
                "duration_s": 1e-3, "margin_pct": 1e-9}
-OWN_WORDS = ("kind", "at", "engine")
+OWN_WORDS = ("kind", "at", "engine", "body")
 # The state at an `entry` step's interface, compared the same way.
 ENTRY_NUMBERS = {"speed_m_s": 1e-3, "flight_path_angle_deg": 1e-6}
+# A leg's hyperbolic excess speeds (km/s), the same way.
+LEG_NUMBERS = {"vinf_depart_km_s": 1e-7, "vinf_arrive_km_s": 1e-7}
 # The per-step change reported for every entry (new minus old, zero for a missing side).
 STEP_CHANGE = ("dv_m_s", "dv_with_margin_m_s", "propellant_kg", "duration_s")
 
 # The names lowering gives unnamed steps: `burn-2`, `transfer-1/2`.
-DEFAULT_NAME = re.compile(r"(burn|transfer|coast|drop|expect|entry)-\d+(/\d+)?")
+DEFAULT_NAME = re.compile(r"(burn|transfer|coast|drop|expect|entry|leg)-\d+(/\d+)?")
 
 
 @dataclass(frozen=True)
@@ -116,6 +118,9 @@ def step_changed(old: dict, new: dict) -> bool:
         return True
     at_old, at_new = old.get("entry") or {}, new.get("entry") or {}
     if any(not _close(at_old.get(k), at_new.get(k), tol) for k, tol in ENTRY_NUMBERS.items()):
+        return True
+    leg_old, leg_new = old.get("leg") or {}, new.get("leg") or {}
+    if any(not _close(leg_old.get(k), leg_new.get(k), tol) for k, tol in LEG_NUMBERS.items()):
         return True
     return _checks(old) != _checks(new)
 

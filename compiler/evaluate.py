@@ -16,6 +16,7 @@ import numpy as np
 from apsidal.lang.errors import PlanError
 
 from . import conic_goals, frames, kepler
+from .legs import in_phase, leg_rows, phases_of
 from .solvers import (
     Failures,
     Shape,
@@ -188,13 +189,15 @@ class Context:
     descent_from: int | None = None  # see Program.descent_from
     entry_radius: float | None = None  # the interface of the plan's `entry`, km
     interface: float | None = None  # set on the way down (``apply``): coasts stay above it
+    phases: tuple = ()  # (first step, mu, radius) of each phase after a leg (legs.phases_of)
 
 
 def context_for(program: Program) -> Context:
     end = program.steps[-1] if program.steps else None
     return Context(program.body.gm, program.body.radius, program.craft.default_engine,
                    program.margin, program.statistical_scale, program.descent_from,
-                   end.radius if isinstance(end, Entry) else None)
+                   end.radius if isinstance(end, Entry) else None,
+                   phases=phases_of(program.steps))
 
 
 def descending(ctx: Context, index: int) -> Context:
@@ -886,7 +889,11 @@ def apply(step: Step, index: int, batch: Batch, ctx: Context) -> tuple[Batch, li
     """Move the whole batch through one step."""
     fails = Failures(batch.size)
     ctx = descending(ctx, index)
-    if isinstance(step, Entry):
+    if ctx.phases:  # a plan of several bodies: this step's
+        ctx = in_phase(ctx, index)
+    if step.kind == "leg":
+        new, rows = leg_rows(step, index, batch, ctx, fails)
+    elif isinstance(step, Entry):
         from .entry import entry_rows
 
         new, rows = entry_rows(step, index, batch, ctx, fails)

@@ -63,7 +63,7 @@ def cmd_export(args) -> int:
     except ExportError as err:
         span = next((s.span for s in program.plan.statements
                      if type(s).__name__ == "Start"), None)
-        raise PlanError(str(err), span, program.source) from None
+        raise PlanError(str(err), err.span or span, program.source) from None
     if args.output:
         try:
             write_atomic(args.output, text)

@@ -14,7 +14,7 @@ import numpy as np
 from apsidal.lang import syntax as ast
 from apsidal.lang.errors import PlanError, Span, did_you_mean
 
-from . import bodies, burn_goals
+from . import bodies, burn_goals, legs
 from .state import state_from_elements
 from .steps import (
     HERE,
@@ -99,10 +99,21 @@ class Lowerer:
     def lower(self) -> Program:
         steps_ast = []
         singles: dict[str, Span] = {}
+        self.arrivals: dict[int, ast.Start] = {}  # id of a leg -> its arrival start
+        leg = None  # the last leg seen, while its arrival start is still to come
         for st in self.plan.statements:
             if isinstance(st, ast.STEP_TYPES):
+                if leg is not None and id(leg) not in self.arrivals:
+                    raise legs.no_arrival(leg, st)
                 steps_ast.append(st)
+                if isinstance(st, ast.Leg):
+                    leg = st
                 continue
+            if leg is not None:
+                if isinstance(st, ast.Start) and id(leg) not in self.arrivals:
+                    self.arrivals[id(leg)] = st
+                    continue
+                legs.after_leg(st, leg, self.arrivals.get(id(leg)))
             key = {ast.PlanTitle: "plan", ast.Around: "around", ast.CraftDef: "craft",
                    ast.Start: "start", ast.Epoch: "epoch"}.get(type(st))
             if isinstance(st, ast.Setting):
@@ -116,6 +127,8 @@ class Lowerer:
                     raise _err("`start` must come before the first step", st,
                                "move the start orbit above the burns")
             self._statement(st)
+        if leg is not None and id(leg) not in self.arrivals:
+            raise legs.no_arrival(leg, None)
         top = _top_of(self.plan)
         if not self.plan.statements:
             raise PlanError("the plan is empty", top, None,
@@ -133,13 +146,24 @@ class Lowerer:
                        "add a line such as `start circular 400 km inclination 51.6 deg`")
         r, v = self._start_state(self.start)
         self._ends = self._entry_order(steps_ast)
+        self.steps_ast = steps_ast
         steps = []
         self.counts_before: list[dict[str, int]] = []  # default-name counts before each step
+        self.bodies_before: list[bodies.Body] = []  # the body around which each step flies
+        self.phases_before: list[int] = []  # how many legs come before each step
+        self.leg_vinfs = legs.departure_vinfs(self, steps_ast) if self.arrivals else []
+        self.phase = 0
+        first_body = self.body
         for node in steps_ast:
             self.counts_before.append(dict(self.counts))
+            self.bodies_before.append(self.body)
+            self.phases_before.append(self.phase)
             steps.append(self._step(node))
         self.counts_before.append(dict(self.counts))
+        self.bodies_before.append(self.body)
+        self.phases_before.append(self.phase)
         steps = tuple(steps)
+        self.body = first_body  # the plan's body is its first phase's
         ceiling = None
         if self.ceiling is not None:
             given = self.ceiling.value.internal()
@@ -165,6 +189,8 @@ class Lowerer:
         """
         again = copy.copy(self)
         again.counts = dict(self.counts_before[first])
+        again.body = self.bodies_before[first]
+        again.phase = self.phases_before[first]
         again.names = {}
         new = tuple(again._step(node) for node in nodes)
         if again.counts != self.counts_before[last + 1]:
@@ -218,23 +244,34 @@ class Lowerer:
                                                  f"defined in the plan, line {st.span.line}")
 
     def _around(self, st: ast.Around) -> None:
-        name = st.body.text
+        self.body = self._find_body(st.body, st.span.line)
+
+    def _find_body(self, node: ast.Name, line: int) -> bodies.Body:
+        """The body a name stands for: defined in the plan above ``line``, or catalogued."""
+        name = node.text
         body = self.defined.get(name) or bodies.lookup(name)
         later = next((d for d in self.plan.statements if isinstance(d, ast.BodyDef)
-                      and d.name.text == name and d.span.line > st.span.line), None)
+                      and d.name.text == name and d.span.line > line), None)
         if body is None and later is not None:
             raise _err(f"body `{name}` is defined on line {later.span.line}, after this "
-                       "`around`", st.body,
+                       "`around`", node,
                        f"move `body {name} {{ ... }}` above `around {name}`: a body is "
                        "defined before the plan goes around it")
         if body is None:
             pool = list(self.defined) + bodies.names()
             guess = did_you_mean(name, pool)
-            raise _err(f"unknown body `{name}`", st.body,
+            raise _err(f"unknown body `{name}`", node,
                        f"did you mean `{guess}`?" if guess else
                        "define it first with `body NAME { gm ... radius ... }`; the catalogue "
                        "has " + ", ".join(bodies.names()))
-        self.body = body
+        return body
+
+    def _leg(self, node: ast.Leg):
+        """A leg to another body; from here on the steps fly around it."""
+        leg = legs.lower_leg(self, node, self.arrivals[id(node)])
+        self.body = leg.body
+        self.phase += 1
+        return leg
 
     def _craft(self, st: ast.CraftDef) -> None:
         f = _fields(st.fields, ("dry", "propellant", "fuel", "oxidiser", "residual"),
@@ -307,7 +344,9 @@ class Lowerer:
         value = d.quantity.internal()
         return value if d.is_radius else value + self.body.radius
 
-    def _start_state(self, st: ast.Start):
+    def _start_state(self, st: ast.Start, below_ok: bool = False):
+        """The start state; ``below_ok``: the periapsis may be under the surface (an
+        arrival hyperbola aimed at a direct entry)."""
         angles = ("inclination", "raan", "argp", "anomaly")
         if st.form == "circular":
             f = _fields(st.fields, ("circular", *angles), "`start circular`")
@@ -318,7 +357,7 @@ class Lowerer:
                                     *angles), "`start orbit`")
             rp, ra = self._start_shape(st, f)
             shape_node = f.get("periapsis") or f.get("sma") or st
-        if not rp > self.body.radius:
+        if not rp > self.body.radius and not below_ok:
             raise _err(f"the start orbit's periapsis ({rp - self.body.radius:.3f} km altitude) "
                        "is under the surface", shape_node,
                        ALTITUDE_HINT)
@@ -526,6 +565,8 @@ class Lowerer:
                          movable=free)
         if isinstance(node, ast.Entry):
             return self._entry(node)
+        if isinstance(node, ast.Leg):
+            return self._leg(node)
         if isinstance(node, ast.Allow):
             return self._allow(node)
         if isinstance(node, ast.Drop):
@@ -537,6 +578,8 @@ class Lowerer:
     def _burn(self, node: ast.Burn) -> Burn:
         name = self._name(node, "burn")
         goals = self._goals(node)
+        if "vinf" in goals and isinstance(goals["vinf"].value, ast.Name):
+            goals["vinf"] = legs.vinf_to_leg(self, goals["vinf"])
         engine, margin, fixed, movable = self._options(node)
         place = self._place(node.where)
         tangential = self._tangential

@@ -140,7 +140,12 @@ class Opm:
 
 
 class ExportError(ValueError):
-    """A plan that cannot be written as an OPM; the message says what it needs."""
+    """A plan that cannot be written as an OPM; the message says what it needs, and
+    ``span`` where (None: the start orbit)."""
+
+    def __init__(self, message: str, span=None):
+        super().__init__(message)
+        self.span = span
 
 
 def build(program, result, ref_frame: str | None = None, object_id: str = "UNKNOWN",
@@ -160,6 +165,12 @@ def build(program, result, ref_frame: str | None = None, object_id: str = "UNKNO
         raise ExportError("the plan has no `epoch`: an OPM gives the start state at a date "
                           "and time; add a line such as `epoch 2027-03-01T00:00:00 UTC` "
                           "above the `start` orbit")
+    leg = next((s for s in program.steps if getattr(s, "kind", "") == "leg"), None)
+    if leg is not None:
+        raise ExportError(f"an OPM has one central body, and this plan changes body at leg "
+                          f"`{leg.name}`: export the phase before it, as a plan of its own "
+                          "that ends there, and the arrival as another that starts on its "
+                          "hyperbola", getattr(leg, "span", None))
     body = program.body.name.lower()
     frame = ref_frame or REF_FRAMES.get(body)
     if frame is None:

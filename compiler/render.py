@@ -65,6 +65,13 @@ def orbit_text(o: dict) -> str:
     return f"{sig(o['periapsis_alt_km'])} x {ap} i {sig(o['inclination_deg'])}"
 
 
+def _orbit_cell(s: dict) -> str:
+    """The orbit after a step; after a leg, led by the body the plan now flies around
+    (where the body changes, in every width of the table)."""
+    text = orbit_text(s["orbit_after"])
+    return f"{s['body']}: {text}" if s["kind"] == "leg" else text
+
+
 STEP_COLUMNS: tuple[Column, ...] = (
     Column("index", "#", lambda s: str(s["index"]), 0),
     Column("step", "step", lambda s: s["name"], 0, right=False),
@@ -76,8 +83,8 @@ STEP_COLUMNS: tuple[Column, ...] = (
     Column("mass", "mass after kg", lambda s: sig(s["mass_after_kg"]), 1),
     Column("burn", "burn time s", _burn("burn_time_s", 3), 4),
     Column("engine", "engine", lambda s: s.get("engine", ""), 5, right=False),
-    Column("orbit", "orbit after: alt. km x km, incl. deg",
-           lambda s: orbit_text(s["orbit_after"]), 0, right=False),
+    Column("orbit", "orbit after: alt. km x km, incl. deg", lambda s: _orbit_cell(s), 0,
+           right=False),
     Column("elapsed", "elapsed d hh:mm:ss", lambda s: duration(s["elapsed_s"]), 2),
 )
 COLUMN_KEYS = tuple(c.key for c in STEP_COLUMNS)
@@ -229,6 +236,12 @@ def fit_lines(report: dict) -> list[str]:
         out.append(f"components           fuel {sig(tot['fuel_kg'])} kg, oxidiser "
                    f"{sig(tot['oxidiser_kg'])} kg burnt")
     for step in report["steps"]:
+        if "leg" in step:  # a patched-conic leg's figures (language.md, legs)
+            g = step["leg"]
+            form = "Hohmann" if g["form"] == "hohmann" else "given"
+            out.append(f"{'leg ' + step['name']:<20} {g['from']} to {g['to']}, {form}: vinf "
+                       f"{sig(g['vinf_depart_km_s'])} -> {sig(g['vinf_arrive_km_s'])} km/s, "
+                       f"{sig(g['time_of_flight_s'] / 86400.0)} d")
         if "entry" in step:
             e = step["entry"]
             out.append(f"entry interface      {sig(e['altitude_km'])} km ({step['name']}): "
@@ -358,7 +371,7 @@ STEP_CSV = ["index", "name", "kind", "at", "engine", "dv_m_s", "dv_with_margin_m
             "entry_flight_path_angle_deg"]
 CHECK_CSV = ["check", "comparator", "expected", "tolerance", "actual", "unit", "passed"]
 MESSAGE_CSV = ["severity", "rule", "message"]
-CSV_COLUMNS = ["record", "source", *STEP_CSV, *CHECK_CSV, *MESSAGE_CSV]
+CSV_COLUMNS = ["record", "source", *STEP_CSV, *CHECK_CSV, *MESSAGE_CSV, "body"]
 
 
 def csv_cell(x) -> str | float:

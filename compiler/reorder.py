@@ -27,6 +27,7 @@ import numpy as np
 
 from .evaluate import Batch, Context, apply, context_for, start_batch
 from .state import dot, elements_from_state, frame, norm
+from .legs import in_phase, is_leg
 from .steps import Allow, Burn, Coast, Drop, Entry, Expect, Program, Transfer
 
 WORK_LIMIT = 500_000  # steps priced (one step on one partial order) per block
@@ -37,6 +38,8 @@ EXHAUSTIVE_NODES = WORK_LIMIT  # kept for the older benchmark
 
 
 def is_barrier(step) -> bool:
+    if is_leg(step):  # a reordering never crosses from one body to another
+        return True
     if getattr(step, "fixed", False):  # pinned by the plan with the `fixed` option
         return True
     if getattr(step, "movable", False):  # freed by the plan with `movable`
@@ -182,7 +185,7 @@ def search_block(program: Program, block: list[int], limit: int | None = None,
     final = program.with_steps([program.steps[i] for i in order])
     fin, ok = advance(final, start, ctx, block)
     original = _ordering(program, tuple(block), end)
-    if not ok[0] or not bool(same_orbit(fin, end, ctx.mu, True)[0]) or \
+    if not ok[0] or not bool(same_orbit(fin, end, in_phase(ctx, block[0]).mu, True)[0]) or \
             not fin.propellant[0] > end.propellant[0] + 1e-9:
         best = original
     else:
@@ -280,7 +283,7 @@ def _bnb(program: Program, ctx: Context, block: list[int], start: Batch, end: Ba
     valid = np.zeros(0, dtype=bool)
     best = original
     if complete:
-        valid = same_orbit(batch, end, ctx.mu, True) & batch.expect_ok
+        valid = same_orbit(batch, end, in_phase(ctx, block[0]).mu, True) & batch.expect_ok
         if valid.any():
             cand = np.nonzero(valid)[0]
             orders = _orders(parents, choices, cand)

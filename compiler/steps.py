@@ -292,5 +292,7 @@ class Program:
         From there on the conic may pass under the surface; None without an entry."""
         if not self.steps or not isinstance(self.steps[-1], Entry):
             return None
-        return max((i for i, s in enumerate(self.steps) if isinstance(s, Burn | Transfer)),
-                   default=-1)
+        # a leg starts the way down as a burn does: the arrival hyperbola may be aimed at
+        # the surface (a direct entry)
+        return max((i for i, s in enumerate(self.steps)
+                    if isinstance(s, Burn | Transfer) or s.kind == "leg"), default=-1)

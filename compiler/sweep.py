@@ -124,7 +124,7 @@ def locate(plan: ast.Plan, program: Program, target: str, span: Span | None = No
         if isinstance(st, ast.Setting) and st.key in ("margin", "reserve"):
             owners.setdefault("plan", {}).update(_fields_of(st))
         elif isinstance(st, ast.Start):
-            owners["start"] = st
+            owners.setdefault("start", st)  # the plan's own start (a leg's comes later)
         elif isinstance(st, ast.CraftDef):
             owners["craft"] = owners[st.name.text] = st
             for e in st.engines:

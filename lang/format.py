@@ -249,6 +249,12 @@ def _step_parts(stmt) -> _StepParts:
         return _StepParts("drop", name, "", False, stmt.mass.text(), _free(stmt))
     if isinstance(stmt, ast.Entry):
         return _StepParts("entry", name, "", False, f"at {_value(stmt.interface)}", "")
+    if isinstance(stmt, ast.Leg):
+        body = f"to {stmt.body.text}"
+        if stmt.depart is not None:
+            body += (f" vinf {stmt.depart.text()} to {stmt.arrive.text()} "
+                     f"for {stmt.duration.text()}")
+        return _StepParts("leg", name, "", False, body, "")
     if isinstance(stmt, ast.Allow):
         body = stmt.amount.text()
         if stmt.duration is not None:

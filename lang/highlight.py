@@ -40,10 +40,11 @@ from pygments.token import (
 GRAMMAR = Path(__file__).with_name("grammar.lark")
 # The statements: the words a line starts with (their order in the grammar).
 STATEMENTS = ("plan", "around", "body", "craft", "margin", "reserve", "ceiling", "epoch",
-              "start", "burn", "transfer", "coast", "drop", "entry", "allow", "expect", "trade")
+              "start", "burn", "transfer", "leg", "coast", "drop", "entry", "allow", "expect",
+              "trade")
 # Statements whose second word, when it is not a keyword, is the step's name.
 NAMED = ("burn", "transfer", "coast", "drop", "entry", "allow", "expect", "engine", "craft",
-         "body", "trade")
+         "body", "trade", "leg")
 
 
 @cache

@@ -272,6 +272,9 @@ def _slots() -> dict[str, Slot]:
         "drop": Slot("drop mass", "mass", POSITIVE),
         "allow": Slot("allowance", "speed", NOT_NEGATIVE),
         "allow.for": Slot("allowance duration", "time", POSITIVE),
+        "leg.depart": Slot("leg departure vinf", "speed", POSITIVE),
+        "leg.arrive": Slot("leg arrival vinf", "speed", POSITIVE),
+        "leg.for": Slot("leg time of flight", "time", POSITIVE),
     }
     checked = {"periapsis": ("length", ""), "apoapsis": ("length", ""),
                "circular": ("length", ""), "sma": ("length", ""),
@@ -391,7 +394,7 @@ _NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_-]*")
 EPOCH_SCALES = ("UTC", "TAI", "TT", "GPS", "TDB")
 
 LATER_KEYWORDS = frozenset({"c3", "elapsed", "velocity", "normal", "binormal", "transverse",
-                            "frame", "epoch", "trade"})
+                            "frame", "epoch", "leg", "trade"})
 
 
 def _named(name: ast.Name | None, role: str) -> ast.Name | None:
@@ -575,6 +578,9 @@ class _ToSyntax(Transformer):
 
     def goal(self, meta, children):
         kind = str(children[0])
+        if kind == "vinf" and isinstance(children[-1], Token) and str(children[-1]) == "leg":
+            # `vinf to leg`: the departure vinf of the plan's next leg (lowering finds it)
+            return ast.Goal(kind, ast.Name("leg", _token_span(children[-1])), _span(meta))
         value = children[-1] if isinstance(children[-1], ast.Quantity | ast.Distance) else None
         if value is not None:
             _checked(value, SLOTS[f"goal.{kind}"])
@@ -656,6 +662,16 @@ class _ToSyntax(Transformer):
     def allow(self, meta, children):
         name, amount, duration, options = children
         return ast.Allow(name, _checked(amount, SLOTS["allow"]), duration, options, _span(meta))
+
+    def leg(self, meta, children):
+        name, body, given = children
+        depart, arrive, duration = given if given is not None else (None, None, None)
+        return ast.Leg(name, _named(body, "a body"), depart, arrive, duration, _span(meta))
+
+    def leg_given(self, meta, children):
+        depart, arrive, duration = children
+        return (_checked(depart, SLOTS["leg.depart"]), _checked(arrive, SLOTS["leg.arrive"]),
+                _checked(duration, SLOTS["leg.for"]))
 
     def trade(self, meta, children):
         name, *items = children

@@ -277,6 +277,18 @@ class Entry:
 
 
 @dataclass(frozen=True)
+class Leg:
+    """``leg NAME to BODY [vinf V1 to V2 for T]``: a patched-conic leg to another body."""
+
+    name: Name | None
+    body: Name
+    depart: Quantity | None  # given departure hyperbolic excess speed
+    arrive: Quantity | None  # given arrival hyperbolic excess speed
+    duration: Quantity | None  # given time of flight
+    span: Span
+
+
+@dataclass(frozen=True)
 class TradeWord:
     """One token of a trade item as written: a word, a NAME.FIELD target, a number or a
     LOW..HIGH range."""
@@ -307,9 +319,9 @@ class Trade:
 
 Statement = (
     PlanTitle | Around | BodyDef | CraftDef | Setting | Epoch | Start | Burn | Transfer | Coast
-    | Drop | Expect | Allow | Entry | Trade
+    | Drop | Expect | Allow | Entry | Leg | Trade
 )
-STEP_TYPES = (Burn, Transfer, Coast, Drop, Expect, Allow, Entry)
+STEP_TYPES = (Burn, Transfer, Coast, Drop, Expect, Allow, Entry, Leg)
 
 
 @dataclass(frozen=True)

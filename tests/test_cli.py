@@ -126,7 +126,7 @@ def test_json_has_the_contract_keys(capsys, sample):
         assert CONTRACT["vector"] <= set(s["vector_m_s"])
         assert CONTRACT["orbit"] <= set(s["orbit_after"])
         assert s["index"] == i
-        assert s["kind"] in {"burn", "coast", "drop", "expect", "allow", "entry"}
+        assert s["kind"] in {"burn", "coast", "drop", "expect", "allow", "entry", "leg"}
     assert isinstance(rep["findings"], list)
     for f in rep["findings"]:
         assert CONTRACT["finding"] <= set(f)

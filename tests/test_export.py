@@ -308,3 +308,17 @@ def test_read_back_on_the_command_line(tmp_path, capsys):
     assert main(["export", "--read", str(broken)]) == 2
     err = capsys.readouterr().err
     assert "X_SPEED" in err and "line" in err
+
+
+def test_a_plan_with_a_leg_is_refused_at_the_leg(tmp_path, capsys):
+    """An OPM has one centre; a plan that changes body is refused, located at its leg."""
+    text = (SAMPLES / "venus-courier.aps").read_text()
+    plan = tmp_path / "venus.aps"
+    plan.write_text(re.sub(r"(?m)^start ", EPOCH + "\nstart ", text, count=1))
+    assert main(["run", str(plan)]) == 0
+    capsys.readouterr()
+    assert main(["export", str(plan)]) == 2
+    err = capsys.readouterr().err
+    line = next(k for k, ln in enumerate(plan.read_text().splitlines(), 1)
+                if ln.startswith("leg "))
+    assert f"{plan}:{line}:1: error: an OPM has one central body" in err

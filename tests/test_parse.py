@@ -307,8 +307,8 @@ def test_keyword_sets():
     assert {"apoapsis", "periapsis", "node", "ascending", "within", "least", "j2"} <= words
     assert not words & {"km", "m/s", "%", "{", ":"}
     assert statement_keywords() == ("plan", "around", "body", "craft", "margin", "reserve",
-                                    "ceiling", "epoch", "start", "burn", "transfer", "coast",
-                                    "drop", "entry", "allow", "expect", "trade")
+                                    "ceiling", "epoch", "start", "burn", "transfer", "leg",
+                                    "coast", "drop", "entry", "allow", "expect", "trade")
 
 
 def test_the_quantities_parsed_convert_to_internal_units():

@@ -95,7 +95,7 @@ def cancelling_burns(c: Checker) -> list[Finding]:
     for i, a, b in _same_point_pairs(c):
         before = c.rows_of(i - 1)[-1].after if i > 0 else start_batch(c.program)
         after = c.rows_of(i + 1)[-1].after
-        if not bool(same_orbit(after, before, c.program.body.gm, True)[0]):
+        if not bool(same_orbit(after, before, c.body_at(i).gm, True)[0]):
             continue
         proposals.append((c.rewrite({i: [], i + 1: []}), lambda proof, a=a, b=b: c.finding(
             "cancelling-burns", "warning", (a.name, b.name),
@@ -159,16 +159,20 @@ def long_burn(c: Checker) -> list[Finding]:
     the size of a usual margin.
     """
     out = []
-    mu = c.program.body.gm
     rows = [row for row in c.result.rows
             if row.kind == "burn" and row.burn_time is not None and row.v_before is not None
             and float(row.burn_time[0]) > 0]
     if not rows:
         return out
-    stack = lambda get: np.concatenate([get(row) for row in rows])
-    # every burn of the plan in one batch: one pass through Kepler's equation
-    arcs, oks = burn_arc(stack(lambda w: w.after.r), stack(lambda w: w.v_before),
-                         stack(lambda w: w.after.v), mu, stack(lambda w: w.burn_time))
+    arcs, oks = np.zeros(len(rows)), np.zeros(len(rows), dtype=bool)
+    mus = np.array([c.body_at(row.step).gm for row in rows])
+    for mu in np.unique(mus):  # one body, or one per phase of a plan with legs
+        own = np.flatnonzero(mus == mu)
+        stack = lambda get: np.concatenate([get(rows[k]) for k in own])
+        # every burn around this body in one batch: one pass through Kepler's equation
+        arcs[own], oks[own] = burn_arc(stack(lambda w: w.after.r), stack(lambda w: w.v_before),
+                                       stack(lambda w: w.after.v), mu,
+                                       stack(lambda w: w.burn_time))
     for row, arc_rad, ok in zip(rows, arcs, oks):
         burn_time = float(row.burn_time[0])
         arc = float(np.degrees(arc_rad))

@@ -78,13 +78,16 @@ def beyond_sphere_of_influence(c: Checker) -> list[Finding]:
     escape that coasts out, a burn flown out there), and where it leaves a bound orbit
     whose apoapsis passes it.
     """
-    body = c.program.body
-    if body.soi is None:
-        return []
-    soi, mu = body.soi, body.gm
     out = []
     before = start_batch(c.program).r
     for row in c.result.rows:
+        body = c.body_at(row.step)  # after a leg: the arrival body, as its state is
+        if row.kind == "leg":  # the state before it is around the body it leaves
+            before = row.after.r
+        if body.soi is None:
+            before = row.after.r
+            continue
+        soi, mu = body.soi, body.gm
         far = float(max(norm(before)[0], norm(row.after.r)[0]))
         before = row.after.r
         el = elements_from_state(row.after.r, row.after.v, mu)

@@ -107,7 +107,7 @@ def _candidates(c: Checker, i: int, node, speed: float) -> tuple[list, int, int]
     rest = [g for g in node.goals if g.kind not in PLANE_GOALS]
     remaining = [with_goals(node, rest)] if rest else []
     name = c.program.steps[i].name
-    mu = c.program.body.gm
+    mu = c.body_at(i).gm
     block = _block_of(c, i)
     points = []  # (least speed on the orbit there, distance from i, slot, after it)
     for slot, after in [(k, False) for k in block] + [(block[-1], True)]:

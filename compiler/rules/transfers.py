@@ -31,22 +31,22 @@ def _distance(alt_km: float, span: Span) -> ast.Distance:
     return ast.Distance(q, False, span)
 
 
-def apoapsis_bound(c: Checker) -> tuple[float, str]:
-    """Highest apoapsis radius (km) a detour may use, and why."""
-    body = c.program.body
+def apoapsis_bound(c: Checker, i: int = 0) -> tuple[float, str]:
+    """Highest apoapsis radius (km) a detour from step ``i`` may use, and why."""
+    body = c.body_at(i)
     if body.soi is not None:
         bound, why = 0.95 * body.soi, f"95 % of {body.name}'s sphere of influence"
     else:
         bound, why = (100.0 * body.radius,
                       f"100 body radii ({body.name} has no sphere of influence set)")
-    ceiling = c.program.ceiling
-    if ceiling is not None and ceiling < bound:
+    ceiling = c.program.ceiling  # a radius around the plan's first body
+    if ceiling is not None and body is c.program.body and ceiling < bound:
         bound, why = ceiling, f"the plan's ceiling of {ceiling - body.radius:g} km altitude"
     return bound, why
 
 
 def best_apoapsis(c: Checker, build, low: float, high: float,
-                  rule_name: str = "") -> Proof | None:
+                  rule_name: str = "", i: int = 0) -> Proof | None:
     """The cheapest proven plan over apoapsis radii in [low, high] (km).
 
     ``build(alt_km)`` gives the rewrite for an apoapsis altitude (whole km).  A
@@ -56,7 +56,7 @@ def best_apoapsis(c: Checker, build, low: float, high: float,
     """
     if not high > low:
         return None
-    radius = c.program.body.radius
+    radius = c.body_at(i).radius
     cache: dict[int, Proof | None] = {}
     alt_of = lambda log_r: round(math.exp(log_r) - radius)
 
@@ -97,7 +97,7 @@ def _bi_elliptic_room(c: Checker, i: int, step: Transfer, bound: float) -> float
     h0 = np.cross(first.after.r[0], first.v_before[0])
     h1 = np.cross(rows[-1].after.r[0], rows[-1].after.v[0])
     theta = float(np.arctan2(np.linalg.norm(np.cross(h0, h1)), np.dot(h0, h1)))
-    least = bi_elliptic_lower_bound(c.program.body.gm, r0, v0, step.radius, theta,
+    least = bi_elliptic_lower_bound(c.body_at(i).gm, r0, v0, step.radius, theta,
                                     1.05 * step.radius, bound)
     own = sum(float(r.dv[0]) for r in rows)
     return (own - least) * (1.0 + step.margin) * 1000.0
@@ -107,7 +107,7 @@ def _never_pays(c: Checker, i: int, target: float) -> bool:
     """From a circular orbit to a circular one in the same plane, a bi-elliptic transfer
     never beats Hohmann's below a radius ratio of 11.94, whatever its apoapsis."""
     before = c.state_before(i)
-    el = elements_from_state(before.r, before.v, c.program.body.gm)
+    el = elements_from_state(before.r, before.v, c.body_at(i).gm)
     if not el.ecc[0] < 1e-6:
         return False
     r0 = float(np.linalg.norm(before.r[0]))
@@ -126,10 +126,10 @@ def bi_elliptic_cheaper(c: Checker) -> list[Finding]:
     reports the best; it costs far more time in flight, which the finding shows.
     """
     out = []
-    bound, why = apoapsis_bound(c)
     for i, step in enumerate(c.program.steps):
         if not (isinstance(step, Transfer) and step.form == "hohmann"):
             continue
+        bound, why = apoapsis_bound(c, i)
         if not step.changes_plane and _never_pays(c, i, step.radius):
             c.budget.pruned += 1
             continue
@@ -142,7 +142,7 @@ def bi_elliptic_cheaper(c: Checker) -> list[Finding]:
         low = 1.05 * step.radius
         proof = best_apoapsis(
             c, lambda alt, i=i, node=node: c.rewrite({i: [_with_via(node, alt)]}),
-            low, bound, "bi-elliptic-cheaper")
+            low, bound, "bi-elliptic-cheaper", i)
         if proof is None:
             continue
         extra = float(proof.result.final.t[0] - c.result.final.t[0])
@@ -151,7 +151,7 @@ def bi_elliptic_cheaper(c: Checker) -> list[Finding]:
             f"{step.name} as a bi-elliptic transfer saves {saving_text(proof)}, "
             f"for {extra / 86400:.1f} more days in flight", proof,
             notes=(f"intermediate apoapsis searched up to {why}",
-                   far_note(c, proof, step.name))))
+                   far_note(c, proof, step.name, i))))
     return out
 
 
@@ -159,12 +159,12 @@ def _extra_time(c: Checker, proof: Proof) -> str:
     return duration(max(float(proof.result.final.t[0] - c.result.final.t[0]), 0.0))
 
 
-def far_note(c: Checker, proof: Proof, name: str) -> str:
+def far_note(c: Checker, proof: Proof, name: str, i: int = 0) -> str:
     """How far a rewritten transfer's burns reach, against the sphere of influence and
     the orbits of the body's moons (which the two-body estimate leaves out)."""
     far = max(float(norm(r.after.r)[0]) for r in proof.result.rows
               if r.name.startswith(f"{name}/"))
-    body = c.program.body
+    body = c.body_at(i)
     text = f"the detour reaches {far:,.0f} km from {body.name}'s centre"
     if body.soi is not None:
         text += f", {100 * far / body.soi:.0f} % of its sphere of influence ({body.soi:,.0f} km)"
@@ -214,17 +214,17 @@ def three_burn_plane_change(c: Checker) -> list[Finding]:
     reports the cheapest detour as `transfer NAME: inclination to I via apoapsis A`.
     """
     out = []
-    bound, why = apoapsis_bound(c)
     for i, step in enumerate(c.program.steps):
         if not (isinstance(step, Burn) and step.vector is None and step.changes_plane
                 and not step.changes_shape):
             continue
+        bound, why = apoapsis_bound(c, i)
         node = c.statements[i]
         row = c.rows_of(i)[0]
         r = float(np.linalg.norm(row.after.r[0]))
         theta = plane_angle(row.after.r[0], row.v_before[0], row.after.v[0])
         speed = float(np.linalg.norm(row.v_before[0]))
-        least = detour_lower_bound(c.program.body.gm, r, speed, theta, 1.1 * r, bound)
+        least = detour_lower_bound(c.body_at(i).gm, r, speed, theta, 1.1 * r, bound)
         if not c.can_pay("three-burn-plane-change",
                          (float(row.dv[0]) - least) * (1.0 + row.margin) * 1000.0):
             continue  # below the break-even angle here: no apoapsis makes it pay
@@ -239,13 +239,13 @@ def three_burn_plane_change(c: Checker) -> list[Finding]:
                              node.options, node.span)
             return c.rewrite({i: [t]})
 
-        proof = best_apoapsis(c, build, 1.1 * r, bound, "three-burn-plane-change")
+        proof = best_apoapsis(c, build, 1.1 * r, bound, "three-burn-plane-change", i)
         if proof is None:
             continue
         out.append(c.finding(
             "three-burn-plane-change", "warning", (step.name,),
             f"{step.name} as a three-burn plane change through a raised apoapsis saves "
             f"{saving_text(proof)}, for {_extra_time(c, proof)} more in flight", proof,
-            notes=(f"apoapsis searched up to {why}", far_note(c, proof, step.name),
+            notes=(f"apoapsis searched up to {why}", far_note(c, proof, step.name, i),
                    f"the detour's burns are reported as {step.name}/1 to {step.name}/3")))
     return out
