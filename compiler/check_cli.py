@@ -22,7 +22,9 @@ def register(sub) -> None:
     chk = sub.add_parser("check", help="check expectations and look for cheaper plans")
     chk.add_argument("plans", nargs="+", metavar="PLAN", help="plan files (.aps); `-` reads "
                      "standard input")
-    chk.add_argument("--format", choices=("table", "json", "markdown", "csv"), default="table")
+    chk.add_argument("--format", choices=("table", "json", "markdown", "csv", "sarif"),
+                     default="table", help="sarif: SARIF 2.1.0 for code-review tools "
+                     "(docs/review.md)")
     chk.add_argument("--fail-on", choices=SEVERITIES, default="error",
                      help="exit 1 when a finding is at least this severe (default: error)")
     chk.add_argument("--min-saving", default=None, metavar="AMOUNT",
@@ -167,6 +169,14 @@ def cmd_check(args) -> int:
         sys.stdout.write(markdown(reports))
     elif args.format == "csv":
         sys.stdout.write(to_csv(reports))
+    elif args.format == "sarif":
+        import json
+
+        from .cli import version
+        from .sarif import to_sarif
+
+        sys.stdout.write(json.dumps(to_sarif(reports, version()), indent=2,
+                                    allow_nan=False) + "\n")
     else:
         table(reports, _console(), silenced)
     if args.write_suggestion and reports[0][1] is not None:
@@ -261,7 +271,6 @@ def _saving(f) -> str:
 def table(reports, console, silenced: dict | None = None) -> None:
     from rich.markup import escape
     from rich.padding import Padding
-    from rich.syntax import Syntax
     from rich.text import Text
 
     for path, program, findings, err in reports:
@@ -280,8 +289,10 @@ def table(reports, console, silenced: dict | None = None) -> None:
             console.print(Padding(Text(f.message), (0, 0, 0, 4)), highlight=False)
             for note in f.notes:  # prose wraps under its own indent, not at column 0
                 console.print(Padding(Text(f"note: {note}"), (0, 0, 0, 4)), highlight=False)
-            if f.diff:
-                console.print(Syntax(f.diff, "diff", theme="ansi_dark", background_color="default"))
+            if f.diff:  # plan text coloured as plan text (lang/highlight.py)
+                from apsidal.lang.highlight import rich_diff
+
+                console.print(rich_diff(f.diff), highlight=False)
         console.print()
     n = sum(len(fs) for _, _, fs, _ in reports)
     quiet = sum((silenced or {}).values())

@@ -195,13 +195,16 @@ def build_parser(command: str | None = None) -> Parser:
     bod = sub.add_parser("bodies", help="list the body catalogue and its sources")
     bod.set_defaults(func=cmd_bodies)
     if command != "run":
-        from . import check_cli, picture_cli, review_cli, size_cli, sweep_cli
+        from . import (check_cli, export_cli, lsp_cli, picture_cli, review_cli, size_cli,
+                       sweep_cli)
 
         check_cli.register(sub)
         review_cli.register(sub)
         size_cli.register(sub)
         sweep_cli.register(sub)
         picture_cli.register(sub)
+        export_cli.register(sub)
+        lsp_cli.register(sub)
     p.commands = dict(sub.choices)
     return p
 

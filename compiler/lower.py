@@ -119,7 +119,7 @@ class Lowerer:
                     continue
                 legs.after_leg(st, leg, self.arrivals.get(id(leg)))
             key = {ast.PlanTitle: "plan", ast.Around: "around", ast.CraftDef: "craft",
-                   ast.Start: "start"}.get(type(st))
+                   ast.Start: "start", ast.Epoch: "epoch"}.get(type(st))
             if isinstance(st, ast.Setting):
                 key = st.key
             if key is not None:

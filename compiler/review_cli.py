@@ -8,6 +8,7 @@ not parse, a revision or file git does not have); 70 an internal error of ours.
 
 from __future__ import annotations
 
+import os
 import re
 import sys
 from dataclasses import dataclass, field
@@ -32,6 +33,8 @@ def register(sub) -> None:
                       "diff and exit 1 when a file is not in canonical layout")
     mode.add_argument("--write", action="store_true", help="rewrite files in place "
                       "(atomically) when their layout is not canonical")
+    mode.add_argument("--diff", action="store_true", help="change nothing; print a unified "
+                      "diff of what --write would change (exit 0)")
     fmt.set_defaults(func=cmd_fmt)
 
     d = sub.add_parser("diff", help="show what a revision did to the budget",
@@ -128,19 +131,24 @@ def _fmt_one(path: str, args, report: FmtReport, header: bool) -> None:
               "bug in apsidal, please report it with the plan", file=sys.stderr)
         report.internal.append(path)
         return
-    if not (args.check or args.write):
+    if not (args.check or args.write or args.diff):
         if header:
             sys.stdout.write(f"# ==> {path} <==\n")
         sys.stdout.write(formatted)
     if formatted == original:
         report.unchanged.append(path)
         return
-    if args.check:
+    if args.check or args.diff:
         import difflib
 
-        sys.stdout.writelines(difflib.unified_diff(
+        diff = "".join(difflib.unified_diff(
             original.splitlines(keepends=True), formatted.splitlines(keepends=True),
             fromfile=path, tofile=f"{path} (formatted)"))
+        if sys.stdout.isatty() and not os.environ.get("NO_COLOR"):  # plain to a pipe
+            from apsidal.lang.highlight import ansi_diff
+
+            diff = ansi_diff(diff)
+        sys.stdout.write(diff)
     elif args.write:
         try:
             write_atomic(path, formatted)

@@ -189,6 +189,8 @@ def _scene_line(stmt) -> str:
         if stmt.key == "drift":
             return f"drift at most {_value(stmt.value)}"
         return f"{stmt.key} {'radius ' if stmt.is_radius else ''}{stmt.value.text()}"
+    if isinstance(stmt, ast.Epoch):
+        return f"epoch {stmt.timestamp} {stmt.scale}"
     if isinstance(stmt, ast.Start):
         return " ".join(["start" if stmt.form == "circular" else "start orbit",
                          *(_field(f) for f in stmt.fields)])
@@ -322,7 +324,7 @@ class _Block:
 
 SECTION = {ast.PlanTitle: "title", ast.Around: "around", ast.BodyDef: "body",
            ast.CraftDef: "craft", ast.Setting: "settings", ast.Start: "start",
-           ast.Trade: "trades"}
+           ast.Epoch: "start", ast.Trade: "trades"}
 
 
 def _section(stmt) -> str:

@@ -392,9 +392,12 @@ _NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_-]*")
 # Keywords that came after plans could use them as names (`coast c3 for 2 h`): they may
 # still name things, since no name stands where they do; only an `expect` step cannot be
 # named after one of its checks (`expect c3 ...` reads the check).
+# The time scales an `epoch` may be given in (CCSDS time system names).
+EPOCH_SCALES = ("UTC", "TAI", "TT", "GPS", "TDB")
+
 LATER_KEYWORDS = frozenset({"c3", "elapsed", "velocity", "normal", "binormal", "transverse",
                             "frame", "burns", "steering", "gravity", "drift",
-                            "sun-synchronous", "leg", "trade"})
+                            "sun-synchronous", "epoch", "leg", "trade"})
 
 
 def _named(name: ast.Name | None, role: str) -> ast.Name | None:
@@ -492,6 +495,29 @@ class _ToSyntax(Transformer):
 
     def plan_title(self, meta, children):
         return ast.PlanTitle(str(children[0])[1:-1], _span(meta))
+
+    def epoch(self, meta, children):
+        """`epoch 2027-03-01T00:00:00 UTC`: a real date and time, and its time scale."""
+        import datetime
+
+        stamp, scale = children
+        try:
+            datetime.datetime.fromisoformat(str(stamp))
+        except ValueError:
+            raise PlanError(f"`{stamp}` is not a date and time", _token_span(stamp),
+                            hint="write it as YEAR-MONTH-DAYTHOUR:MINUTE:SECOND, e.g. "
+                                 "`epoch 2027-03-01T00:00:00 UTC`") from None
+        if scale is None:
+            raise PlanError("the epoch needs its time scale", _token_span(stamp),
+                            hint=f"add one of {', '.join(EPOCH_SCALES)} after it, e.g. "
+                                 f"`epoch {stamp} UTC`")
+        if str(scale) not in EPOCH_SCALES:
+            guess = did_you_mean(str(scale), EPOCH_SCALES)
+            raise PlanError(f"`{scale}` is not a time scale apsidal knows",
+                            _token_span(scale),
+                            hint=(f"did you mean `{guess}`? " if guess else "")
+                            + f"the scales are {', '.join(EPOCH_SCALES)}")
+        return ast.Epoch(str(stamp), str(scale), _span(meta))
 
     def around(self, meta, children):
         return ast.Around(_named(children[0], "a body"), _span(meta))
@@ -925,6 +951,7 @@ def _expected(accepts: set[str], stack: list) -> str:
     described = {"NUMBER": "a number",
                  "WORD": "a unit" if _after_number(stack) else "a name",
                  "STRING": "a title in double quotes",
+                 "TIMESTAMP": "a date and time such as `2027-03-01T00:00:00`",
                  "_NL": "end of line"}
     words += [text for name, text in described.items() if name in accepts]
     if "$END" in accepts and not words:

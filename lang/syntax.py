@@ -192,6 +192,16 @@ class Setting:
 
 
 @dataclass(frozen=True)
+class Epoch:
+    """``epoch 2027-03-01T00:00:00 UTC``: the date and time of the start orbit, in a
+    time scale (what `apsidal export` writes as the epoch of the state)."""
+
+    timestamp: str  # ISO 8601 as written, without a zone: `2027-03-01T00:00:00`
+    scale: str  # UTC | TAI | TT | GPS | TDB
+    span: Span
+
+
+@dataclass(frozen=True)
 class Start:
     """``start circular ...`` or ``start orbit ...``: the orbit the plan starts in."""
 
@@ -322,8 +332,8 @@ class Trade:
 
 
 Statement = (
-    PlanTitle | Around | BodyDef | CraftDef | Setting | Start | Burn | Transfer | Coast | Drop
-    | Expect | Allow | Entry | Leg | Trade
+    PlanTitle | Around | BodyDef | CraftDef | Setting | Epoch | Start | Burn | Transfer | Coast
+    | Drop | Expect | Allow | Entry | Leg | Trade
 )
 STEP_TYPES = (Burn, Transfer, Coast, Drop, Expect, Allow, Entry, Leg)
 

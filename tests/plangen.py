@@ -123,6 +123,11 @@ def _scene(draw, d: Draft) -> tuple[Orbit, list[str]]:
         scene.append(Statement(["margin", q(draw(numbers(0, 10, 1)), "%")]))
     if draw(st.booleans()):
         scene.append(Statement(["reserve", q(draw(numbers(0, 50, 1)), "m/s")]))
+    if draw(st.booleans()):  # the date of the start (`apsidal export`)
+        day = draw(st.dates()).isoformat()
+        clock = draw(st.sampled_from(("00:00:00", "12:30:05.250", "23:59:59.9")))
+        scene.append(Statement(["epoch", f"{day}T{clock}",
+                                draw(st.sampled_from(("UTC", "TAI", "TT", "GPS", "TDB")))]))
     d.statements += draw(st.permutations(scene))
     inc = float(draw(numbers(0, 60, 1)))
     angles = [w for k in ("raan", "argp") if draw(st.booleans())

@@ -576,6 +576,19 @@ CASES = [
         ("drift at most must be positive",), "greater than zero"),
     Bad("drift-limit-in-point-mass", plan(head=HEAD + "drift at most 30 d\n"), 9, 1,
         "drift at most", ("this plan flies the point-mass model",), "`gravity j2`"),
+    # --- the epoch (docs/export.md) ------------------------------------------------------
+    Bad("epoch-not-a-date", plan(start="epoch 2027-02-30T00:00:00 UTC\n" + START), 9, 7,
+        "2027-02-30", ("`2027-02-30T00:00:00` is not a date and time",),
+        "`epoch 2027-03-01T00:00:00 UTC`"),
+    Bad("epoch-without-scale", plan(start="epoch 2027-02-03T00:00:00\n" + START), 9, 7,
+        "2027-02-03", ("the epoch needs its time scale",), "`epoch 2027-02-03T00:00:00 UTC`"),
+    Bad("epoch-unknown-scale", plan(start="epoch 2027-02-03T00:00:00 UTX\n" + START), 9, 27,
+        "UTX", ("`UTX` is not a time scale",), "did you mean `UTC`?"),
+    Bad("epoch-date-only", plan(start="epoch 2027-02-03 UTC\n" + START), 9, 7, "2027",
+        ("unexpected number `2027`",), "a date and time such as `2027-03-01T00:00:00`"),
+    Bad("epoch-given-twice", plan(start="epoch 2027-02-03T00:00:00 UTC\n"
+                                        "epoch 2027-02-04T00:00:00 UTC\n" + START), 10, 1,
+        "epoch", ("`epoch` is given twice",), "the first is on line 9"),
 ]
 
 assert len(CASES) >= 30

@@ -307,8 +307,9 @@ def test_keyword_sets():
     assert {"apoapsis", "periapsis", "node", "ascending", "within", "least", "j2"} <= words
     assert not words & {"km", "m/s", "%", "{", ":"}
     assert statement_keywords() == ("plan", "around", "body", "craft", "burns", "steering",
-                                    "gravity", "margin", "reserve", "ceiling", "drift", "start",
-                                    "burn", "transfer", "leg", "coast", "drop", "entry", "allow", "expect", "trade")
+                                    "gravity", "margin", "reserve", "ceiling", "drift", "epoch",
+                                    "start", "burn", "transfer", "leg", "coast", "drop",
+                                    "entry", "allow", "expect", "trade")
 
 
 def test_the_quantities_parsed_convert_to_internal_units():
