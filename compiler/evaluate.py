@@ -172,6 +172,9 @@ class Row:
     r_impulse: np.ndarray | None = None  # (B, 3) and where it stood: the impulse point
     finite_goal: str | None = None
     spec: Burn | None = None
+    # (B, 6) under `gravity j2`: r and v at the end of the thrust arc before the secular
+    # drift of its second half is added (the goals are checked there; finite_price.py)
+    arc_end: np.ndarray | None = None
 
     def take(self, idx, step: int | None = None) -> Row:
         """The row for the batch elements ``idx`` (a slice or index array keeps the
@@ -188,7 +191,7 @@ class Row:
 
 _ROW_ARRAYS = ("dv_vec", "dv", "dv_margin", "propellant", "burn_time", "coast_time",
                "duration", "v_before", "covered", "dv_impulsive", "finite_time", "finite_arc",
-               "v_impulsive", "r_impulse")
+               "v_impulsive", "r_impulse", "arc_end")
 
 
 @dataclass(frozen=True)
@@ -747,7 +750,7 @@ def _merge_rows(a: Row, b: Row, take_a: np.ndarray) -> Row:
                covered=pick(a.covered, b.covered), frame=a.frame,
                **{f: pick(getattr(a, f), getattr(b, f))
                   for f in ("dv_impulsive", "finite_time", "finite_arc", "v_impulsive",
-                            "r_impulse")},
+                            "r_impulse", "arc_end")},
                finite_goal=a.finite_goal, spec=a.spec)
 
 

@@ -81,14 +81,21 @@ def price_finite(batch, out, engine: EngineSpec, margin: float, ctx, fails: Fail
                    axis=-1) * scale[:, None]
     r_end = np.where(ok[:, None], fb.r_end, out.r)
     v_end = np.where(ok[:, None], fb.v_end, out.v_before)
-    _check_surface(r_end, v_end, ctx, fails, name)
     length = np.where(ok, fb.length, 0.0)
+    arc_end = None
+    if ctx.drift is not None:
+        # under `gravity j2` the coast drifted to the impulse point; the arc's second
+        # half, flown two-body, adds its own T/2 of secular drift (the first half is the
+        # coast's, run back two-body to start the arc and flown again)
+        arc_end = np.concatenate([r_end, v_end], axis=-1)
+        r_end, v_end = ctx.drift.secular(r_end, v_end, 0.5 * length)
+    _check_surface(r_end, v_end, ctx, fails, name)
     new = Batch(r=r_end, v=v_end, mass=batch.mass - need, propellant=batch.propellant - need,
                 t=batch.t + out.coast + 0.5 * length, dv=batch.dv + dv,
                 dv_margin=batch.dv_margin + dvm, expect_ok=batch.expect_ok)
     extra = dict(dv_impulsive=dv_imp, finite_time=length,
                  finite_arc=np.where(ok, fb.arc, 0.0), v_impulsive=out.v_after, r_impulse=out.r,
-                 finite_goal=goal, spec=step)
+                 finite_goal=goal, spec=step, arc_end=arc_end)
     return new, vec, dv, dvm, need, burn_time, covered, extra
 
 
@@ -108,6 +115,8 @@ def goal_checks(row, mu: float, radius: float) -> list:
     if spec is None or spec.vector is not None or row.dv_impulsive is None:
         return []
     r0, v0, r1, v1 = row.r_impulse, row.v_impulsive, row.after.r, row.after.v
+    if row.arc_end is not None:  # under J2: the arc's end before its half's drift
+        r1, v1 = row.arc_end[:, :3], row.arc_end[:, 3:]
     want, got = elements_from_state(r0, v0, mu), elements_from_state(r1, v1, mu)
     out = []
 

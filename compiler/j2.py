@@ -176,6 +176,21 @@ class Drift:
         r1, v1 = self.turn(r1, v1, rates.raan * dt, rates.argp * dt)
         return r1, v1, ok
 
+    def secular(self, r, v, dt, rates: Rates | None = None):
+        """The secular drift alone over ``dt`` seconds: the state moved by what a J2
+        coast of ``dt`` adds to two-body motion (the mean motion's excess, n_bar / n - 1
+        of ``dt`` along the orbit, either way, and the turns of the apse and node lines),
+        for an arc flown two-body over that time (a finite burn's thrust arc).  Open
+        orbits are returned as they are; returns (r1, v1)."""
+        rates = self.rates(r, v) if rates is None else rates
+        dt = np.asarray(dt, float) * np.ones(r.shape[0])
+        extra = dt * (rates.time_scale - 1.0)  # two-body seconds, of either sign
+        sign = np.where(extra < 0, -1.0, 1.0)[:, None]
+        r1, v1, ok = kepler.propagate(r, v * sign, self.mu, np.abs(extra))
+        keep = (~rates.closed | ~ok)[:, None]
+        r1, v1 = np.where(keep, r, r1), np.where(keep, v, v1 * sign)
+        return self.turn(r1, v1, rates.raan * dt, rates.argp * dt)
+
     def whole_revs(self, r, v, revs: float, rates: Rates | None = None):
         """``revs`` anomalistic periods (2 pi / n_bar: from one periapsis to the next of
         the drifting orbit); (r1, v1, seconds, ok).  Whole revolutions bring the craft to

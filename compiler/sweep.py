@@ -271,7 +271,7 @@ _SKIP = {"span", "source", "plan", "start_span", "body", "name", "kind", "shown"
 
 def leaves(obj, path: tuple = ()) -> Iterator[tuple[tuple, object]]:
     """Every number of a lowered program with its path (attribute names and indices)."""
-    if obj is None or isinstance(obj, bool | str):
+    if obj is None or isinstance(obj, bool | str | Span):  # a place in the text, any name
         return
     if isinstance(obj, int | float):
         yield path, float(obj)
