@@ -114,6 +114,7 @@ class Maneuver:
     dv: tuple[float, float, float]
     name: str = ""
     kind: str = "burn"  # burn | drop
+    engine: str = ""  # the engine, where not the craft's default (said in the comment)
 
     @property
     def impulse(self) -> datetime:
@@ -157,7 +158,7 @@ def build(program, result, ref_frame: str | None = None, object_id: str = "UNKNO
     (duration 0, ignition at the impulse) instead of a finite burn centred on it."""
     from apsidal.lang import syntax as ast
 
-    from .budget import CAUTION
+    from .budget import caution
     from .state import elements_from_state
 
     epoch_st = next((s for s in program.plan.statements if isinstance(s, ast.Epoch)), None)
@@ -171,6 +172,15 @@ def build(program, result, ref_frame: str | None = None, object_id: str = "UNKNO
                           f"`{leg.name}`: export the phase before it, as a plan of its own "
                           "that ends there, and the arrival as another that starts on its "
                           "hyperbola", getattr(leg, "span", None))
+    finite_burns = program.burns == "finite"
+    if finite_burns and impulsive:
+        raise ExportError("this plan prices its burns finite (`burns finite`): a message of "
+                          "impulsive manoeuvres would not be the plan it priced (an impulse "
+                          "of the finite delta-v overshoots each goal by the gravity loss); "
+                          "export without --impulsive, or remove `burns finite` to price "
+                          "and export the plan impulsive",
+                          next((st.span for st in program.plan.statements
+                                if isinstance(st, ast.Setting) and st.key == "burns"), None))
     body = program.body.name.lower()
     frame = ref_frame or REF_FRAMES.get(body)
     if frame is None:
@@ -197,24 +207,37 @@ def build(program, result, ref_frame: str | None = None, object_id: str = "UNKNO
                   "ARG_OF_PERICENTER": deg(el.argp) % 360.0,
                   "TRUE_ANOMALY": deg(el.anomaly) % 360.0, "GM": float(mu)},
         mass=float(program.craft.dry + program.craft.propellant),
-        comments=[program.title or "apsidal plan", *_wrap(CAUTION),
-                  ("Burns are impulsive (duration 0, ignition at the impulse)" if impulsive else
-                   "Ignition is centred on the impulse of the two-body estimate")
-                  + "; the delta",
-                  "mass is the budget's propellant, margin included; no leap seconds are",
-                  "inserted."],
+        comments=[program.title or "apsidal plan", *_wrap(caution(program)),
+                  *(_wrap(FINITE_NOTE) if finite_burns else
+                    [("Burns are impulsive (duration 0, ignition at the impulse)" if impulsive
+                      else "Ignition is centred on the impulse of the two-body estimate")
+                     + "; the delta",
+                     "mass is the budget's propellant, margin included; no leap seconds are",
+                     "inserted."])],
     )
+    if program.gravity == "j2":
+        opm.comments += _wrap(J2_NOTE)
     mass = opm.mass
     from .frames import components
 
     for row in result.rows:
         after = float(row.after.mass[0])
         t = epoch + timedelta(seconds=float(row.after.t[0]))
-        if row.kind == "burn":
+        if row.kind == "burn" and row.dv_impulsive is not None:
+            # flown finite: the thrust arc the chain flew, centred on the impulse point
+            # (the row's time is the arc's end), its delta-v along the impulsive burn's
+            duration = float(row.finite_time[0])
+            t = t - timedelta(seconds=duration / 2.0)
+            imp = float(row.dv_impulsive[0])
+            change = (row.v_impulsive[:1] - row.v_before[:1]) * (
+                float(row.dv[0]) / imp if imp > 0 else 0.0)
+            dv = components("rtn", row.r_impulse[:1], row.v_before[:1], change)[0]
+        elif row.kind == "burn":
             dv = components("rtn", row.after.r[:1], row.v_before[:1],
                             row.after.v[:1] - row.v_before[:1])[0]
             duration = float(row.burn_time[0]) if row.burn_time is not None else 0.0
             duration = 0.0 if impulsive else duration
+        if row.kind == "burn":
             used = mass - after
             if not used > 0.0:  # a burn of nothing: no manoeuvre to fly
                 opm.comments.append(f"burn {row.name} changes nothing and is left out")
@@ -224,9 +247,11 @@ def build(program, result, ref_frame: str | None = None, object_id: str = "UNKNO
             if early > 0.0:
                 opm.comments.append(f"burn {row.name} ignites {early:.3f} s before the epoch "
                                     "(its impulse is at the epoch)")
+            engine = "" if row.engine is None or \
+                row.engine.name == program.craft.default_engine.name else row.engine.name
             opm.maneuvers.append(Maneuver(t - timedelta(seconds=duration / 2.0), duration,
                                           -used, "RTN", tuple(float(x) for x in dv),
-                                          row.name, "burn"))
+                                          row.name, "burn", engine))
         elif row.kind == "allow" and mass - after > 0.0:
             opm.comments.append(f"allowance {row.name}: {mass - after:.6g} kg of propellant "
                                 "booked, not a manoeuvre (no block)")
@@ -235,6 +260,19 @@ def build(program, result, ref_frame: str | None = None, object_id: str = "UNKNO
                                           row.name, "drop"))
         mass = after
     return opm
+
+
+# The header note of a plan priced `gravity j2`.
+J2_NOTE = ("Under gravity j2 the state and the burn epochs follow the plan's secular "
+           "(mean) motion: the short-period J2 terms, of order J2 in every element (some km "
+           "in low orbit), are in neither; read the state as mean elements or convert it.")
+
+# The header note of a plan priced `burns finite` (its first words tell the reader so).
+FINITE_NOTE = ("Burns are finite thrust arcs (burns finite): each block is the arc the plan "
+               "flew, centred on its impulse point (ignition half the duration before it), its "
+               "duration the arc's without margin, its velocity change the delta-v the engine "
+               "gives over the arc, along the impulsive burn's direction; the delta mass is the "
+               "budget's propellant, margin included; no leap seconds are inserted.")
 
 
 def _wrap(text: str, width: int = 80) -> list[str]:
@@ -275,7 +313,7 @@ def write(opm: Opm) -> str:
     lines += ["", "COMMENT Spacecraft parameters: mass at the epoch, propellant included"]
     put("MASS", opm.mass)
     for m in opm.maneuvers:
-        lines += ["", f"COMMENT {m.kind} {m.name}"]
+        lines += ["", f"COMMENT {m.kind} {m.name}" + (f" using {m.engine}" if m.engine else "")]
         put("MAN_EPOCH_IGNITION", format_epoch(m.ignition))
         put("MAN_DURATION", m.duration)
         put("MAN_DELTA_MASS", m.delta_mass)
@@ -318,12 +356,13 @@ def read(text: str) -> Opm:
         if missing:
             raise OpmError(f"a manoeuvre block lacks {', '.join(missing)}")
         name, kind = current.pop("_name", ""), current.pop("_kind", "burn")
+        engine = current.pop("_engine", "")
         maneuvers.append(Maneuver(parse_epoch(current["MAN_EPOCH_IGNITION"]),
                                   float(current["MAN_DURATION"]),
                                   float(current["MAN_DELTA_MASS"]),
                                   current["MAN_REF_FRAME"],
                                   tuple(float(current[f"MAN_DV_{i}"]) for i in (1, 2, 3)),
-                                  name, kind))
+                                  name, kind, engine))
         current = None
 
     for number, raw in enumerate(text.splitlines(), 1):
@@ -332,7 +371,7 @@ def read(text: str) -> Opm:
             continue
         if line.startswith("COMMENT"):
             body = line[len("COMMENT"):].strip()
-            m = re.fullmatch(r"(burn|drop) (\S+)", body)
+            m = re.fullmatch(r"(burn|drop) (\S+)(?: using \S+)?", body)
             if m:
                 close()
                 pending_comment = body
@@ -364,8 +403,8 @@ def read(text: str) -> Opm:
                     close()
                     current = {}
                     if pending_comment:
-                        kind, name = pending_comment.split(" ", 1)
-                        current.update(_kind=kind, _name=name)
+                        kind, name, *using = pending_comment.split(" ")
+                        current.update(_kind=kind, _name=name, _engine=using[-1] if using else "")
                         pending_comment = ""
                 if current is None:
                     raise OpmError(f"line {number}: {key} before MAN_EPOCH_IGNITION")
@@ -403,6 +442,16 @@ def plan_lines(opm: Opm) -> list[str]:
     lines = [f"epoch {format_epoch(opm.epoch)} {opm.metadata['TIME_SYSTEM']}",
              (f"start orbit {shape} inclination {float(np.degrees(el.inclination[0]))!r} deg "
               f"raan {deg(el.raan)} deg argp {deg(el.argp)} deg anomaly {deg(el.anomaly)} deg")]
+    # apsidal's message of a plan priced `burns finite`: its blocks are the thrust arcs,
+    # and a plan flown finite goes on from the end of each arc, so each coast is counted
+    # from there (in a plan flown impulsive from the impulse)
+    finite_arcs = any(c.startswith(FINITE_NOTE[:40]) for c in opm.comments)
+    if finite_arcs:
+        lines.insert(0, "# the burns are finite thrust arcs: fly these lines in a plan with "
+                        "`burns finite` (each coast starts at the end of the arc before it)")
+    if "J2 drift" in " ".join(opm.comments):  # the caution of a plan priced `gravity j2`
+        lines.insert(0, "# the coasts drifted with J2: fly these lines in a plan with "
+                        "`gravity j2` (the times between burns are the drifting chain's)")
     now = opm.epoch
     for k, m in enumerate(opm.maneuvers, 1):
         name = m.name.replace("/", "-") or f"{m.kind}-{k}"
@@ -417,5 +466,7 @@ def plan_lines(opm: Opm) -> list[str]:
             raise OpmError(f"manoeuvre {name} is in {m.frame}; apsidal reads RTN")
         r, t, n = (x * 1000.0 for x in m.dv)
         lines.append(f"burn {name}: radial {r!r} m/s, transverse {t!r} m/s, "
-                     f"normal {n!r} m/s  frame rtn")
+                     f"normal {n!r} m/s  frame rtn" + (f"  using {m.engine}" if m.engine else ""))
+        if finite_arcs:
+            now = m.impulse + timedelta(seconds=m.duration / 2.0)
     return lines
