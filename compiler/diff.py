@@ -321,6 +321,7 @@ def diff_reports(old: dict, new: dict, old_info: dict[str, StepInfo] | None = No
            # the model that priced each side (reports before it carried none: point-mass)
            "gravity": {"old": old.get("gravity", "point-mass"),
                        "new": new.get("gravity", "point-mass")},
+           "burns": {"old": old.get("burns", "impulsive"), "new": new.get("burns", "impulsive")},
            "caution": caution(old, new)}
     if findings or (findings is None and (old.get("findings") or new.get("findings"))):
         out["findings"] = findings_change(old.get("findings", []), new.get("findings", []))

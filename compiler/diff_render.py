@@ -88,11 +88,14 @@ def headline(diff: dict) -> str:
 
 
 def gravity_change(diff: dict) -> str:
-    """A change of the gravity model between the revisions ("" when there is none)."""
-    model = diff.get("gravity") or {}
-    if model.get("old", "point-mass") == model.get("new", "point-mass"):
-        return ""
-    return f"gravity {model.get('old', 'point-mass')} -> {model.get('new', 'point-mass')}; "
+    """A change of the gravity model, or of the burns' (``burns finite``), between the
+    revisions ("" when there is none)."""
+    out = ""
+    for key, default in (("gravity", "point-mass"), ("burns", "impulsive")):
+        model = diff.get(key) or {}
+        if model.get("old", default) != model.get("new", default):
+            out += f"{key} {model.get('old', default)} -> {model.get('new', default)}; "
+    return out
 
 
 def fit_change(diff: dict) -> str:
@@ -310,9 +313,11 @@ def to_csv(diff: dict) -> str:
         rows.append({"record": "total", "name": "total", "quantity": key,
                      "old": (diff["old"] or {}).get(key), "new": (diff["new"] or {}).get(key),
                      "change": (diff.get("change") or {}).get(key)})
-    if gravity_change(diff):  # the model of each side, as a row of the totals
-        rows.append({"record": "total", "name": "total", "quantity": "gravity",
-                     "old": diff["gravity"]["old"], "new": diff["gravity"]["new"]})
+    for key, default in (("gravity", "point-mass"), ("burns", "impulsive")):
+        model = diff.get(key) or {}  # the model of each side, as a row of the totals
+        if model.get("old", default) != model.get("new", default):
+            rows.append({"record": "total", "name": "total", "quantity": key,
+                         "old": model.get("old", default), "new": model.get("new", default)})
     for how, f in _findings_lines(diff):
         rows.append({"record": "finding", "name": ", ".join(f["steps"]), "status": how,
                      "severity": f["severity"], "rule": f["rule"], "message": f["message"]})
