@@ -188,6 +188,11 @@ def _step_text(s: dict) -> str:
     if s["kind"] in ("burn", "allow"):
         lines.append(f"delta-v {s['dv_m_s']} m/s ({s['dv_with_margin_m_s']} m/s with margin)")
         lines.append(f"propellant {s['propellant_kg']} kg, burn time {s['duration_s']} s")
+    if s.get("finite"):  # flown finite (`burns finite`): the arc and its loss
+        f = s["finite"]
+        lines.append(f"finite burn: gravity loss {f['gravity_loss_m_s']} m/s over a "
+                     f"{f['thrust_time_s']} s thrust arc of {f['arc_deg']} deg "
+                     f"(meets its {f['meets']})")
     lines.append(f"mass after {s['mass_after_kg']} kg, elapsed {s['elapsed_s']} s")
     lines.append(f"orbit after: periapsis {o['periapsis_alt_km']} km, apoapsis {apo}, "
                  f"inclination {o['inclination_deg']} deg, raan {o['raan_deg']} deg")
@@ -214,6 +219,11 @@ def completions(text: str, line: int, character: int) -> list[tuple[str, str]]:
         return [(e, "engine") for e in engines]
     if re.search(r"\baround\s+$", head):
         return [(b, "body") for b in names()]
+    from apsidal.lang.parse import MODEL_CHOICES
+
+    model = re.search(r"^\s*(\w+)\s+$", head)  # `burns `, `steering `, `gravity `
+    if model and model.group(1) in MODEL_CHOICES:
+        return [(c, "keyword") for c in MODEL_CHOICES[model.group(1)]]
     if re.search(r"\d\s*$", head):
         return [(u, "unit") for u in sorted(UNITS) if u]
     return ([(k, "keyword") for k in sorted(keywords())] + [(e, "engine") for e in engines]

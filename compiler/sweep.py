@@ -156,6 +156,22 @@ def locate(plan: ast.Plan, program: Program, target: str, span: Span | None = No
                         "size the statistical figure with `--disperse`", span, plan.source)
     altitude = isinstance(value, ast.Distance) and not value.is_radius
     quantity = value.quantity if isinstance(value, ast.Distance) else value
+    if not isinstance(quantity, ast.Quantity):  # `sun-synchronous`, `vinf to leg`: a word
+        sun = isinstance(quantity, ast.SunSynchronous)
+        word = "sun-synchronous" if sun else f"{key} to leg" if key == "vinf" else key
+        follows = ("the orbit's size (its altitude), which sets the inclination" if sun else
+                   "the leg it is taken from")
+        raise _complain(f"`{target}` is `{word}` in this plan, not a number a trade can "
+                        "move", f"vary or disperse {follows}, or write the number in the "
+                        "plan to vary it", span, plan.source)
+    sun_start = isinstance(owner, ast.Start) and any(
+        isinstance(f.value, ast.SunSynchronous) for f in owner.fields)
+    if sun_start:  # its inclination moves with its size, not in proportion to anything
+        raise _complain(f"`{target}`: the start orbit's inclination is `sun-synchronous` "
+                        "(it moves with the orbit's size), and a trade of the start orbit "
+                        "rebuilds the start state from its numbers", "write the inclination as a "
+                        "number (the run report gives the sun-synchronous one) to trade "
+                        "the start orbit", span, plan.source)
     return Knob(target, quantity, altitude, key if isinstance(owner, ast.Start) else None)
 
 

@@ -161,3 +161,46 @@ def test_a_finite_plane_turn_under_j2_meets_its_goal_without_a_finding(tmp_path,
     assert code == 0, doc["findings"]
     assert not [f for f in doc["findings"] if f["rule"] == "finite-burn"]
     assert doc["steps"][-1]["orbit_after"]["inclination_deg"] == pytest.approx(52.9, abs=0.01)
+
+
+# --- trades of quantities that are words ----------------------------------------------------
+
+SUN_SYNC = """\
+plan "Sun-synchronous start"
+around earth
+gravity j2
+craft c {
+    dry 300 kg
+    propellant 60 kg
+    engine main isp 220 s thrust 20 N
+}
+start circular 700 km inclination sun-synchronous raan 22.5 deg
+transfer up at node: circular 800 km, inclination to sun-synchronous
+burn out at periapsis: vinf to leg
+leg cruise to mars
+start orbit periapsis 400 km
+"""
+
+
+@pytest.mark.parametrize(("argv", "words"), [
+    (["--disperse", "start.inclination=0.01deg"], "is `sun-synchronous` in this plan"),
+    (["--vary", "up.inclination=97..99deg"], "is `sun-synchronous` in this plan"),
+    (["--vary", "start.circular=650..750km"], "start orbit's inclination is `sun-synchron"),
+    (["--disperse", "start.raan=0.1deg"], "start orbit's inclination is `sun-synchron"),
+    (["--vary", "out.vinf=2..3km/s"], "is `vinf to leg` in this plan"),
+])
+def test_a_trade_of_a_word_is_refused_with_what_would_work(tmp_path, capsys, argv, words):
+    """A quantity the plan gives as a word has no number to move (it used to end in an
+    internal error)."""
+    path = tmp_path / "plan.aps"
+    path.write_text(SUN_SYNC)
+    assert main(["sweep", str(path), *argv]) == 2
+    err = capsys.readouterr().err
+    assert words in err and "internal error" not in err and "write the" in err
+
+
+def test_a_trade_statement_of_a_word_is_located_at_its_item(tmp_path, capsys):
+    path = tmp_path / "plan.aps"
+    path.write_text(SUN_SYNC + "trade spread: disperse start.inclination 0.01 deg\n")
+    assert main(["sweep", str(path)]) == 2
+    assert "plan.aps:14:24: error:" in capsys.readouterr().err
