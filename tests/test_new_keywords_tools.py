@@ -1,0 +1,91 @@
+"""The editor, review and hand-off tools on a plan that uses every statement merged at
+once (`gravity j2`, `drift at most`, `burns finite`, `steering`, `sun-synchronous`,
+`epoch`, `leg`, `trade`): `fmt` keeps it stable and priced the same, the language server
+diagnoses, hovers and completes it, `check --format sarif` writes valid SARIF 2.1.0 for
+it (schema: OASIS, tests/test_sarif.py), and the mistakes of the new settings reach the
+editor at their place.  A scenario of our own."""
+
+from __future__ import annotations
+
+import pytest
+from apsidal.compiler import lsp
+from test_format import assert_same_plan
+from test_sarif import assert_valid, sarif, validator  # noqa: F401 (a fixture)
+
+EVERYTHING = """\
+# every statement merged today, in one plan
+plan "All models"
+around earth
+gravity j2
+drift at most 60 d
+burns finite
+steering inertial
+craft kestrel {
+    dry 1350 kg
+    propellant 7000 kg
+    engine main isp 324 s thrust 220 kN
+    engine rcs isp 225 s thrust 90 N
+}
+margin 3 %
+epoch 2027-03-01T00:00:00.5 TDB
+start circular 700 km inclination sun-synchronous raan 22.5 deg
+coast wait for 2 d
+burn turn at crossing: raan to 20 deg
+burn depart at periapsis: vinf to leg
+coast outbound for 3 d
+leg cruise to venus
+start orbit periapsis 350 km inclination 88 deg anomaly -60 deg
+coast approach to periapsis
+burn capture at periapsis: period to 24 h
+trade engine-size: vary main.thrust 150..250 kN points 3
+trade spread: disperse main.isp 1 s, samples 50, seed 3
+"""
+
+
+def line_of(text: str, start: str) -> int:
+    return next(i for i, ln in enumerate(text.splitlines()) if ln.startswith(start))
+
+
+def test_fmt_of_every_new_statement_is_stable_and_prices_the_same():
+    once = assert_same_plan(EVERYTHING)
+    for word in ("gravity j2", "drift at most 60 d", "burns finite", "steering inertial",
+                 "sun-synchronous", "epoch 2027-03-01T00:00:00.5 TDB", "leg cruise to venus",
+                 "trade engine-size:", "trade spread:"):
+        assert word in once
+
+
+def test_the_language_server_reads_every_new_statement():
+    assert lsp.diagnose(EVERYTHING) == []
+    burn = lsp.hover(EVERYTHING, line_of(EVERYTHING, "burn depart"), 3)
+    assert "**burn depart**" in burn and "gravity loss" in burn and "thrust arc" in burn
+    leg = lsp.hover(EVERYTHING, line_of(EVERYTHING, "leg cruise"), 2)
+    assert "**leg cruise** (to Venus)" in leg
+    words = {label for label, _ in lsp.completions(EVERYTHING, 2, 0)}
+    assert {"gravity", "burns", "steering", "drift", "sun-synchronous", "leg", "trade",
+            "epoch"} <= words
+    for setting, choices in (("burns", {"impulsive", "finite"}),
+                             ("steering", {"velocity", "inertial"}),
+                             ("gravity", {"point-mass", "j2"})):
+        text = EVERYTHING + f"{setting} "
+        got = lsp.completions(text, len(text.splitlines()) - 1, len(setting) + 1)
+        assert {label for label, _ in got} == choices
+
+
+@pytest.mark.parametrize(("old", "new", "line", "words"), [
+    ("burns finite\n", "", "steering inertial", "prices its burns impulsive"),
+    ("gravity j2\n", "", "drift at most", "point-mass model"),
+    ("2027-03-01T00:00:00.5", "2027-02-30T00:00:00", "epoch", "is not a date"),
+])
+def test_a_mistake_in_a_new_setting_reaches_the_editor_at_its_place(old, new, line, words):
+    text = EVERYTHING.replace(old, new, 1)
+    (d,) = lsp.diagnose(text)
+    assert d.severity == 1 and words in d.message
+    assert d.start[0] == line_of(text, line)
+
+
+def test_check_of_every_new_statement_is_valid_sarif(tmp_path, validator, capsys):  # noqa: F811
+    path = tmp_path / "all.aps"
+    path.write_text(EVERYTHING)
+    code, log = sarif(capsys, path)
+    assert code in (0, 1)
+    assert_valid(validator, log)
