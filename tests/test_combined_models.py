@@ -153,6 +153,28 @@ def test_a_finite_burn_under_j2_drifts_through_its_whole_arc(tmp_path, capsys):
     assert np.degrees(ends[1] - ends[0]) < 0.005  # the bracket resolves the arc's drift
 
 
+@pytest.mark.parametrize(("target", "unit", "lo", "hi"), [
+    ("main.thrust", "N", 5.0, 40.0), ("after.for", "h", 1.0, 48.0),
+    ("start.inclination", "deg", 30.0, 98.0), ("kick.along", "m/s", 10.0, 60.0)])
+def test_sweep_of_a_j2_finite_plan_equals_separate_runs(target, unit, lo, hi):
+    text = j2_finite_plan("burn turn at node: inclination to 52.9 deg\n"
+                          "coast last to apoapsis\n")
+    program = load_text(text)
+    knob = sweep.locate(program.plan, program, target)
+    model = sweep.Model(text, "<plan>", [knob], [unit], [(lo, hi)])
+    X = np.array([[lo], [lo + 0.37 * (hi - lo)], [hi]])
+    priced = sweep.price(model, X)
+    for i in range(X.shape[0]):
+        want = separate_run(model.text_with(list(X[i])))
+        if want is None:
+            assert not priced.flown[i]
+            continue
+        assert priced.flown[i], priced.reason(i)
+        for key in ("dv_m_s", "dv_with_margin_m_s", "propellant_kg", "final_mass_kg",
+                    "elapsed_s"):
+            assert priced.totals[key][i] == pytest.approx(want[key], rel=1e-9), key
+
+
 def test_a_finite_plane_turn_under_j2_meets_its_goal_without_a_finding(tmp_path, capsys):
     """The finite-burn rule checks the plane at the end of the arc, not after the arc's
     secular drift (which turns the node, not the burn's goal)."""
