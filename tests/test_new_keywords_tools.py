@@ -89,3 +89,29 @@ def test_check_of_every_new_statement_is_valid_sarif(tmp_path, validator, capsys
     code, log = sarif(capsys, path)
     assert code in (0, 1)
     assert_valid(validator, log)
+
+
+def test_report_and_plot_of_every_new_statement(tmp_path):
+    """The one-file report of a plan flown finite, under J2 and across a leg holds every
+    step and the caution naming both models; each picture of it is written."""
+    import html
+    import json
+
+    from test_report import cli, external_references, report_page, structure
+
+    path = tmp_path / "all.aps"
+    path.write_text(EVERYTHING)
+    code, out, _ = cli("run", str(path), "--format", "json")
+    run = json.loads(out)
+    status, page = report_page(tmp_path, path)
+    assert status == code == 0 and external_references(page) == []
+    s = structure(page)
+    assert s.errors == [] and s.stack == []
+    text = html.unescape("".join(s.text))
+    assert all(step["name"] in text for step in run["steps"])
+    assert run["caution"] in text and "J2 drift" in run["caution"]
+    assert "constant thrust" in run["caution"]
+    for kind in ("chain", "waterfall", "mass"):
+        picture = tmp_path / f"{kind}.svg"
+        assert cli("plot", str(path), "--kind", kind, "-o", str(picture))[0] == 0
+        assert picture.stat().st_size > 0
