@@ -236,7 +236,9 @@ def build(program, result, ref_frame: str | None = None, object_id: str = "UNKNO
             dv = components("rtn", row.after.r[:1], row.v_before[:1],
                             row.after.v[:1] - row.v_before[:1])[0]
             duration = float(row.burn_time[0]) if row.burn_time is not None else 0.0
-            duration = 0.0 if impulsive else duration
+            # a plan priced finite keeps some burns impulsive (phasing): it flew them as
+            # impulses, which the standard writes with duration 0
+            duration = 0.0 if impulsive or finite_burns else duration
         if row.kind == "burn":
             used = mass - after
             if not used > 0.0:  # a burn of nothing: no manoeuvre to fly
@@ -271,7 +273,8 @@ J2_NOTE = ("Under gravity j2 the state and the burn epochs follow the plan's sec
 FINITE_NOTE = ("Burns are finite thrust arcs (burns finite): each block is the arc the plan "
                "flew, centred on its impulse point (ignition half the duration before it), its "
                "duration the arc's without margin, its velocity change the delta-v the engine "
-               "gives over the arc, along the impulsive burn's direction; the delta mass is the "
+               "gives over the arc, along the impulsive burn's direction (a burn the plan "
+               "keeps impulsive, of a phasing transfer, has duration 0); the delta mass is the "
                "budget's propellant, margin included; no leap seconds are inserted.")
 
 

@@ -146,3 +146,19 @@ def test_a_plan_with_a_leg_flown_finite_is_refused_at_its_leg(tmp_path, capsys):
     assert main(["export", str(path)]) == 2
     err = capsys.readouterr().err
     assert "plan.aps:15:1" in err and "one central body" in err
+
+
+def test_a_phasing_burn_of_a_finite_plan_is_an_impulsive_block(tmp_path, capsys):
+    """A finite plan keeps its phasing burns impulsive: the message writes them so
+    (duration 0, ignition at the impulse), beside the thrust arcs of the others."""
+    text = J2_FINITE.replace("coast settle 2 rev\n", "transfer hop: phase 20 deg in 3 rev\n")
+    message, report = message_and_report(tmp_path, capsys, text)
+    steps = {s["name"]: s for s in report["steps"]}
+    blocks = {m.name: m for m in message.maneuvers}
+    for name in ("hop/1", "hop/2"):
+        assert "finite" not in steps[name]
+        assert blocks[name].duration == 0.0
+        ignition = (blocks[name].ignition - message.epoch).total_seconds()
+        assert ignition == pytest.approx(steps[name]["elapsed_s"], abs=2e-6)
+    assert blocks["lift-2"].duration == pytest.approx(
+        steps["lift-2"]["finite"]["thrust_time_s"], abs=1e-6)
