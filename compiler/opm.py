@@ -245,7 +245,7 @@ def build(program, result, ref_frame: str | None = None, object_id: str = "UNKNO
                 opm.comments.append(f"burn {row.name} changes nothing and is left out")
                 mass = after
                 continue
-            early = duration / 2.0 - float(row.after.t[0])
+            early = duration / 2.0 - (t - epoch).total_seconds()  # t: the impulse
             if early > 0.0:
                 opm.comments.append(f"burn {row.name} ignites {early:.3f} s before the epoch "
                                     "(its impulse is at the epoch)")

@@ -162,3 +162,14 @@ def test_a_phasing_burn_of_a_finite_plan_is_an_impulsive_block(tmp_path, capsys)
         assert ignition == pytest.approx(steps[name]["elapsed_s"], abs=2e-6)
     assert blocks["lift-2"].duration == pytest.approx(
         steps["lift-2"]["finite"]["thrust_time_s"], abs=1e-6)
+
+
+def test_a_finite_burn_at_the_epoch_says_it_ignites_before_it(tmp_path, capsys):
+    text = J2_FINITE.replace("coast wait for 3 d\nburn lift-1 at apoapsis:",
+                             "burn lift-1:")
+    message, report = message_and_report(tmp_path, capsys, text)
+    half = 0.5 * report["steps"][0]["finite"]["thrust_time_s"]
+    assert (message.maneuvers[0].ignition - message.epoch).total_seconds() == pytest.approx(
+        -half, abs=2e-6)
+    assert any(f"burn lift-1 ignites {half:.3f} s before the epoch" in c
+               for c in message.comments)
