@@ -166,7 +166,7 @@ def test_a_phasing_burn_of_a_finite_plan_is_an_impulsive_block(tmp_path, capsys)
 
 def test_a_finite_burn_at_the_epoch_says_it_ignites_before_it(tmp_path, capsys):
     text = J2_FINITE.replace("coast wait for 3 d\nburn lift-1 at apoapsis:",
-                             "burn lift-1:")
+                             "burn lift-1:").replace("argp 10 deg", "argp 10 deg anomaly 180 deg")
     message, report = message_and_report(tmp_path, capsys, text)
     half = 0.5 * report["steps"][0]["finite"]["thrust_time_s"]
     assert (message.maneuvers[0].ignition - message.epoch).total_seconds() == pytest.approx(
