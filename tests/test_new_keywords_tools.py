@@ -115,3 +115,27 @@ def test_report_and_plot_of_every_new_statement(tmp_path):
         picture = tmp_path / f"{kind}.svg"
         assert cli("plot", str(path), "--kind", kind, "-o", str(picture))[0] == 0
         assert picture.stat().st_size > 0
+
+
+def test_the_new_rules_reach_the_editor_with_their_fix():
+    """`finite-burn` as the plan is typed; `drift-node-change` on save, with its proven
+    rewrite as a quick fix."""
+    finite = EVERYTHING.replace("burn capture at periapsis: period to 24 h",
+                                "burn capture at periapsis: circular")
+    found = [d for d in lsp.diagnose(finite) if d.code == "finite-burn"]
+    assert found and found[0].start[0] == line_of(finite, "burn capture")
+    drift = """\
+around earth
+gravity j2
+drift at most 120 d
+craft c {
+    dry 200 kg
+    propellant 1000 kg
+    engine main isp 228 s thrust 2200 N
+}
+start circular 600 km inclination 53 deg raan 120 deg
+burn turn at crossing: raan to 110 deg
+"""
+    found = [d for d in lsp.diagnose(drift, full=True) if d.code == "drift-node-change"]
+    assert found and found[0].start[0] == line_of(drift, "burn turn") and found[0].fix
+    assert lsp.quick_fixes(drift, found[0].start, found[0].end)
