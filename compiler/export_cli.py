@@ -75,6 +75,9 @@ def cmd_export(args) -> int:
         if "before the epoch" in note:
             print(f"apsidal: note: {note}; the receiving tool starts that much earlier, or "
                   "move the plan's epoch", file=sys.stderr)
+        elif "the two overlap" in note:
+            print(f"apsidal: note: {note} (each burn is centred on its impulse point); "
+                  "merge them into one burn, or put a coast between them", file=sys.stderr)
     report = budget(result)
     if not report["feasible"]:
         print(f"apsidal: the plan does not fit its load: {shortfall_text(report)}; the "

@@ -251,7 +251,15 @@ def build(program, result, ref_frame: str | None = None, object_id: str = "UNKNO
                                     "(its impulse is at the epoch)")
             engine = "" if row.engine is None or \
                 row.engine.name == program.craft.default_engine.name else row.engine.name
-            opm.maneuvers.append(Maneuver(t - timedelta(seconds=duration / 2.0), duration,
+            ignition = t - timedelta(seconds=duration / 2.0)
+            last = next((m for m in reversed(opm.maneuvers) if m.kind == "burn"), None)
+            if last is not None:
+                cutoff = last.ignition + timedelta(seconds=last.duration)
+                overlap = (cutoff - ignition).total_seconds()
+                if overlap > 1e-6:  # centred burns too close together for one engine
+                    opm.comments.append(f"burn {row.name} ignites {overlap:.3f} s before burn "
+                                        f"{last.name} cuts off: the two overlap")
+            opm.maneuvers.append(Maneuver(ignition, duration,
                                           -used, "RTN", tuple(float(x) for x in dv),
                                           row.name, "burn", engine))
         elif row.kind == "allow" and mass - after > 0.0:

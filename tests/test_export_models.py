@@ -10,6 +10,8 @@ read back; the plans are scenarios of our own.
 
 from __future__ import annotations
 
+from datetime import timedelta
+
 import numpy as np
 import pytest
 from apsidal.compiler.cli import main
@@ -173,3 +175,21 @@ def test_a_finite_burn_at_the_epoch_says_it_ignites_before_it(tmp_path, capsys):
         -half, abs=2e-6)
     assert any(f"burn lift-1 ignites {half:.3f} s before the epoch" in c
                for c in message.comments)
+
+
+def test_burns_whose_centred_arcs_overlap_are_said(tmp_path, capsys):
+    """Two finite burns back to back at one point: each is centred on its impulse, so
+    the second ignites before the first cuts off; the message and the command say so."""
+    text = J2_FINITE.replace("burn trim at periapsis: apoapsis to 35800 km using rcs\n",
+                             "burn trim: along 5 m/s\n")
+    path = tmp_path / "plan.aps"
+    path.write_text(text)
+    assert main(["export", str(path)]) == 0
+    captured = capsys.readouterr()
+    message = read(captured.out)
+    last, trim = message.maneuvers[-2:]
+    overlap = (last.ignition + timedelta(seconds=last.duration) - trim.ignition).total_seconds()
+    assert overlap > 0
+    assert any(f"burn trim ignites {overlap:.3f} s before burn lift-2 cuts off" in c
+               for c in message.comments)
+    assert "the two overlap" in captured.err and "put a coast between them" in captured.err
