@@ -223,8 +223,8 @@ def total_lines(tot: dict) -> list[str]:
         (f"delta-v capacity     {sig(tot['dv_capacity_left_m_s'])} m/s left "
          f"(reserve {sig(tot['reserve_m_s'])} m/s: {reserve})"),
         f"elapsed              {duration(tot['elapsed_s'])}",
-    ] + ([f"gravity loss         {sig(tot['gravity_loss_m_s'])} m/s in the delta-v "
-          "(finite burns)"] if "gravity_loss_m_s" in tot else [])
+    ] + ([(f"gravity loss         {sig(tot['gravity_loss_m_s'])} m/s in the delta-v "
+          "(finite burns)")] if "gravity_loss_m_s" in tot else [])
 
 
 def fit_lines(report: dict) -> list[str]:

@@ -695,8 +695,8 @@ def jointly(text: str, path: str, knobs: list[Knob], units: list[str], X: np.nda
 
     def why(i):
         err = errs[inverse[i]]
-        return (f"{texts.said(dict(enumerate(X[i].tolist())))}: the plan is refused: "
-                f"{err.message}", err.hint)
+        return ((f"{texts.said(dict(enumerate(X[i].tolist())))}: the plan is refused: "
+                f"{err.message}"), err.hint)
 
     fails.add(bad[inverse], why)
     return fails, rows[~bad]
