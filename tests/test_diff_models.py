@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import csv
 import io
+
 import pytest
 from apsidal.compiler.cli import main
 from test_schema import validate
