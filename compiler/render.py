@@ -23,6 +23,17 @@ from .textfmt import angle_text, duration, length, short, sig
 WRAPPED_ANGLES = {"raan", "argp", "anomaly"}  # reported in [0, 360) deg
 
 
+def _wrapped_sig(deg: float | None) -> str:
+    """An angle in [0, 360) deg to four figures, wrapped after rounding (a node a hair
+    below 360 deg is 0, not `360.0`).
+
+    >>> _wrapped_sig(359.99998), _wrapped_sig(20.0163), _wrapped_sig(None)
+    ('0', '20.02', '-')
+    """
+    text = sig(deg)
+    return "0" if text not in ("-", "0") and float(text.replace(",", "")) >= 360.0 else text
+
+
 @dataclass(frozen=True)
 class Column:
     """A column of the step table: its key, heading, cell and priority."""
@@ -87,7 +98,8 @@ STEP_COLUMNS: tuple[Column, ...] = (
     Column("engine", "engine", lambda s: s.get("engine", ""), 5, right=False),
     Column("orbit", "orbit after: alt. km x km, incl. deg", lambda s: _orbit_cell(s), 0,
            right=False),
-    Column("raan", "raan after deg", lambda s: sig(s["orbit_after"].get("raan_deg")), 1),
+    Column("raan", "raan after deg", lambda s: _wrapped_sig(s["orbit_after"].get("raan_deg")),
+           1),
     Column("elapsed", "elapsed d hh:mm:ss", lambda s: duration(s["elapsed_s"]), 2),
 )
 COLUMN_KEYS = tuple(c.key for c in STEP_COLUMNS)

@@ -139,3 +139,22 @@ burn turn at crossing: raan to 110 deg
     found = [d for d in lsp.diagnose(drift, full=True) if d.code == "drift-node-change"]
     assert found and found[0].start[0] == line_of(drift, "burn turn") and found[0].fix
     assert lsp.quick_fixes(drift, found[0].start, found[0].end)
+
+
+def test_the_node_column_wraps_a_node_a_hair_below_360_deg(tmp_path, capsys, monkeypatch):
+    """The arrival at Venus starts at raan 0; after the capture the node is 359.99998
+    deg, which four figures round to 360: the table shows 0, as every report wraps it."""
+    from apsidal.compiler.cli import main
+
+    monkeypatch.setenv("COLUMNS", "120")
+    path = tmp_path / "all.aps"
+    path.write_text(EVERYTHING)
+    assert main(["run", str(path), "--format", "json"]) == 0
+    import json
+
+    raan = json.loads(capsys.readouterr().out)["steps"][-1]["orbit_after"]["raan_deg"]
+    assert 359.999 < raan < 360.0
+    assert main(["run", str(path)]) == 0
+    table = capsys.readouterr().out
+    row = next(ln for ln in table.splitlines() if ln.lstrip().startswith("7 "))
+    assert "raan" in table and "360.0" not in row and row.split()[-4] == "0"
