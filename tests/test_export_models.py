@@ -193,3 +193,24 @@ def test_burns_whose_centred_arcs_overlap_are_said(tmp_path, capsys):
     assert any(f"burn trim ignites {overlap:.3f} s before burn lift-2 cuts off" in c
                for c in message.comments)
     assert "the two overlap" in captured.err and "put a coast between them" in captured.err
+
+
+def test_the_epochs_of_a_j2_plan_follow_the_drifting_mean_motion():
+    """Tessera climbs from 400 to 600 km after 63.96 d: the transfer's second burn is at
+    the apoapsis of the transfer orbit, half an anomalistic period after the first, pi /
+    n_bar with J2's mean motion (Vallado, 4th ed., Sec. 9.6, written out here; Earth's
+    constants IERS 2010), not the two-body half period."""
+    program = load_text(sample("tessera-drift"), "plan.aps")
+    message = read(write(build(program, run(program))))
+    first, second = (m for m in message.maneuvers if m.kind == "burn")
+    assert (first.impulse - message.epoch).total_seconds() == pytest.approx(63.96 * 86400,
+                                                                            abs=1e-6)
+    mu, re, j2 = 398600.4418, 6378.1366, 1.0826359e-3
+    r1, r2 = re + 400.0, re + 600.0
+    a, e, i = 0.5 * (r1 + r2), (r2 - r1) / (r1 + r2), np.radians(53.0)
+    n = np.sqrt(mu / a**3)
+    p = a * (1 - e**2)
+    n_bar = n * (1 + 0.75 * j2 * (re / p) ** 2 * np.sqrt(1 - e**2) * (3 * np.cos(i)**2 - 1))
+    half = (second.impulse - first.impulse).total_seconds()
+    assert half == pytest.approx(np.pi / n_bar, abs=1e-4)
+    assert abs(half - np.pi / n) > 0.1  # at 53 deg J2 moves it 0.17 s, resolved here
