@@ -132,6 +132,8 @@ def _finite(result: Result, sizing: Sizing) -> Sizing:
     def settle(start, value, at, read):
         """The fixed point x = f(x) of f (the plan priced at ``at(x)``, sized by ``read``)
         from f(start) = value, by secant steps on f(x) - x (f is nearly a constant)."""
+        if value is None:  # nothing to settle (no burn: any dry mass flies the plan)
+            return value
         before, was = start, value - start  # the last point and its f(x) - x
         for _ in range(FINITE_ROUNDS):
             if value is None or value <= 0:

@@ -226,3 +226,16 @@ def test_a_trade_statement_of_a_word_is_located_at_its_item(tmp_path, capsys):
     path.write_text(SUN_SYNC + "trade spread: disperse start.inclination 0.01 deg\n")
     assert main(["sweep", str(path)]) == 2
     assert "plan.aps:14:24: error:" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("j2", [False, True])
+def test_a_finite_plan_without_a_burn_prices_like_the_impulsive_one(tmp_path, capsys, j2):
+    """A drift alone (no burn) under `burns finite`: nothing to size, so any dry mass
+    flies it (the sizing fixed point used to end in an internal error)."""
+    text = j2_finite_plan().replace("burn kick: along 40 m/s\n", "")
+    text = text if j2 else text.replace("gravity j2\n", "")
+    code, finite = run_json(tmp_path, capsys, text)
+    assert code == 0
+    _, impulsive = run_json(tmp_path, capsys, text.replace("burns finite\n", ""))
+    assert finite["totals"] == impulsive["totals"]
+    assert finite["totals"]["dry_max_kg"] is None and finite["feasible"]
