@@ -40,6 +40,7 @@ MAX_STEPS = int(np.ceil(np.radians(MAX_ARC_DEG) * 1.5 / STEP_RAD))
 LENGTH_RTOL = 1e-12  # the burn's length is found to this relative tolerance
 MAX_ITER = 60
 MASS_FLOOR = 1e-6  # the burn may not use more than this short of the whole mass
+DV_ROUNDING = 1e-12  # an impulsive delta-v below this share of the speed is nothing
 # ln of the mass ratio per RK4 step at most: the thrust acceleration F / m grows as the
 # mass falls, and a burn that uses much of the craft (a high-thrust escape) needs steps
 # set by that, not only by its orbital angle (16 steps over a mass ratio of 3 missed the
@@ -220,6 +221,9 @@ def fly(r, v_before, v_after, mass, thrust_n: float, ve: float, mu: float, steer
     """
     size = r.shape[0]
     dvn = norm(v_after - v_before)
+    # a burn whose impulsive delta-v is rounding (a circle made on a circle: ~1e-15 km/s)
+    # has nothing to fly; no length could meet a goal it already meets to that rounding
+    dvn = np.where(dvn > DV_ROUNDING * norm(v_before), dvn, 0.0)
     direction, comps = _pointing(r, v_before, v_after)
     thrust_kn = np.full(size, thrust_n / 1000.0)
     mdot = np.full(size, thrust_n / (ve * 1000.0))

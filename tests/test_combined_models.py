@@ -239,3 +239,17 @@ def test_a_finite_plan_without_a_burn_prices_like_the_impulsive_one(tmp_path, ca
     _, impulsive = run_json(tmp_path, capsys, text.replace("burns finite\n", ""))
     assert finite["totals"] == impulsive["totals"]
     assert finite["totals"]["dry_max_kg"] is None and finite["feasible"]
+
+
+@pytest.mark.parametrize("j2", [False, True])
+def test_a_finite_burn_with_nothing_to_do_costs_nothing(tmp_path, capsys, j2):
+    """`circular` on a circle: the impulsive burn is rounding (about 1e-15 km/s); flown
+    finite it was refused as a goal "no length reaches", now it is a burn of nothing."""
+    text = j2_finite_plan("burn again at apoapsis: circular\n")
+    text = text if j2 else text.replace("gravity j2\n", "")
+    text = text.replace("burn kick: along 40 m/s\n", "")
+    code, doc = run_json(tmp_path, capsys, text)
+    assert code == 0, doc.get("findings")
+    again = doc["steps"][-1]
+    assert again["dv_m_s"] == 0.0 and again["propellant_kg"] == 0.0
+    assert again["finite"]["thrust_time_s"] == 0.0
