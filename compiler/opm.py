@@ -87,8 +87,13 @@ def parse_epoch(text: str) -> datetime:
 
 
 def format_epoch(t: datetime) -> str:
-    """``2027-03-01T00:01:30.500000``: microseconds, always written."""
-    return t.strftime("%Y-%m-%dT%H:%M:%S.%f")
+    """``2027-03-01T00:01:30.500000``: microseconds, always written; the year in four
+    digits (``%Y`` gives ``999`` for the year 999 on some platforms).
+
+    >>> format_epoch(datetime(999, 1, 1))
+    '0999-01-01T00:00:00.000000'
+    """
+    return f"{t.year:04d}" + t.strftime("-%m-%dT%H:%M:%S.%f")
 
 
 def _num(x: float) -> str:
@@ -217,6 +222,17 @@ def build(program, result, ref_frame: str | None = None, object_id: str = "UNKNO
     )
     if program.gravity == "j2":
         opm.comments += _wrap(J2_NOTE)
+    try:
+        return _maneuvers(opm, program, result, epoch, impulsive, finite_burns)
+    except OverflowError:  # a time before the year 1 or after 9999
+        raise ExportError("a burn of this plan falls outside the years 1 to 9999 counted "
+                          "from its epoch, which a CCSDS time cannot write: move the epoch",
+                          epoch_st.span) from None
+
+
+def _maneuvers(opm: Opm, program, result, epoch: datetime, impulsive: bool,
+               finite_burns: bool) -> Opm:
+    """``opm`` with a block per burn and per release of the priced plan ``result``."""
     mass = opm.mass
     from .frames import components
 

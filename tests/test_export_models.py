@@ -214,3 +214,21 @@ def test_the_epochs_of_a_j2_plan_follow_the_drifting_mean_motion():
     half = (second.impulse - first.impulse).total_seconds()
     assert half == pytest.approx(np.pi / n_bar, abs=1e-4)
     assert abs(half - np.pi / n) > 0.1  # at 53 deg J2 moves it 0.17 s, resolved here
+
+
+def test_an_epoch_before_the_year_1000_reads_back(tmp_path, capsys):
+    """The year is written in four digits (`%Y` gave `999`, which the reader refused)."""
+    text = J2_FINITE.replace("epoch 2027-03-01T00:00:00 UTC", "epoch 0999-03-01T00:00:00 TT")
+    message, _ = message_and_report(tmp_path, capsys, text)
+    assert message.epoch.year == 999 and message.maneuvers[0].ignition.year == 999
+
+
+def test_a_burn_before_the_year_1_is_refused_at_the_epoch(tmp_path, capsys):
+    text = J2_FINITE.replace("epoch 2027-03-01T00:00:00 UTC", "epoch 0001-01-01T00:00:00 TT")
+    text = text.replace("coast wait for 3 d\nburn lift-1 at apoapsis:", "burn lift-1:")
+    text = text.replace("argp 10 deg", "argp 10 deg anomaly 180 deg")
+    path = tmp_path / "plan.aps"
+    path.write_text(text)
+    assert main(["export", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert "plan.aps:12:1" in err and "outside the years 1 to 9999" in err
