@@ -19,6 +19,9 @@ from apsidal.compiler import finite, sweep
 from apsidal.compiler.cli import main
 from apsidal.compiler.evaluate import run
 from apsidal.compiler.load import load_text
+from apsidal.lang.errors import PlanError
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 from test_finite import G0, MU, circular, scipy_flight
 from test_sweep import separate_run
 
@@ -253,3 +256,59 @@ def test_a_finite_burn_with_nothing_to_do_costs_nothing(tmp_path, capsys, j2):
     again = doc["steps"][-1]
     assert again["dv_m_s"] == 0.0 and again["propellant_kg"] == 0.0
     assert again["finite"]["thrust_time_s"] == 0.0
+
+
+MODELS = ["gravity j2\n", "burns finite\n", "gravity j2\nburns finite\n",
+          "gravity j2\nburns finite\nsteering inertial\n"]
+
+
+def with_models(text: str, head: str) -> str:
+    """A generated plan (tests/plangen.py) with the model lines after its `around`, its
+    engines strong enough (50 MN) that its burns fly as finite burns of a few degrees."""
+    import re
+
+    if "around terra" in text:  # the generator's own body has no J2
+        head = head.replace("gravity j2\n", "")
+    text = re.sub(r"(?m)^(around .*)$", lambda m: m.group(1) + "\n" + head.rstrip("\n"),
+                  text, count=1)
+    return re.sub(r"thrust\s*[0-9.e+]+\s*k?N", "thrust 5e7 N", text)
+
+
+@settings(max_examples=40, deadline=None,
+          suppress_health_check=[HealthCheck.too_slow, HealthCheck.filter_too_much])
+@given(st.data())
+def test_variants_of_generated_plans_under_every_model_are_separate_runs(data):
+    """tests/test_sweep.py's rule on generated plans priced under `gravity j2`, `burns
+    finite` and both: any quantity moved a little either way, each variant equals a
+    separate run of its text, or is refused as that run is."""
+    from hypothesis import assume
+    from plangen import plan_texts
+    from test_sweep import _knobs_of
+
+    text = with_models(data.draw(plan_texts(tidy=True)), data.draw(st.sampled_from(MODELS)))
+    try:
+        program = load_text(text)
+    except PlanError:
+        assume(False)
+    knobs = _knobs_of(program.plan, program)
+    target, q = data.draw(st.sampled_from(knobs))
+    base = q.value
+    step = abs(base) * 0.02 if base else 0.5
+    values = sorted(data.draw(st.lists(st.floats(base - step, base + step), min_size=2,
+                                       max_size=3)))
+    try:
+        knob = sweep.locate(program.plan, program, target)
+        model = sweep.Model(text, "<plan>", [knob], [q.unit], [(values[0], values[-1])])
+    except (sweep.UsageError, sweep.PlanError):
+        assume(False)
+    priced = sweep.price(model, np.array(values)[:, None])
+    for i, x in enumerate(values):
+        result = run(load_text(model.text_with([x])))
+        if not result.ok:
+            assert not priced.flown[i]
+            continue
+        assert priced.flown[i], (target, x, priced.reason(i))
+        f = result.final
+        assert priced.totals["dv_m_s"][i] == pytest.approx(f.dv[0] * 1000, rel=1e-9, abs=1e-9)
+        assert priced.totals["elapsed_s"][i] == pytest.approx(f.t[0], rel=1e-9, abs=1e-6)
+        assert priced.totals["final_mass_kg"][i] == pytest.approx(f.mass[0], rel=1e-9)
