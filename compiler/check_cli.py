@@ -138,6 +138,7 @@ def cmd_check(args) -> int:
     silenced: dict[str, int] = {}
     worst = -1
     for path in args.plans:
+        program = None  # kept for the caution (the models) when the plan reads but fails
         try:
             program = load(path)
             result = run(program)
@@ -154,7 +155,7 @@ def cmd_check(args) -> int:
             silenced[path] = len(budget.silenced)
         except PlanError as err:
             print(err.render(), file=sys.stderr)
-            reports.append(("<stdin>" if path == "-" else path, None, [], err))
+            reports.append(("<stdin>" if path == "-" else path, program, [], err))
             continue
         dv = float(result.final.dv_margin[0]) * 1000.0
         kept = [f for f in findings if _keep(f, threshold, dv)]

@@ -158,3 +158,20 @@ def test_the_node_column_wraps_a_node_a_hair_below_360_deg(tmp_path, capsys, mon
     table = capsys.readouterr().out
     row = next(ln for ln in table.splitlines() if ln.lstrip().startswith("7 "))
     assert "raan" in table and "360.0" not in row and row.split()[-4] == "0"
+
+
+def test_check_of_a_plan_that_cannot_be_flown_names_its_models(tmp_path, capsys):
+    """A plan that reads but stops (a finite plane turn no length reaches) is not checked;
+    the caution still names the models it says it is priced under."""
+    import json
+
+    from apsidal.compiler.cli import main
+
+    text = EVERYTHING.replace("engine main isp 324 s thrust 220 kN",
+                              "engine main isp 324 s thrust 2 N")
+    path = tmp_path / "all.aps"
+    path.write_text(text)
+    assert main(["check", str(path), "--format", "json"]) == 2
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["plans"][0]["error"]["line"] == line_of(text, "burn turn") + 1
+    assert "J2 drift" in doc["caution"] and "constant thrust" in doc["caution"]
