@@ -768,6 +768,16 @@ def minimise(model: Model, X: np.ndarray, objective: str, tolerance: float | Non
         raise _complain(f"no value of `{model.knobs[0].target}` from {number_text(lo)} to "
                         f"{number_text(hi)} can be flown (the first: {P.reason(0)})",
                         "give a range where the plan can be flown", model.span, model.source)
+    flown = cost[np.isfinite(cost)]
+    if flown.size > 1 and np.ptp(flown) <= 1e-12 * np.max(np.abs(flown)):
+        # the total does not move with the value (a coast's length and the propellant):
+        # any point would be "best", and naming one would be a number that means nothing
+        raise _complain(f"{objective} is the same at every value of `{model.knobs[0].target}` "
+                        f"from {number_text(lo)} to {number_text(hi)} {model.units[0]} ({flown[0]:.6g} "
+                        f"{ {'propellant_kg': 'kg', 'dv_m_s': 'm/s'}.get(key, 's')}): there is "
+                        "no best value", "minimise another total (propellant, dv, "
+                        "elapsed), or vary the quantity over a table of values instead",
+                        model.span, model.source)
     k = int(np.argmin(cost))
     a, b = xs[max(k - 1, 0)], xs[min(k + 1, len(xs) - 1)]
     tol = tolerance if tolerance is not None else abs(hi - lo) * 1e-6

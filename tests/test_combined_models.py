@@ -12,6 +12,7 @@ our own.
 from __future__ import annotations
 
 import json
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -26,6 +27,7 @@ from test_finite import G0, MU, circular, scipy_flight
 from test_sweep import separate_run
 
 RE = 6378.1366  # km, the catalogue's Earth (IERS 2010)
+ROOT = Path(__file__).resolve().parent.parent
 J2 = 1.0826359e-3  # IERS Conventions 2010
 
 
@@ -312,3 +314,19 @@ def test_variants_of_generated_plans_under_every_model_are_separate_runs(data):
         assert priced.totals["dv_m_s"][i] == pytest.approx(f.dv[0] * 1000, rel=1e-9, abs=1e-9)
         assert priced.totals["elapsed_s"][i] == pytest.approx(f.t[0], rel=1e-9, abs=1e-6)
         assert priced.totals["final_mass_kg"][i] == pytest.approx(f.mass[0], rel=1e-9)
+
+
+@pytest.mark.parametrize("objective", ["propellant", "dv"])
+def test_minimising_a_total_a_drift_does_not_move_is_refused(tmp_path, capsys, objective):
+    """Under `gravity j2` the wait in a drift orbit sets the node, not the propellant: a
+    best wait for propellant would be any point of the range (it named one, exit 0)."""
+    path = tmp_path / "plan.aps"
+    path.write_text((ROOT / "samples" / "tessera-drift.aps").read_text())
+    assert main(["sweep", str(path), "--vary", "drift-low.for=40..80d", "--minimise",
+                 objective]) == 2
+    err = capsys.readouterr().err
+    assert f"{objective} is the same at every value of `drift-low.for` from 40.0 to 80.0 d" \
+        in err and "no best value" in err
+    assert main(["sweep", str(path), "--vary", "drift-low.for=40..80d", "--minimise",
+                 "elapsed"]) == 0  # the wait does move the elapsed time
+    assert "at the end of the range" in capsys.readouterr().out
