@@ -172,13 +172,33 @@ def hover(text: str, line: int, character: int, path: str = "<plan>") -> str | N
     index = next((k for k, st in enumerate(program.steps)
                   if st.span is not None and st.span.start <= where <= st.span.end), None)
     if index is None:
-        return None
+        return _setting_text(program, where)
     name = program.steps[index].name
     steps = [s for s in report["steps"] if s["name"] == name
              or s["name"].startswith(name + "/")]
     if not steps:
         return f"**{name}**: not flown (the plan stops before it)"
     return "\n\n".join(_step_text(s) for s in steps)
+
+
+def _setting_text(program, where: int) -> str | None:
+    """Markdown for a statement that is no step under the offset ``where``: a model
+    setting (what its choice means), the epoch, a trade study; None elsewhere."""
+    from apsidal.lang import syntax as ast
+    from apsidal.lang.parse import MODEL_CHOICES, MODEL_HINTS
+
+    st = next((s for s in program.plan.statements if getattr(s, "span", None) is not None
+               and s.span.start <= where <= s.span.end), None)
+    if isinstance(st, ast.Setting) and st.word is not None and st.key in MODEL_HINTS:
+        choices = " or ".join(f"`{c}`" for c in MODEL_CHOICES[st.key])
+        return f"**{st.key} {st.word.text}**: {choices}: {MODEL_HINTS[st.key].strip()[1:-1]}"
+    if isinstance(st, ast.Epoch):
+        return (f"**epoch** {st.timestamp} {st.scale}: the date of the start orbit; "
+                "`apsidal export` dates the state and every burn from it")
+    if isinstance(st, ast.Trade):
+        return (f"**trade {st.name.text}**: priced by `apsidal sweep PLAN --trade "
+                f"{st.name.text}` (`run`, `check` and `size` leave it out)")
+    return None
 
 
 def _step_text(s: dict) -> str:

@@ -175,3 +175,14 @@ def test_check_of_a_plan_that_cannot_be_flown_names_its_models(tmp_path, capsys)
     doc = json.loads(capsys.readouterr().out)
     assert doc["plans"][0]["error"]["line"] == line_of(text, "burn turn") + 1
     assert "J2 drift" in doc["caution"] and "constant thrust" in doc["caution"]
+
+
+def test_hover_on_a_model_setting_an_epoch_and_a_trade_says_what_it_is():
+    said = {start: lsp.hover(EVERYTHING, line_of(EVERYTHING, start), 1)
+            for start in ("gravity", "burns", "steering", "epoch", "trade engine-size")}
+    assert said["gravity"].startswith("**gravity j2**: `point-mass` or `j2`")
+    assert said["burns"].startswith("**burns finite**: `impulsive` or `finite`")
+    assert said["steering"].startswith("**steering inertial**: `velocity` or `inertial`")
+    assert "`apsidal export`" in said["epoch"]
+    assert "apsidal sweep PLAN --trade engine-size" in said["trade engine-size"]
+    assert lsp.hover(EVERYTHING, line_of(EVERYTHING, "margin"), 1) is None
