@@ -427,13 +427,19 @@ def _solve_burn(step: Burn, r, v, ctx: Context, fails: Failures, normal=None):
     if normal is None and step.normal is not None:
         normal = np.broadcast_to(np.asarray(step.normal), r.shape)
     if normal is None and (step.inclination is not None or step.raan is not None):
-        normal = normal_for(r, v, step.inclination, step.raan, fails)
+        normal = normal_for(r, v, step.inclination, step.raan, fails, _descending(step))
     goals = conic_goals.ConicGoals.of(step)
     if goals is not None:
         v_new = conic_goals.new_velocity(r, v, mu, goals, normal, fails, ctx.radius)
     else:
         v_new = new_velocity(r, v, mu, shape, normal, fails, ctx.radius)
     return np.where(fails.ok[:, None], v_new, v)
+
+
+def _descending(step) -> bool:
+    """Whether a step stands `at descending node`: from an equatorial orbit its plane goal
+    then leaves the craft at the new plane's descending node (``normal_for``)."""
+    return step.place is not None and step.place.kind == "descending node"
 
 
 def _sun_synchronous_burn(step: Burn, r, v, ctx: Context, fails: Failures):
@@ -451,7 +457,8 @@ def _sun_synchronous_burn(step: Burn, r, v, ctx: Context, fails: Failures):
     for _ in range(30):
         scratch = Failures(r.shape[0])
         ok = np.isfinite(inc)
-        normal = normal_for(r, v, np.where(ok, inc, 0.0), step.raan, scratch)
+        normal = normal_for(r, v, np.where(ok, inc, 0.0), step.raan, scratch,
+                            _descending(step))
         el = orbit(_solve_burn(plain, r, v, ctx, scratch, normal))
         closed = el.closed & (el.sma > 0)
         new = np.where(closed, sun_synchronous(ctx.mu, ctx.radius, ctx.j2,
@@ -467,7 +474,8 @@ def _sun_synchronous_burn(step: Burn, r, v, ctx: Context, fails: Failures):
          "has no sun-synchronous inclination: it is open, or too high for any "
          "inclination's node drift to match the Sun's"),
         "lower the orbit first, or give the inclination in degrees"))
-    normal = normal_for(r, v, np.where(bad, el.inclination, inc), step.raan, fails)
+    normal = normal_for(r, v, np.where(bad, el.inclination, inc), step.raan, fails,
+                        _descending(step))
     return _solve_burn(plain, r, v, ctx, fails, normal)
 
 
@@ -777,7 +785,7 @@ def _transfer_from(step: Transfer, index: int, batch: Batch, ctx: Context, fails
     if step.changes_plane:
         # the target plane as seen from the first burn's position
         tmp = Failures(batch.size)
-        target = normal_for(r0, v0, step.inclination, step.raan, tmp)
+        target = normal_for(r0, v0, step.inclination, step.raan, tmp, _descending(step))
         fails.merge(~tmp.ok, tmp)
         if step.form == "hohmann":
             share = (np.full(batch.size, step.split) if step.split is not None

@@ -291,11 +291,17 @@ def crossings(r, v, target):
     return np.where(same, 0.0, first), np.where(same, 0.0, second)
 
 
-def normal_for(r, v, inclination, raan, failures: Failures):
+def normal_for(r, v, inclination, raan, failures: Failures, descending=False):
     """The orbit normal after a plane goal, containing the current position.
 
     ``inclination`` and/or ``raan`` are arrays (rad) or None.  With inclination alone the
-    rotation about the radius vector is the smaller of the two that reach it.  With
+    rotation about the radius vector is the smaller of the two that reach it.  From an
+    equatorial orbit (the normal within ``EQUATORIAL_RAD`` of the pole, where every point
+    is a node) the two are the same size: the craft is then put at the ascending node of
+    the new plane (heading north), or at its descending node where ``descending`` (a
+    bool or one per element: the burn was placed `at descending node`).  The sign of a
+    rounding error must never pick the plane: the same step would reach another plane
+    when it is priced in another batch.  With
     ``raan`` (alone or with an inclination) the plane is fixed and must pass through the
     position; the error names the two places where it does.
     """
@@ -349,7 +355,9 @@ def normal_for(r, v, inclination, raan, failures: Failures):
     w = cross(rhat, u)
     a = ci / safe
     b = np.sqrt(np.maximum(slack, 0.0)) / safe
-    b = np.where(dot(h0, w) < 0, -b, b)
+    flat = np.hypot(h0[:, 0], h0[:, 1]) <= np.sin(EQUATORIAL_RAD)
+    south = np.broadcast_to(np.asarray(descending, dtype=bool), flat.shape)
+    b = np.where(np.where(flat, south, dot(h0, w) < 0), -b, b)
     target = a[:, None] * u + b[:, None] * w
     return np.where(pole[:, None], h0, unit(target))
 
