@@ -487,10 +487,22 @@ def _burn_at(step: Burn, place: Place, r, v, ctx: Context, normal=None,
     return BurnOutcome(r1, v1, v2, coast, fails, place.label())
 
 
+COST_TIE = 1e-9  # km/s (1 micrometre per second), and relative: two costs this close tie
+
+
 def _prefer_first(cost_a, cost_b, wait_a, wait_b) -> np.ndarray:
-    """The first option where it is cheaper, or as cheap and sooner."""
-    tie = np.abs(cost_a - cost_b) <= 1e-12 * np.maximum(cost_a, cost_b) + 1e-15
-    return np.where(tie, wait_a <= wait_b, cost_a < cost_b)
+    """The first option where it is cheaper, or as cheap and sooner.
+
+    As cheap means within ``COST_TIE``, absolute and relative: far above the rounding
+    of a delta-v (two burns that do nothing both cost about 1e-13 km/s; the same turn
+    at either node of a circular orbit differs in the last digits), far below anything a
+    report shows.  A tie decided by rounding would send the same step to one node when
+    it is priced alone and to the other in a batch.
+    """
+    tie = np.abs(cost_a - cost_b) <= COST_TIE * (np.maximum(cost_a, cost_b) + 1.0)
+    # the same with the waits (s): the first unless the other is sooner past rounding
+    sooner = wait_a <= wait_b + 1e-9 * (np.maximum(np.abs(wait_a), np.abs(wait_b)) + 1.0)
+    return np.where(tie, sooner, cost_a < cost_b)
 
 
 def _cheaper(a: BurnOutcome, b: BurnOutcome) -> BurnOutcome:

@@ -440,6 +440,12 @@ CASES = [
                                          "entry at 120 km"),
         10, col(s, "periapsis"), "periapsis to -7000 km", ("lies past the centre",),
         "down to an altitude above -6378.137 km"),
+    # a plane turned by more than 90 deg with an apoapsis goal: the nearest velocity is
+    # radial (rising to 1500 km and falling back through the centre), refused whichever
+    # way along the radius it points (it was passed as an open orbit when outward)
+    Bad("radial-orbit-falls-back", plan("burn b at periapsis: apoapsis to 1500 km, "
+                                        "inclination to 150 deg"),
+        10, 1, "burn b", ("b:", "under the surface", "-6378.137 km"), "raise the periapsis"),
     Bad("under-the-surface-before-the-last-burn",
         plan("burn down: periapsis to -30 km", "burn trim: along 1 m/s", "entry at 120 km"),
         10, 1, "burn down", ("down:", "under the surface", "-30.000 km"), "raise the periapsis"),
