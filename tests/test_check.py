@@ -418,7 +418,7 @@ def _elements(report):
 
 @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(movable_plans())
-# a turn from the equator that fell either way by rounding (tests/test_check_equatorial_ties.py)
+# a turn from the equator that fell either way by rounding (tests/test_rounding_ties.py)
 @example(plan("start orbit periapsis 300 km apoapsis 1312 km inclination 5 deg\n"
               "burn b0 at apoapsis: periapsis to 301 km\n"
               "burn b1 at node: inclination to 0 deg\n"

@@ -72,7 +72,7 @@ def exhaustive(program, block):
 
 @settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(small_blocks())
-# a turn from the equator that fell either way by rounding (tests/test_check_equatorial_ties.py)
+# a turn from the equator that fell either way by rounding (tests/test_rounding_ties.py)
 @example(HEAD + "burn tilt0 at node: inclination to 0 deg\n"
          "burn tilt1 at node: inclination to 1 deg\n"
          "burn up2 at periapsis: apoapsis to 2000 km\n"
