@@ -933,9 +933,19 @@ def _three_burn_plane_change(step: Transfer, index, batch: Batch, ctx: Context, 
     fails.add(~el.closed, lambda i: (
         (f"a three-burn plane change starts from a closed orbit; this one is open "
          f"(eccentricity {el.ecc[i]:.6f})"), "capture first, then turn the plane"))
+    normal = None
+    if ctx.drift is None and step.raan is None:
+        # the turn stands opposite the first point (-r0, flying the other way in the same
+        # plane), and the plane it turns to passes through both: on a tie (from an
+        # equatorial orbit) the first point, where the step is placed, is the new plane's
+        # ascending node, or its descending node when placed so; the far point the other
+        tmp = Failures(batch.size)
+        normal = normal_for(-r0, -v0, step.inclination, None, tmp, not _descending(step))
+        fails.merge(~tmp.ok, tmp)
     rows = []
-    for burn, first in ((raise_, sweep), (turn, None), (lower, None)):
-        batch, row = _burn_rows(burn, index, burn.name, batch, ctx, fails, None, first)
+    for burn, first, given in ((raise_, sweep, None), (turn, None, normal),
+                               (lower, None, None)):
+        batch, row = _burn_rows(burn, index, burn.name, batch, ctx, fails, given, first)
         rows.append(row)
     return batch, rows
 

@@ -266,3 +266,17 @@ def test_no_step_hinges_on_rounding(text, seed):
     except PlanError:
         return
     assert_steps_ignore_rounding(text, seed)
+
+
+@pytest.mark.parametrize("where, raan", [("", 0.0), (" at node", 0.0),
+                                         (" at ascending node", 0.0),
+                                         (" at descending node", 180.0)])
+def test_a_three_burn_turn_from_the_equator_follows_where_it_is_placed(where, raan):
+    # the first point (+x, anomaly 0) is the new plane's ascending node, or its
+    # descending node when the transfer is placed there; the turn itself stands opposite
+    text = plan(f"start circular 400 km\ntransfer t{where}: inclination to 60 deg via "
+                "apoapsis 20000 km\n")
+    end = reprice(text)["steps"][-1]["orbit_after"]
+    assert end["inclination_deg"] == pytest.approx(60.0, abs=1e-9)
+    assert math.cos(math.radians(end["raan_deg"] - raan)) == pytest.approx(1.0, abs=1e-12)
+    assert_steps_ignore_rounding(text)
