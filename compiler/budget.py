@@ -260,6 +260,13 @@ def shortfall_text(report: dict) -> str:
     if tot.get("propellant_needed_kg") is None:  # the plan stops part-way: no sizing
         return (f"{where}, before the step the plan cannot fly; the load that flies the "
                 "whole plan is known once every step can be flown")
+    if tot.get("topped_up_store"):  # loaded out of ratio: one store short, as carried
+        store = tot["topped_up_store"]
+        other = "oxidiser" if store == "fuel" else "fuel"
+        return (f"{where}; with the {tot[other + '_load_kg']:,.3f} kg of {other} it carries it "
+                f"needs {tot[store + '_needed_kg']:,.3f} kg of {store} (margins, residual and "
+                f"reserve included) and carries {tot[store + '_load_kg']:,.3f} kg: add "
+                f"{tot[store + '_shortfall_kg']:,.3f} kg of {store}")
     if "fuel_needed_kg" in tot:
         adds = [f"{tot[k + '_shortfall_kg']:,.3f} kg of {k}" for k in ("fuel", "oxidiser")
                 if tot[k + "_shortfall_kg"] > 0]
@@ -303,10 +310,52 @@ def _component_totals(totals: dict, result: Result, book, needed, feasible: bool
     f_need, o_need = components_needed(result, needed)
     totals["fuel_needed_kg"], totals["oxidiser_needed_kg"] = finite(f_need, 6), finite(o_need, 6)
     f_short, o_short = max(f_need - craft.fuel, 0.0), max(o_need - craft.oxidiser, 0.0)
+    if not feasible and f_short <= 0.0 and o_short <= 0.0:
+        # loaded out of the burns' ratio: the store that limits, topped up with the other
+        # as carried (the split of the least load, above, would not fly this craft)
+        from .components import limiting_store, store_needed
+
+        store = book.exhausted or limiting_store(book, craft.default_engine.mixture)
+        need = store_needed(result.program, store, fits)
+        if need is not None:
+            add = max(need - getattr(craft, store), 0.0)
+            f_short, o_short = (add, 0.0) if store == "fuel" else (0.0, add)
+            totals[f"{store}_needed_kg"] = finite(need, 6)
+            totals["topped_up_store"] = store
     totals["fuel_shortfall_kg"] = 0.0 if feasible else finite(f_short, 6)
     totals["oxidiser_shortfall_kg"] = 0.0 if feasible else finite(o_short, 6)
     if not feasible:
         totals["shortfall_kg"] = finite(max(f_short + o_short, totals["shortfall_kg"] or 0.0), 6)
+
+
+def _end_of(result: Result, book, short) -> tuple[float, float, float, bool]:
+    """(usable propellant left, the part of it the default engine can burn, the delta-v
+    capacity that gives (km/s), the load covers every step and the reserve) at the end of
+    a priced plan; ``book`` its ``components.ledger``, ``short`` its first uncovered row."""
+    final, p = result.final, result.program
+    ve = p.craft.default_engine.exhaust_speed
+    mass, left = float(final.mass[0]), float(final.propellant[0])
+    if book.fuel_left_kg is not None:  # two stores: a store run dry leaves nothing
+        left = max(book.fuel_left_kg, 0.0) + max(book.oxidiser_left_kg, 0.0)
+    burnable = book.burnable_at_end(p.craft.default_engine.mixture)
+    # what the default engine can still burn: of two stores, the part left in its ratio
+    fire = left if burnable is None else min(left, burnable)
+    # capacity from the usable propellant left (none when the load ran out)
+    capacity = ve * math.log(mass / (mass - fire)) if mass > fire > 0 else 0.0
+    # 10 um/s of slack: the sized load as printed (to the microgram) still fits
+    return left, fire, capacity, bool(short is None and capacity >= p.reserve - 1e-8)
+
+
+def fits(result: Result) -> bool:
+    """The plan flies to its end, its load covers every step and the reserve is met."""
+    from .components import ledger
+
+    if not result.ok:
+        return False
+    book = ledger(result)
+    if result.first_uncovered is not None or not all(book.covered.values()):
+        return False
+    return _end_of(result, book, None)[3]
 
 
 def budget(result: Result) -> dict:
@@ -333,21 +382,12 @@ def budget(result: Result) -> dict:
             if short is None or result.rows.index(short) > k:
                 short = result.rows[k]
     final = result.final
-    ve = p.craft.default_engine.exhaust_speed
     craft = p.craft
-    mass, left = float(final.mass[0]), float(final.propellant[0])
-    if book.fuel_left_kg is not None:  # two stores: a store run dry leaves nothing
-        left = max(book.fuel_left_kg, 0.0) + max(book.oxidiser_left_kg, 0.0)
-    burnable = book.burnable_at_end(craft.default_engine.mixture)
-    # what the default engine can still burn: of two stores, the part left in its ratio
-    fire = left if burnable is None else min(left, burnable)
-    # capacity from the usable propellant left (none when the load ran out)
-    capacity = ve * math.log(mass / (mass - fire)) if mass > fire > 0 else 0.0
+    mass = float(final.mass[0])
+    left, fire, capacity, reserve_ok = _end_of(result, book, short)
     used = craft.usable - float(final.propellant[0])
     sizing = size(result) if result.ok else None
     needed = sizing.load if sizing is not None else None
-    # 10 um/s of slack: the sized load as printed (to the microgram) still fits
-    reserve_ok = bool(short is None and capacity >= p.reserve - 1e-8)
     feasible = bool(result.ok and reserve_ok)
     totals = {
         "dv_m_s": finite(final.dv[0] * 1000.0, 6),

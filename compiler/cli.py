@@ -195,8 +195,7 @@ def build_parser(command: str | None = None) -> Parser:
     bod = sub.add_parser("bodies", help="list the body catalogue and its sources")
     bod.set_defaults(func=cmd_bodies)
     if command != "run":
-        from . import (check_cli, export_cli, lsp_cli, picture_cli, review_cli, size_cli,
-                       sweep_cli)
+        from . import check_cli, export_cli, lsp_cli, picture_cli, review_cli, size_cli, sweep_cli
 
         check_cli.register(sub)
         review_cli.register(sub)

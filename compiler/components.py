@@ -23,6 +23,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass, replace
 
+import numpy as np
+
 from .evaluate import PRICED_KINDS, Result, run
 
 TOL = 1e-9  # kg
@@ -60,7 +62,11 @@ class Ledger:
 
 def usable_components(craft) -> tuple[float, float]:
     """Usable fuel and oxidiser of a craft that loads them apart."""
-    share = craft.residual / craft.propellant if craft.propellant > 0 else 0.0
+    if np.ndim(craft.propellant) == 0:
+        share = craft.residual / craft.propellant if craft.propellant > 0 else 0.0
+    else:  # a trade's variants (compiler/sweep.py): a load per variant
+        loaded = craft.propellant > 0
+        share = np.where(loaded, craft.residual / np.where(loaded, craft.propellant, 1.0), 0.0)
     return craft.fuel * (1.0 - share), craft.oxidiser * (1.0 - share)
 
 
@@ -101,6 +107,41 @@ def ledger(result: Result) -> Ledger:
     return out
 
 
+def limiting_store(book: Ledger, mixture: float | None) -> str:
+    """The store that limits an engine of ``mixture`` at the end of the chain."""
+    if mixture is None:
+        return "fuel"
+    return "fuel" if book.fuel_left_kg * mixture <= book.oxidiser_left_kg else "oxidiser"
+
+
+GROWTH_LIMIT = 100.0  # a store is searched up to this many times the craft's whole load
+
+
+def store_needed(program, store: str, fits, tol: float = 1e-7) -> float | None:
+    """The least load of ``store`` (``fuel`` or ``oxidiser``) that flies ``program``
+    (``fits`` of its priced result) with the other store as carried: the answer for a
+    craft loaded out of its burns' ratio.  Bisection over priced plans (more of one store
+    never makes a plan that fits stop fitting, short of the other running out); None
+    where no such load exists (the other store runs out too)."""
+    craft = program.craft
+
+    def flies(x: float) -> bool:
+        f, o = (x, craft.oxidiser) if store == "fuel" else (craft.fuel, x)
+        trial = replace(craft, fuel=f, oxidiser=o, propellant=f + o)
+        return fits(run(replace(program, craft=trial)))
+
+    lo = float(getattr(craft, store))
+    hi = max(2.0 * lo, lo + 1.0)
+    while not flies(hi):
+        lo, hi = hi, 2.0 * hi
+        if hi > GROWTH_LIMIT * max(craft.propellant, 1.0):
+            return None
+    while hi - lo > tol * hi:
+        mid = 0.5 * (lo + hi)
+        lo, hi = (lo, mid) if flies(mid) else (mid, hi)
+    return hi
+
+
 def components_needed(result: Result, load: float) -> tuple[float, float]:
     """The fuel and oxidiser of the sized ``load``: each burn's split at that load, the
     end reserve split by the default engine's ratio, the residual in proportion."""
@@ -120,3 +161,32 @@ def components_needed(result: Result, load: float) -> tuple[float, float]:
     if burnt > 0:
         fuel, ox = fuel + residual * fuel / burnt, ox + residual * ox / burnt
     return fuel, ox
+
+
+@dataclass
+class Stores:
+    """The two stores of a craft that loads fuel and oxidiser apart, followed along a
+    batch of variants (``ledger`` for many at once: the same rules, array by array)."""
+
+    covered: np.ndarray  # (n, rows) both stores still cover each priced row
+    left: np.ndarray  # (n,) usable fuel and oxidiser left at the end (a dry store: none)
+    burnable: np.ndarray  # (n,) of that, what an engine of the default ratio can burn
+
+
+def stores_over_batch(rows, craft, mixture, n: int) -> Stores:
+    """``ledger``'s stores for the priced ``rows`` (each with ``propellant`` and ``engine``
+    over ``n`` variants) of a ``craft`` with components; ``mixture`` is the default
+    engine's (what the end reserve burns at)."""
+    fuel_usable, ox_usable = usable_components(craft)
+    fuel, ox = np.zeros(n), np.zeros(n)
+    covered = np.ones((n, max(len(rows), 1)), dtype=bool)
+    exhausted = np.zeros(n, dtype=bool)
+    for k, row in enumerate(rows):
+        f, o = split(np.asarray(row.propellant, float), row.engine.mixture)
+        fuel, ox = fuel + f, ox + o
+        exhausted |= (fuel > fuel_usable + TOL) | (ox > ox_usable + TOL)
+        covered[:, k] = ~exhausted
+    f_left, o_left = fuel_usable - fuel, ox_usable - ox
+    f_pos, o_pos = np.maximum(f_left, 0.0), np.maximum(o_left, 0.0)
+    burnable = f_pos if mixture is None else np.minimum(f_pos, o_pos / mixture) * (1.0 + mixture)
+    return Stores(covered, f_pos + o_pos, burnable)

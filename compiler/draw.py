@@ -102,22 +102,30 @@ def _colour(colours: dict[str, str], name: str) -> str:
 # --- chain ---------------------------------------------------------------------------
 
 
-def chain_figure(chain: Chain, colours: dict[str, str], title: str = "", view: str = "top",
-                 prefix: str = "", note: str = NOTE):
-    """The orbits of a plan around its body, to scale; burns numbered where they happen."""
+def chain_figure(chains: Chain | list[Chain], colours: dict[str, str], title: str = "",
+                 view: str = "top", prefix: str = "", note: str = NOTE):
+    """The orbits of a plan around its body, to scale; burns numbered where they happen.
+    A plan of several bodies (``pictures.chains``) gets one panel per phase, one above
+    the other, each around its own body; the ids of panel k > 0 carry ``phaseK-``."""
+    chains = [chains] if isinstance(chains, Chain) else list(chains)
+    n = len(chains)
     with _style():
-        fig = _figure("chain")
-        if view == "3d":
-            ax = fig.add_subplot(projection="3d")
-            _chain_3d(ax, chain, colours, prefix)
-        else:
-            ax = fig.add_subplot()
-            _chain_top(ax, chain, colours, prefix)
-        ax.set_title(_title(title or "Orbit chain"), loc="left")
-        if chain.cut:
-            ax.text(0.01, 0.99, chain.cut, transform=ax.transAxes, va="top", fontsize=7,
-                    color=INK, bbox=LABEL_BOX, zorder=8)
-        fig.subplots_adjust(left=0.13, right=0.74, bottom=0.09, top=0.9)
+        w, h = SIZES["chain"]
+        fig = plt.figure(figsize=(w, h * n))
+        for k, chain in enumerate(chains):
+            pre = prefix if k == 0 else f"{prefix}phase{k}-"
+            if view == "3d":
+                ax = fig.add_subplot(n, 1, k + 1, projection="3d")
+                _chain_3d(ax, chain, colours, pre)
+            else:
+                ax = fig.add_subplot(n, 1, k + 1)
+                _chain_top(ax, chain, colours, pre)
+            head = title or "Orbit chain"
+            if n > 1:
+                head = f"{head}: around {chain.body}" if k == 0 else chain.cut
+            ax.set_title(_title(head), loc="left")
+        fig.subplots_adjust(left=0.13, right=0.74, bottom=0.09 / n, top=1.0 - 0.1 / n,
+                            hspace=0.32)
         _note(fig, note)
     return fig
 

@@ -60,16 +60,16 @@ def price_finite(batch, out, engine: EngineSpec, margin: float, ctx, fails: Fail
          f"({fb.length[i]:.0f} s): a low-thrust spiral, which a burn held at one angle "
          "does not price, or a goal out of a finite burn's reach (an apsis at the impulse "
          "point's own radius, a circle made there)"),
-        "price this plan's burns impulsive (`burns impulsive`), split the burn into "
+        ("price this plan's burns impulsive (`burns impulsive`), split the burn into "
         "burns of a fraction of a revolution each, or aim an apsis a little short of "
-        "this point's altitude and trim after it"))
+        "this point's altitude and trim after it")))
     fails.add(~fb.ok & ~fb.too_long & fails.ok, lambda i: (
         (f"flown as a finite burn of {engine.thrust:g} N ({ctx.steering} steering) it "
          f"cannot reach its {goal} at any length, up to burning the craft's whole mass of "
          f"{batch.mass[i]:.3f} kg: a finite burn spreads over an arc, and an apsis at the "
          "impulse point's own radius (a circle made there) is out of its reach"),
-        "aim the apsis a little short of this point's altitude and trim after it, or price "
-        "this plan's burns impulsive (`burns impulsive`)"))
+        ("aim the apsis a little short of this point's altitude and trim after it, or price "
+        "this plan's burns impulsive (`burns impulsive`)")))
     ok = fails.ok
     dv = np.where(ok, fb.dv, dv_imp)
     dvm = dv * (1.0 + margin)
@@ -86,9 +86,9 @@ def price_finite(batch, out, engine: EngineSpec, margin: float, ctx, fails: Fail
     new = Batch(r=r_end, v=v_end, mass=batch.mass - need, propellant=batch.propellant - need,
                 t=batch.t + out.coast + 0.5 * length, dv=batch.dv + dv,
                 dv_margin=batch.dv_margin + dvm, expect_ok=batch.expect_ok)
-    extra = dict(dv_impulsive=dv_imp, finite_time=length,
-                 finite_arc=np.where(ok, fb.arc, 0.0), v_impulsive=out.v_after, r_impulse=out.r,
-                 finite_goal=goal, spec=step)
+    extra = {"dv_impulsive": dv_imp, "finite_time": length,
+                 "finite_arc": np.where(ok, fb.arc, 0.0), "v_impulsive": out.v_after, "r_impulse": out.r,
+                 "finite_goal": goal, "spec": step}
     return new, vec, dv, dvm, need, burn_time, covered, extra
 
 

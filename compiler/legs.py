@@ -141,16 +141,16 @@ def leg_rows(step: Leg, index: int, batch, ctx, fails):
         (f"a leg leaves on a hyperbola, but the craft is on a closed orbit about "
          f"{step.depart.name} (specific energy {energy[i]:.6f} km2/s2): the leg to "
          f"{step.body.name} needs a departure vinf of {step.vinf_depart:.5f} km/s"),
-        f"burn onto the departure hyperbola before the leg: a burn with the goal "
-        f"`vinf to leg` (here {goal})"))
+        (f"burn onto the departure hyperbola before the leg: a burn with the goal "
+        f"`vinf to leg` (here {goal})")))
     off = ~closed & (np.abs(vinf - step.vinf_depart) > VINF_TOL)
     fails.add(off, lambda i: (
         (f"the departure hyperbola's vinf is {vinf[i]:.5f} km/s, but the leg to "
          f"{step.body.name} needs {step.vinf_depart:.5f} km/s"
          + (" (the Hohmann transfer between the two orbits)" if step.form == "hohmann"
             else "")),
-        f"give the departure burn the goal `vinf to leg` (here {goal}), or the leg the "
-        "vinf the craft leaves with"))
+        (f"give the departure burn the goal `vinf to leg` (here {goal}), or the leg the "
+        "vinf the craft leaves with")))
     n = batch.size
     dt = np.full(n, step.duration)
     ok = fails.ok[:, None]

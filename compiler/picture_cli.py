@@ -125,7 +125,7 @@ def picture(kind: str, result, report: dict, view: str = "top", prefix: str = ""
     colours = colours if colours is not None else pictures.colours(
         pictures.priced_names(report))
     if kind == "chain":
-        return draw.chain_figure(pictures.chain(result, report), colours,
+        return draw.chain_figure(pictures.chains(result, report), colours,
                                  title if title is not None else
                                  f"{plan}: orbit chain", view, prefix, note)
     if kind == "waterfall":

@@ -107,7 +107,7 @@ class Chain:
     burns: list[BurnMark] = field(default_factory=list)
     thrust: list[Arc] = field(default_factory=list)  # finite burns' thrust arcs
     start: np.ndarray | None = None  # (3,) km
-    cut: str | None = None  # where the plan leaves this body (later phases not drawn)
+    cut: str | None = None  # a phase after a leg: around which body, from which leg
 
     def project(self, points: np.ndarray) -> np.ndarray:
         """Inertial points (..., 3) in the view's axes (..., 3): x, y in the first orbit's
@@ -179,9 +179,11 @@ def _inside(points: np.ndarray, radius: float) -> np.ndarray:
     return out
 
 
-def chain(result, report: dict) -> Chain:
+def chains(result, report: dict) -> list[Chain]:
     """The orbits, coast arcs and burn points of a priced plan (``evaluate.run`` and its
-    ``budget.budget`` report; the report's step indices number the burns).
+    ``budget.budget`` report; the report's step indices number the burns), one chain per
+    phase: a plan of several bodies (patched-conic legs) is drawn around each body in
+    turn, a phase after a leg from the arrival start the leg ends on.
 
     >>> from apsidal.compiler.load import load_text
     >>> from apsidal.compiler.evaluate import run
@@ -189,32 +191,48 @@ def chain(result, report: dict) -> Chain:
     >>> res = run(load_text("around earth\\ncraft c { dry 100 kg propellant 50 kg "
     ...     "engine e isp 300 s thrust 10 N }\\nstart circular 400 km inclination 30 deg\\n"
     ...     "burn up at periapsis: apoapsis to 2000 km\\n"))
-    >>> c = chain(res, budget(res))
+    >>> (c,) = chains(res, budget(res))
     >>> len(c.orbits), len(c.burns), bool(abs(c.project(c.start)[2]) < 1e-9)
     (2, 1, True)
     """
-    from .evaluate import context_for
+    from .j2 import Drift
     from .legs import is_leg
 
     p = result.program
-    mu, radius = p.body.gm, p.body.radius
-    r0, v0 = np.asarray(p.start_r, float), np.asarray(p.start_v, float)
-    # a plan of several bodies (patched-conic legs) is drawn around its first body only,
-    # up to its first leg: a state around another body is not drawn around this one
-    leg = next((i for i, s in enumerate(p.steps) if is_leg(s)), None)
-    rows = [row for row in result.rows if leg is None or row.step < leg]
-    states = [(None, "start", r0, v0)]
-    for i, row in enumerate(rows):
+    legs = [i for i, s in enumerate(p.steps) if is_leg(s)]
+    bounds = [-1, *legs, len(p.steps)]  # phase k flies the steps after bounds[k]
+    out = []
+    for k in range(len(bounds) - 1):
+        first, last = bounds[k], bounds[k + 1]
+        body = p.body if k == 0 else p.steps[first].body
+        drift = Drift(body.gm, body.radius, body.j2) if p.gravity == "j2" else None
+        if k == 0:
+            start = (None, "start", np.asarray(p.start_r, float),
+                     np.asarray(p.start_v, float))
+        else:  # the leg's row: the arrival start, around the new body
+            at = next(i for i, row in enumerate(result.rows) if row.step == first)
+            row = result.rows[at]
+            start = (at + 1, row.name, row.after.r[0], row.after.v[0])
+        rows = [(i, row) for i, row in enumerate(result.rows) if first < row.step < last]
+        chain = _phase_chain(rows, report, body, start, drift, p.steering)
+        if k > 0:
+            chain.cut = f"around {body.name}, from leg {p.steps[first].name}"
+        out.append(chain)
+    return out
+
+
+def _phase_chain(rows, report: dict, body, start, drift, steering: str) -> Chain:
+    """One phase's chain: ``rows`` (position in the report, row) flown around ``body``
+    from ``start`` (index or None, name, r, v)."""
+    mu, radius = body.gm, body.radius
+    _, orbit, r0, v0 = start
+    states = [start]
+    for i, row in rows:
         if row.kind == "burn":
             states.append((i + 1, row.name, row.after.r[0], row.after.v[0]))
-    out = Chain(p.body.name, radius, _view_axes(r0, v0, mu), start=r0)
-    if leg is not None:
-        step = p.steps[leg]
-        out.cut = (f"drawn up to leg {step.name} to {step.body.name}; the steps after it "
-                   f"fly around {step.body.name} and are not drawn here")
-    drift = context_for(p).drift  # under `gravity j2` coasts drift
-    r, v, orbit = r0, v0, "start"
-    for i, row in enumerate(rows):
+    out = Chain(body.name, radius, _view_axes(r0, v0, mu), start=r0)
+    r, v = r0, v0
+    for i, row in rows:
         report_step = report["steps"][i]
         seconds = report_step.get("coast_before_s", 0.0) if row.kind == "burn" else (
             report_step["coast_time_s"] if row.kind in ("coast", "entry") else 0.0)
@@ -224,7 +242,7 @@ def chain(result, report: dict) -> Chain:
         if seconds and seconds > 0.0:
             out.arcs.append(Arc(i + 1, row.name, orbit, _arc(r, v, mu, seconds, drift)))
         if finite:
-            out.thrust.append(Arc(i + 1, row.name, row.name, _thrust_arc(row, mu, p.steering)))
+            out.thrust.append(Arc(i + 1, row.name, row.name, _thrust_arc(row, mu, steering)))
         if row.kind == "burn":
             out.burns.append(BurnMark(i + 1, row.name, row.after.r[0]))
             orbit = row.name

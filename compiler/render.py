@@ -87,16 +87,22 @@ STEP_COLUMNS: tuple[Column, ...] = (
     Column("engine", "engine", lambda s: s.get("engine", ""), 5, right=False),
     Column("orbit", "orbit after: alt. km x km, incl. deg", lambda s: _orbit_cell(s), 0,
            right=False),
+    Column("raan", "raan after deg", lambda s: sig(s["orbit_after"].get("raan_deg")), 1),
     Column("elapsed", "elapsed d hh:mm:ss", lambda s: duration(s["elapsed_s"]), 2),
 )
 COLUMN_KEYS = tuple(c.key for c in STEP_COLUMNS)
 
 
-def finite_columns(report: dict) -> tuple[Column, ...]:
-    """The step columns, the gravity loss only where a burn was priced finite."""
-    if any("finite" in s for s in report["steps"]):
-        return STEP_COLUMNS
-    return tuple(c for c in STEP_COLUMNS if c.key != "loss")
+def model_columns(report: dict) -> tuple[Column, ...]:
+    """The step columns a plan's models call for: the gravity loss only where a burn was
+    priced finite, the node after each step only under `gravity j2` (where coasts move
+    it, and placing a plane by drift is the point)."""
+    drop = set()
+    if not any("finite" in s for s in report["steps"]):
+        drop.add("loss")
+    if report.get("gravity") != "j2":
+        drop.add("raan")
+    return tuple(c for c in STEP_COLUMNS if c.key not in drop)
 
 
 def pick_columns(spec: str | None, columns=STEP_COLUMNS) -> tuple[tuple, bool]:
@@ -223,8 +229,8 @@ def total_lines(tot: dict) -> list[str]:
         (f"delta-v capacity     {sig(tot['dv_capacity_left_m_s'])} m/s left "
          f"(reserve {sig(tot['reserve_m_s'])} m/s: {reserve})"),
         f"elapsed              {duration(tot['elapsed_s'])}",
-    ] + ([f"gravity loss         {sig(tot['gravity_loss_m_s'])} m/s in the delta-v "
-          "(finite burns)"] if "gravity_loss_m_s" in tot else [])
+    ] + ([(f"gravity loss         {sig(tot['gravity_loss_m_s'])} m/s in the delta-v "
+          "(finite burns)")] if "gravity_loss_m_s" in tot else [])
 
 
 def fit_lines(report: dict) -> list[str]:
@@ -287,7 +293,7 @@ def screen(report: dict, columns: str | None = None) -> list[tuple]:
     ...     "caution": "estimates"})]
     ['line', 'table', 'blank', 'line', 'line', 'line', 'line', 'line', 'blank', 'line']
     """
-    cols, keep_all = pick_columns(columns, STEP_COLUMNS if columns else finite_columns(report))
+    cols, keep_all = pick_columns(columns, STEP_COLUMNS if columns else model_columns(report))
     out: list[tuple] = [
         ("line", f"Delta-v budget: {report['plan'] or report['source']}{model_note(report)}",
          "bold", False),
@@ -351,7 +357,7 @@ def _md_row(cells) -> str:
 
 def markdown(report: dict) -> str:
     out = [f"## Delta-v budget: {report['plan'] or report['source']}{model_note(report)}", ""]
-    columns = finite_columns(report)
+    columns = model_columns(report)
     out.append(_md_row([c.heading for c in columns]))
     out.append("|" + "".join("--:|" if c.right else "---|" for c in columns))
     for s in report["steps"]:

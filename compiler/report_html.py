@@ -208,6 +208,12 @@ def _findings(findings: list[dict] | None, report: dict, cut: list[str]) -> str:
     return "\n".join(out)
 
 
+def _bodies(report: dict) -> str:
+    """The bodies the chain picture is drawn around: one panel each (legs)."""
+    names = [report["body"]["name"]] + [s["body"] for s in report["steps"] if s["kind"] == "leg"]
+    return names[0] if len(names) == 1 else (", then ".join(names) + ", a panel each")
+
+
 def _page(title: str, body: list[str], caution: str = CAUTION) -> str:
     from .cli import version
 
@@ -240,8 +246,9 @@ def plan_page(result, report: dict, findings: list[dict] | None = None,
         _fit_text(report), "</section>",
         '<section id="pictures"><h2>Pictures</h2>',
         _figure(picture("chain", result, report, colours=colours, title=""), "chain-",
-                f"The orbits of the plan to scale around {report['body']['name']}, seen "
-                f"from above the start orbit's plane: dashed, each orbit in the colour of "
+                f"The orbits of the plan to scale around {_bodies(report)}, seen "
+                f"from above the plane of its (each phase's) start orbit: dashed, each orbit "
+                f"in the colour of "
                 "the step that made it; solid, the arcs coasted; circles, the burns, "
                 "numbered as in the table."),
         _figure(picture("waterfall", result, report, colours=colours, title=""),

@@ -555,11 +555,18 @@ def _price_chunk(program: Program, n: int):
     ve = craft.default_engine.exhaust_speed
     mass, left = batch.mass, batch.propellant
     fire = left
-    with np.errstate(divide="ignore", invalid="ignore"):
-        capacity = np.where((mass > fire) & (fire > 0), ve * np.log(mass / (mass - fire)), 0.0)
     covered = np.ones((n, max(len(priced), 1)), dtype=bool)
     for k, row in enumerate(priced):
         covered[:, k] = row.covered
+    if craft.components:  # fuel and oxidiser loaded apart: a store run dry stops the plan
+        from .components import stores_over_batch
+
+        stores = stores_over_batch(priced, craft, craft.default_engine.mixture, n)
+        covered &= stores.covered
+        left = stores.left
+        fire = np.minimum(left, stores.burnable)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        capacity = np.where((mass > fire) & (fire > 0), ve * np.log(mass / (mass - fire)), 0.0)
     uncovered = ~covered.all(axis=1)
     first = np.where(uncovered, np.argmin(covered, axis=1), -1)
     reserve_ok = ~uncovered & (capacity >= program.reserve - 1e-8)
@@ -567,7 +574,7 @@ def _price_chunk(program: Program, n: int):
     totals = {
         "dv_m_s": batch.dv * 1000.0,
         "dv_with_margin_m_s": batch.dv_margin * 1000.0,
-        "propellant_kg": craft.usable - left,
+        "propellant_kg": craft.usable - batch.propellant,
         "final_mass_kg": mass,
         "propellant_left_kg": np.maximum(left, 0.0),
         "dv_capacity_left_m_s": capacity * 1000.0,
@@ -695,8 +702,8 @@ def jointly(text: str, path: str, knobs: list[Knob], units: list[str], X: np.nda
 
     def why(i):
         err = errs[inverse[i]]
-        return (f"{texts.said(dict(enumerate(X[i].tolist())))}: the plan is refused: "
-                f"{err.message}", err.hint)
+        return ((f"{texts.said(dict(enumerate(X[i].tolist())))}: the plan is refused: "
+                f"{err.message}"), err.hint)
 
     fails.add(bad[inverse], why)
     return fails, rows[~bad]

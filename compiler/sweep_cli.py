@@ -207,10 +207,6 @@ def cmd_sweep(args) -> int:
             raise UsageError(f"cannot read {path}: {err.strerror}") from None
     plan = parse(text, path)
     program = lower(plan)
-    if program.craft.components:
-        raise UsageError("sweep prices a craft that loads one propellant; this craft loads "
-                         "fuel and oxidiser apart, which `run` and `size` price (their "
-                         "stores are not yet tracked over a batch)")
     study = study_from_args(args, plan)
     if study.vary and study.disperse:
         raise _where(study, "a trade either varies quantities over ranges or disperses "

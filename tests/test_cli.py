@@ -354,9 +354,9 @@ CONSISTENCY_PLANS = [  # one plan or more for each rule `run` reports (our own s
     CRAFT_TEXT + "start circular 400 km\nburn out at periapsis: apoapsis to 1000000 km\n",
     CRAFT_TEXT + "start orbit periapsis 400 km vinf 3 km/s anomaly 0 deg\n"
     "coast drift for 10 d\nburn trim: along 10 m/s\n",
-    "around earth\ncraft c { dry 500 kg propellant 800 kg engine m isp 320 s thrust 400 N }\n"
+    ("around earth\ncraft c { dry 500 kg propellant 800 kg engine m isp 320 s thrust 400 N }\n"
     "burns finite\nstart orbit periapsis 400 km apoapsis 35786 km anomaly 180 deg\n"
-    "burn circ: circular\n",
+    "burn circ: circular\n"),
 ]
 
 

@@ -10,6 +10,7 @@ DOP853 integrating the same two-body motion on the departure and arrival hyperbo
 
 from __future__ import annotations
 
+import itertools
 import math
 import re
 import tomllib
@@ -176,7 +177,7 @@ def test_one_clock_and_one_mass_history():
     assert cruise["mass_after_kg"] == out["mass_after_kg"]
     assert cruise["propellant_kg"] == 0.0 and cruise["dv_m_s"] == 0.0
     masses = [s["mass_after_kg"] for s in rep["steps"]]
-    assert all(b <= a for a, b in zip(masses, masses[1:]))
+    assert all(b <= a for a, b in itertools.pairwise(masses))
     spent = sum(s["propellant_kg"] for s in rep["steps"]) + 300.0
     assert 1200 + 9000 - rep["totals"]["final_mass_kg"] == pytest.approx(spent)
     assert rep["totals"]["dv_m_s"] == pytest.approx(sum(s["dv_m_s"] for s in rep["steps"]))

@@ -60,25 +60,43 @@ def in_plane(r: np.ndarray, h0: np.ndarray) -> np.ndarray:
 
 @pytest.mark.parametrize("path", SAMPLES, ids=IDS)
 def test_chain_has_one_marker_per_burn_at_the_burn_position(tmp_path, path):
+    """Every burn has its marker where the evaluator puts it, in the panel of its phase:
+    a plan of several bodies is drawn around each (ids of panel k > 0 lead `phaseK-`)."""
     report = run_json(path)
     program = load(str(path))
-    # a plan of several bodies is drawn around its first, up to its first leg
-    leg = next((s.name for s in program.steps if s.kind == "leg"), None)
-    until = next((s["index"] for s in report["steps"] if s["name"] == leg), 10**9)
-    burns = [s for s in report["steps"] if s["kind"] == "burn" and s["index"] < until]
-    root = svgread.parse(plot(tmp_path, path, "chain").read_bytes())
-    if leg is not None:
-        texts = " ".join(t.text or "" for t in root.iter(f"{svgread.SVG}text"))
-        assert f"drawn up to leg {leg}" in texts
-    marks = svgread.ids_like(root, r"burn-\d+")
-    assert sorted(marks) == sorted(f"burn-{s['index']}" for s in burns)
-    # the evaluator's burn positions (the chain's rows) and the start orbit's normal
     rows = evaluate(program).rows
-    h0 = np.cross(program.start_r, program.start_v)
+    root = svgread.parse(plot(tmp_path, path, "chain").read_bytes())
+    legs = [s["index"] for s in report["steps"] if s["kind"] == "leg"]
+    bounds = [0, *legs, 10**9]
+    every = svgread.ids_like(root, r"(phase\d+-)?burn-\d+")
+    assert sorted(every) == sorted(
+        ("" if k == 0 else f"phase{k}-") + f"burn-{s['index']}"
+        for s in report["steps"] if s["kind"] == "burn"
+        for k in [sum(s["index"] > b for b in legs)])
+    for k in range(len(bounds) - 1):
+        prefix = "" if k == 0 else f"phase{k}-"
+        burns = [s for s in report["steps"]
+                 if s["kind"] == "burn" and bounds[k] < s["index"] < bounds[k + 1]]
+        if k == 0:
+            r0, v0, radius = program.start_r, program.start_v, report["body"]["radius_km"]
+        else:  # the phase starts on the leg's arrival state
+            leg = rows[bounds[k] - 1]
+            r0, v0 = leg.after.r[0], leg.after.v[0]
+            radius = program.steps[leg.step].body.radius
+        check_panel(root, prefix, burns, rows, r0, v0, radius)
+
+
+def check_panel(root, prefix: str, burns: list[dict], rows, r0, v0, radius: float) -> None:
+    marks = svgread.ids_like(root, rf"{prefix}burn-\d+")
+    assert sorted(marks) == sorted(f"{prefix}burn-{s['index']}" for s in burns)
+    if not burns:
+        return
+    # the evaluator's burn positions (the chain's rows) and the phase's start orbit normal
+    h0 = np.cross(r0, v0)
     h0 = h0 / np.linalg.norm(h0)
     want = in_plane(np.array([rows[s["index"] - 1].after.r[0] for s in burns]), h0)
-    scale = svgread.body_scale(root, report["body"]["radius_km"])
-    got = np.array([svgread.to_km(svgread.marker_positions(marks[f"burn-{s['index']}"]),
+    scale = svgread.body_scale(root, radius, prefix)
+    got = np.array([svgread.to_km(svgread.marker_positions(marks[f"{prefix}burn-{s['index']}"]),
                                   scale)[0] for s in burns])
     km_per_pt = 1.0 / scale[2]
     tol = 0.01 * km_per_pt  # a hundredth of a point: the SVG's own precision is 1e-6 pt
@@ -89,23 +107,26 @@ def test_chain_has_one_marker_per_burn_at_the_burn_position(tmp_path, path):
     d_want = np.linalg.norm(want[:, None] - want[None], axis=-1)
     assert np.allclose(d_got, d_want, atol=2 * tol)
     # each burn's marker sits on the orbit it starts (drawn from that very point), and
-    # the coast that leads to it (the wait for its place) ends there
     # the coast that leads to it (the wait for its place) ends there; a finite burn is
     # marked at its cutoff, its thrust arc drawn from the coast's end (ignition) to it
-    orbits = svgread.ids_like(root, r"orbit-\d+")
-    coasts = svgread.ids_like(root, r"coast-\d+")
-    thrust = svgread.ids_like(root, r"thrust-\d+")
-    assert sorted(thrust) == sorted(f"thrust-{s['index']}" for s in burns if "finite" in s)
+    orbits = svgread.ids_like(root, rf"{prefix}orbit-\d+")
+    coasts = svgread.ids_like(root, rf"{prefix}coast-\d+")
+    thrust = svgread.ids_like(root, rf"{prefix}thrust-\d+")
+    assert sorted(thrust) == sorted(f"{prefix}thrust-{s['index']}" for s in burns
+                                    if "finite" in s)
     for s, xy in zip(burns, got):
-        path_km = svgread.to_km(svgread.path_points(orbits[f"orbit-{s['index']}"]), scale)
+        path_km = svgread.to_km(svgread.path_points(orbits[f"{prefix}orbit-{s['index']}"]),
+                                scale)
         assert np.min(np.linalg.norm(path_km - xy, axis=1)) < tol
         end = xy
         if "finite" in s:
-            arc = svgread.to_km(svgread.path_points(thrust[f"thrust-{s['index']}"]), scale)
+            arc = svgread.to_km(svgread.path_points(thrust[f"{prefix}thrust-{s['index']}"]),
+                                scale)
             assert np.linalg.norm(arc[-1] - xy) < tol
             end = arc[0]
         if s["coast_before_s"] > 0:
-            arc = svgread.to_km(svgread.path_points(coasts[f"coast-{s['index']}"]), scale)
+            arc = svgread.to_km(svgread.path_points(coasts[f"{prefix}coast-{s['index']}"]),
+                                scale)
             assert np.linalg.norm(arc[-1] - end) < tol
 
 

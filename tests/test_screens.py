@@ -204,3 +204,19 @@ def test_an_au_scale_expectation_reads_in_km_and_au():
     assert text == ("apoapsis 227942466 km (1.5237 au) within 149598 km: "
                     "actual 227900000 km (1.52342 au)")
     assert "e+" not in text
+
+
+def test_the_node_column_shows_under_j2_only(report):
+    """A plan under `gravity j2` places planes by drift: its table shows the node after
+    each step where the width allows; a point-mass plan's table does not."""
+    text = screen(report, 120)
+    head = "\n".join(text.splitlines()[:5])
+    if report["gravity"] == "j2":
+        assert "raan" in head
+        from apsidal.compiler.textfmt import sig
+
+        rows = table_rows(text, report)
+        for row, step in zip(rows, report["steps"]):
+            assert sig(step["orbit_after"]["raan_deg"]) in row.split()
+    else:
+        assert "raan" not in head

@@ -107,7 +107,35 @@ KNOBS_B = [
     ("energy.c3", "km2/s2", -25.0, -15.0),
     ("start.inclination", "deg", 0.0, 90.0),
 ]
-CASES = [(PLAN, KNOBS), (PLAN_B, KNOBS_B)]
+# A craft that loads fuel and oxidiser apart, a fuel-only thruster beside the main engine
+# (a dual-mode craft): the stores are followed per variant, and some variants run one dry.
+PLAN_C = """\
+plan "Sweep test craft, two stores"
+around earth
+craft duo {
+    dry 900 kg
+    fuel 700 kg
+    oxidiser 1100 kg
+    residual 2 %
+    engine main isp 318 s thrust 450 N mixture 1.65
+    engine rcs isp 225 s thrust 22 N
+}
+reserve 20 m/s
+start orbit periapsis 250 km apoapsis 35786 km inclination 12 deg
+burn lift at apoapsis: periapsis to 20000 km, inclination to 4 deg
+burn circ at apoapsis: circular, inclination to 0 deg
+burn trim: along 30 m/s using rcs
+allow keeping 60 m/s using rcs
+"""
+KNOBS_C = [
+    ("craft.fuel", "kg", 500.0, 900.0),
+    ("craft.oxidiser", "kg", 800.0, 1400.0),
+    ("main.mixture", "", 1.2, 2.0),
+    ("trim.along", "m/s", 0.0, 200.0),
+    ("keeping.dv", "m/s", 0.0, 300.0),
+    ("lift.periapsis", "km", 10000.0, 30000.0),
+]
+CASES = [(PLAN, KNOBS), (PLAN_B, KNOBS_B), (PLAN_C, KNOBS_C)]
 
 
 def separate_run(text: str) -> dict | None:
@@ -116,13 +144,16 @@ def separate_run(text: str) -> dict | None:
     if not result.ok:
         return None
     f, p = result.final, result.program
+    report = budget(result)
     return {"dv_m_s": f.dv[0] * 1000.0, "dv_with_margin_m_s": f.dv_margin[0] * 1000.0,
             "propellant_kg": p.craft.usable - f.propellant[0], "final_mass_kg": f.mass[0],
-            "elapsed_s": f.t[0], "feasible": budget(result)["feasible"],
+            "elapsed_s": f.t[0], "feasible": report["feasible"],
+            "propellant_left_kg": report["totals"]["propellant_left_kg"],
+            "dv_capacity_left_m_s": report["totals"]["dv_capacity_left_m_s"],
             "message": result.error.message if result.error else None}
 
 
-@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(st.sampled_from(CASES), st.lists(st.floats(0.0, 1.0), min_size=3, max_size=6),
        st.data())
 def test_every_variant_is_a_separate_run(case, fractions, data):
@@ -151,6 +182,8 @@ def test_every_variant_is_a_separate_run(case, fractions, data):
         for key in ("dv_m_s", "dv_with_margin_m_s", "propellant_kg", "final_mass_kg",
                     "elapsed_s"):
             assert priced.totals[key][i] == pytest.approx(want[key], rel=1e-9, abs=1e-9), key
+        for key in ("propellant_left_kg", "dv_capacity_left_m_s"):  # printed to 1e-6
+            assert priced.totals[key][i] == pytest.approx(want[key], rel=1e-9, abs=2e-6), key
         assert bool(priced.feasible[i]) == want["feasible"]
 
 
@@ -415,11 +448,20 @@ def test_bad_input_exits_2_with_a_clear_message(plan_file, capsys, argv, words):
         assert w in err
 
 
-def test_a_craft_with_fuel_and_oxidiser_apart_is_refused(capsys):
-    code = main(["sweep", str(ROOT / "samples" / "geo-fifteen-years.aps"),
-                 "--vary", "craft.dry=1800..1900 kg"])
-    assert code == 2
-    assert "fuel and oxidiser apart" in capsys.readouterr().err
+def test_a_craft_with_fuel_and_oxidiser_apart_sweeps_as_run_prices_it(capsys):
+    """The two stores are followed in every variant: each row's totals are `run`'s."""
+    sample = ROOT / "samples" / "geo-fifteen-years.aps"
+    code = main(["sweep", str(sample), "--vary", "craft.dry=1800..2000 kg", "--points", "3",
+                 "--format", "json"])
+    assert code == 0
+    doc = strict_json(capsys.readouterr().out)
+    text = sample.read_text(encoding="utf-8")
+    for v in doc["variants"]:
+        dry = v["values"]["craft.dry"]
+        want = budget(run(load_text(text.replace("dry 1850 kg", f"dry {dry!r} kg"))))
+        for key in ("dv_m_s", "propellant_kg", "propellant_left_kg", "dv_capacity_left_m_s"):
+            assert v["totals"][key] == pytest.approx(want["totals"][key], rel=1e-9, abs=2e-6)
+        assert v["feasible"] == want["feasible"]
 
 
 def test_a_non_linear_quantity_is_refused_by_name(tmp_path, capsys):

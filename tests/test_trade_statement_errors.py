@@ -30,8 +30,8 @@ CASES = [
      ["takes a whole number"]),
     (PLAN, "trade t: vary geo.circular 2e4..3e4 km 5", "5", ["unexpected `5`"]),
     (PLAN, "trade t: vary geo.circular 3e4..2e4 km", "3e4", ["is empty"]),
-    (PLAN, "trade t: vary geo.circular 2e4..3e4 km points 3, vary main.isp 300..310 s "
-     "points 4", "4", ["the same number of points", "points 3"]),
+    (PLAN, ("trade t: vary geo.circular 2e4..3e4 km points 3, vary main.isp 300..310 s "
+     "points 4"), "4", ["the same number of points", "points 3"]),
     (PLAN, "trade t: disperse start.periapsis 0 km", "0", ["must be positive"]),
     (PLAN, "trade t: vary geo.circular 2e4..3e4 km, minimise mass", "minimise",
      ["`minimise` takes"]),

@@ -170,7 +170,10 @@ def long_burn(c: Checker) -> list[Finding]:
     mus = np.array([c.body_at(row.step).gm for row in rows])
     for mu in np.unique(mus):  # one body, or one per phase of a plan with legs
         own = np.flatnonzero(mus == mu)
-        stack = lambda get: np.concatenate([get(rows[k]) for k in own])
+
+        def stack(get, own=own):
+            return np.concatenate([get(rows[k]) for k in own])
+
         # every burn around this body in one batch: one pass through Kepler's equation
         arcs[own], oks[own] = burn_arc(stack(lambda w: w.after.r), stack(lambda w: w.v_before),
                                        stack(lambda w: w.after.v), mu,
