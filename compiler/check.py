@@ -23,8 +23,8 @@ from apsidal.lang.errors import PlanError
 
 from .budget import budget
 from .evaluate import Batch, Result, apply, carry, context_for, run, start_batch
-from .load import load_text
 from .legs import PhaseBodies, final_body, is_leg
+from .load import load_text
 from .lower import Lowerer, lower
 from .proofs import Node, Walk, add
 from .state import elements_from_state
