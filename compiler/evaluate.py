@@ -600,8 +600,18 @@ def carry(batch: Batch, rows: list[Row], mass_before: float) -> tuple[Batch, np.
                    expect_ok=expect_ok), ok
 
 
+SURFACE_HINT = ("raise the periapsis, or check the goal's altitude (altitudes are above the "
+                "equatorial radius; `radius X` gives a radius)")
+# A goal naming one apsis takes the cheapest burn that reaches it; with a large turn of
+# the plane that is a slower, steeper orbit (the velocity kept least), which can fall.
+ONE_APSIS_HINT = ("a goal naming one apsis takes the cheapest burn that reaches it, and with "
+                  "this turn of the plane that is an orbit that falls: name both apsides "
+                  "(`periapsis to ..., apoapsis to ...`) to keep this point an apsis, or turn "
+                  "the plane in a burn of its own")
+
+
 def _price(batch: Batch, out: BurnOutcome, engine: EngineSpec, margin: float, ctx: Context,
-           fails: Failures, name: str):
+           fails: Failures, name: str, hint: str = SURFACE_HINT):
     """Rocket equation, propellant check and burn time; returns (batch, row parts)."""
     dv_inertial = out.v_after - out.v_before
     along, normal, radial = local_frame(out.r, out.v_before)
@@ -613,7 +623,7 @@ def _price(batch: Batch, out: BurnOutcome, engine: EngineSpec, margin: float, ct
     used = need
     mass = batch.mass - used
     ok = fails.ok
-    _check_surface(out.r, out.v_after, ctx, fails, name)
+    _check_surface(out.r, out.v_after, ctx, fails, name, hint)
     new = Batch(
         r=out.r,
         v=np.where(ok[:, None], out.v_after, out.v_before),
@@ -643,7 +653,7 @@ def _propellant(batch: Batch, dvm, engine: EngineSpec):
     return need, covered, need * ve * 1000.0 / engine.thrust
 
 
-def _check_surface(r, v, ctx: Context, fails: Failures, name: str):
+def _check_surface(r, v, ctx: Context, fails: Failures, name: str, hint: str = SURFACE_HINT):
     """A conic whose periapsis is under the surface hits the body (if it gets there);
     on the way down to a plan's `entry` that is what it is meant to do."""
     if ctx.interface is not None:
@@ -654,9 +664,7 @@ def _check_surface(r, v, ctx: Context, fails: Failures, name: str):
     low = reaches & (periapsis < ctx.radius)
     fails.add(low, lambda i: (
         (f"the periapsis falls to {periapsis[i] - ctx.radius:.3f} km altitude, under the "
-        f"surface (the body's radius is {ctx.radius:.3f} km)"),
-        ("raise the periapsis, or check the goal's altitude (altitudes are above the "
-        "equatorial radius; `radius X` gives a radius)")))
+        f"surface (the body's radius is {ctx.radius:.3f} km)"), hint))
 
 
 def _engine(step, ctx: Context) -> EngineSpec:
@@ -684,7 +692,8 @@ def _price_burn(batch: Batch, out: BurnOutcome, engine: EngineSpec, margin: floa
     """``_price`` for a burn, flown as a finite burn where the plan says so; returns its
     parts and the row's finite fields (empty for an impulsive burn)."""
     if not ctx.finite:
-        return (*_price(batch, out, engine, margin, ctx, fails, name), {})
+        hint = ONE_APSIS_HINT if step.one_apsis and step.changes_plane else SURFACE_HINT
+        return (*_price(batch, out, engine, margin, ctx, fails, name, hint), {})
     from .finite_price import price_finite
 
     return price_finite(batch, out, engine, margin, ctx, fails, name, step)
