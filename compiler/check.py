@@ -23,8 +23,8 @@ from apsidal.lang.errors import PlanError
 
 from .budget import budget
 from .evaluate import Batch, Result, apply, carry, context_for, run, start_batch
-from .load import load_text
 from .legs import PhaseBodies, final_body, is_leg
+from .load import load_text
 from .lower import Lowerer, lower
 from .proofs import Node, Walk, add
 from .state import elements_from_state
@@ -620,11 +620,16 @@ def with_where(node, kind: str | None, angle=None):
 
 
 def angle_text(deg: float) -> str:
-    """An angle in degrees to 10 significant digits, in plain positional notation.
+    """An angle in degrees to 10 significant digits, in plain positional notation; the
+    rounding left of a zero angle (below 1e-9 deg, about 2e-11 rad) is written 0.
 
     >>> angle_text(123.456789012345), angle_text(0.0), angle_text(7.0)
     ('123.456789', '0', '7')
+    >>> angle_text(2.804546752e-14), angle_text(-3e-12)
+    ('0', '0')
     """
+    if abs(deg) < 1e-9:
+        deg = 0.0
     return np.format_float_positional(deg, precision=10, unique=False, fractional=False,
                                       trim="-")
 

@@ -42,7 +42,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .solvers import RADIUS_TOL, Failures
+from .solvers import RADIUS_TOL, Failures, outward
 from .state import CIRCULAR_ECC, TWO_PI, cross, dot, frame, norm, signed_angle, unit
 
 ARGP_TOL = 1e-7  # rad: how far from its goal the apse line may turn out where the burn stands
@@ -159,9 +159,10 @@ def conic_of(goals: ConicGoals, mu: float, radius: float) -> tuple[float, float]
     return ra * (1.0 - e), e
 
 
-def conic_speeds(rmag, vr0, mu, p, e, failures: Failures, radius: float):
+def conic_speeds(rmag, vr0, mu, p, e, failures: Failures, radius: float, side=None):
     """Radial and transverse speed at radius ``rmag`` on the conic (p, e); the radial
-    speed keeps the sign of ``vr0``.  The craft must be between the apsides."""
+    speed keeps the sign of ``vr0`` (or goes the way ``side`` says, ``solvers.outward``).
+    The craft must be between the apsides."""
     p = p * np.ones_like(rmag)
     e = e * np.ones_like(rmag)
     rp = p / (1.0 + e)
@@ -182,7 +183,8 @@ def conic_speeds(rmag, vr0, mu, p, e, failures: Failures, radius: float):
     f2 = np.where(closed, (1.0 - e) * np.maximum(np.where(closed, ra, rmag) - rmag, 0.0) / rmag,
                   p / rmag + e - 1.0)
     vr = np.sqrt(mu / p * f1 * np.maximum(f2, 0.0))
-    return np.where(vr0 < 0, -vr, vr), np.sqrt(mu * p) / rmag
+    side = np.where(vr0 < 0, -1.0, 1.0) if side is None else side
+    return side * vr, np.sqrt(mu * p) / rmag
 
 
 # --- one goal: the nearest point of a curve of velocities ------------------------------
@@ -428,16 +430,19 @@ def new_velocity(r, v, mu, goals: ConicGoals, normal, failures: Failures, radius
     rmag = norm(r)
     vr0 = dot(v, rhat)
     vt_in = dot(v, that)
+    side = outward(vr0, norm(v))  # at an apsis: never the sign of a rounding error
     if goals.argp is not None:
         p2, e2 = apse_target(r, v, mu, goals, radius, failures)
         vr, vt = apse_speeds(r, v, mu, p2, e2, goals.argp, failures, radius)
     elif len(goals.named) == 2:
         p2, e2 = conic_of(goals, mu, radius)
-        vr, vt = conic_speeds(rmag, vr0, mu, p2, e2, failures, radius)
+        vr, vt = conic_speeds(rmag, vr0, mu, p2, e2, failures, radius, side)
     elif goals.energy is not None:
         vr, vt = energy_speeds(rmag, vr0, vt_in, mu, goals.energy, goals, failures, radius)
     else:
-        vr, vt = ecc_speeds(rmag, vr0, vt_in, mu, goals.ecc * np.ones_like(rmag))
+        # the curve is symmetric in the radial speed: solved on the outward side
+        vr, vt = ecc_speeds(rmag, np.abs(vr0), vt_in, mu, goals.ecc * np.ones_like(rmag))
+        vr = side * np.abs(vr)
     ok = failures.ok
     vr, vt = np.where(ok, vr, vr0), np.where(ok, vt, np.maximum(vt_in, 0.0))
     return vr[:, None] * rhat + vt[:, None] * that

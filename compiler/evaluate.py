@@ -430,13 +430,19 @@ def _solve_burn(step: Burn, r, v, ctx: Context, fails: Failures, normal=None):
     if normal is None and step.normal is not None:
         normal = np.broadcast_to(np.asarray(step.normal), r.shape)
     if normal is None and (step.inclination is not None or step.raan is not None):
-        normal = normal_for(r, v, step.inclination, step.raan, fails)
+        normal = normal_for(r, v, step.inclination, step.raan, fails, _descending(step))
     goals = conic_goals.ConicGoals.of(step)
     if goals is not None:
         v_new = conic_goals.new_velocity(r, v, mu, goals, normal, fails, ctx.radius)
     else:
         v_new = new_velocity(r, v, mu, shape, normal, fails, ctx.radius)
     return np.where(fails.ok[:, None], v_new, v)
+
+
+def _descending(step) -> bool:
+    """Whether a step stands `at descending node`: from an equatorial orbit its plane goal
+    then leaves the craft at the new plane's descending node (``normal_for``)."""
+    return step.place is not None and step.place.kind == "descending node"
 
 
 def _sun_synchronous_burn(step: Burn, r, v, ctx: Context, fails: Failures):
@@ -454,7 +460,8 @@ def _sun_synchronous_burn(step: Burn, r, v, ctx: Context, fails: Failures):
     for _ in range(30):
         scratch = Failures(r.shape[0])
         ok = np.isfinite(inc)
-        normal = normal_for(r, v, np.where(ok, inc, 0.0), step.raan, scratch)
+        normal = normal_for(r, v, np.where(ok, inc, 0.0), step.raan, scratch,
+                            _descending(step))
         el = orbit(_solve_burn(plain, r, v, ctx, scratch, normal))
         closed = el.closed & (el.sma > 0)
         new = np.where(closed, sun_synchronous(ctx.mu, ctx.radius, ctx.j2,
@@ -470,7 +477,8 @@ def _sun_synchronous_burn(step: Burn, r, v, ctx: Context, fails: Failures):
          "has no sun-synchronous inclination: it is open, or too high for any "
          "inclination's node drift to match the Sun's"),
         "lower the orbit first, or give the inclination in degrees"))
-    normal = normal_for(r, v, np.where(bad, el.inclination, inc), step.raan, fails)
+    normal = normal_for(r, v, np.where(bad, el.inclination, inc), step.raan, fails,
+                        _descending(step))
     return _solve_burn(plain, r, v, ctx, fails, normal)
 
 
@@ -482,10 +490,22 @@ def _burn_at(step: Burn, place: Place, r, v, ctx: Context, normal=None,
     return BurnOutcome(r1, v1, v2, coast, fails, place.label())
 
 
+COST_TIE = 1e-9  # km/s (1 micrometre per second), and relative: two costs this close tie
+
+
 def _prefer_first(cost_a, cost_b, wait_a, wait_b) -> np.ndarray:
-    """The first option where it is cheaper, or as cheap and sooner."""
-    tie = np.abs(cost_a - cost_b) <= 1e-12 * np.maximum(cost_a, cost_b) + 1e-15
-    return np.where(tie, wait_a <= wait_b, cost_a < cost_b)
+    """The first option where it is cheaper, or as cheap and sooner.
+
+    As cheap means within ``COST_TIE``, absolute and relative: far above the rounding
+    of a delta-v (two burns that do nothing both cost about 1e-13 km/s; the same turn
+    at either node of a circular orbit differs in the last digits), far below anything a
+    report shows.  A tie decided by rounding would send the same step to one node when
+    it is priced alone and to the other in a batch.
+    """
+    tie = np.abs(cost_a - cost_b) <= COST_TIE * (np.maximum(cost_a, cost_b) + 1.0)
+    # the same with the waits (s): the first unless the other is sooner past rounding
+    sooner = wait_a <= wait_b + 1e-9 * (np.maximum(np.abs(wait_a), np.abs(wait_b)) + 1.0)
+    return np.where(tie, sooner, cost_a < cost_b)
 
 
 def _cheaper(a: BurnOutcome, b: BurnOutcome) -> BurnOutcome:
@@ -583,8 +603,18 @@ def carry(batch: Batch, rows: list[Row], mass_before: float) -> tuple[Batch, np.
                    expect_ok=expect_ok), ok
 
 
+SURFACE_HINT = ("raise the periapsis, or check the goal's altitude (altitudes are above the "
+                "equatorial radius; `radius X` gives a radius)")
+# A goal naming one apsis takes the cheapest burn that reaches it; with a large turn of
+# the plane that is a slower, steeper orbit (the velocity kept least), which can fall.
+ONE_APSIS_HINT = ("a goal naming one apsis takes the cheapest burn that reaches it, and with "
+                  "this turn of the plane that is an orbit that falls: name both apsides "
+                  "(`periapsis to ..., apoapsis to ...`) to keep this point an apsis, or turn "
+                  "the plane in a burn of its own")
+
+
 def _price(batch: Batch, out: BurnOutcome, engine: EngineSpec, margin: float, ctx: Context,
-           fails: Failures, name: str):
+           fails: Failures, name: str, hint: str = SURFACE_HINT):
     """Rocket equation, propellant check and burn time; returns (batch, row parts)."""
     dv_inertial = out.v_after - out.v_before
     along, normal, radial = local_frame(out.r, out.v_before)
@@ -596,7 +626,7 @@ def _price(batch: Batch, out: BurnOutcome, engine: EngineSpec, margin: float, ct
     used = need
     mass = batch.mass - used
     ok = fails.ok
-    _check_surface(out.r, out.v_after, ctx, fails, name)
+    _check_surface(out.r, out.v_after, ctx, fails, name, hint)
     new = Batch(
         r=out.r,
         v=np.where(ok[:, None], out.v_after, out.v_before),
@@ -626,7 +656,7 @@ def _propellant(batch: Batch, dvm, engine: EngineSpec):
     return need, covered, need * ve * 1000.0 / engine.thrust
 
 
-def _check_surface(r, v, ctx: Context, fails: Failures, name: str):
+def _check_surface(r, v, ctx: Context, fails: Failures, name: str, hint: str = SURFACE_HINT):
     """A conic whose periapsis is under the surface hits the body (if it gets there);
     on the way down to a plan's `entry` that is what it is meant to do."""
     if ctx.interface is not None:
@@ -637,9 +667,7 @@ def _check_surface(r, v, ctx: Context, fails: Failures, name: str):
     low = reaches & (periapsis < ctx.radius)
     fails.add(low, lambda i: (
         (f"the periapsis falls to {periapsis[i] - ctx.radius:.3f} km altitude, under the "
-        f"surface (the body's radius is {ctx.radius:.3f} km)"),
-        ("raise the periapsis, or check the goal's altitude (altitudes are above the "
-        "equatorial radius; `radius X` gives a radius)")))
+        f"surface (the body's radius is {ctx.radius:.3f} km)"), hint))
 
 
 def _engine(step, ctx: Context) -> EngineSpec:
@@ -667,7 +695,8 @@ def _price_burn(batch: Batch, out: BurnOutcome, engine: EngineSpec, margin: floa
     """``_price`` for a burn, flown as a finite burn where the plan says so; returns its
     parts and the row's finite fields (empty for an impulsive burn)."""
     if not ctx.finite:
-        return (*_price(batch, out, engine, margin, ctx, fails, name), {})
+        hint = ONE_APSIS_HINT if step.one_apsis and step.changes_plane else SURFACE_HINT
+        return (*_price(batch, out, engine, margin, ctx, fails, name, hint), {})
     from .finite_price import price_finite
 
     return price_finite(batch, out, engine, margin, ctx, fails, name, step)
@@ -780,7 +809,7 @@ def _transfer_from(step: Transfer, index: int, batch: Batch, ctx: Context, fails
     if step.changes_plane:
         # the target plane as seen from the first burn's position
         tmp = Failures(batch.size)
-        target = normal_for(r0, v0, step.inclination, step.raan, tmp)
+        target = normal_for(r0, v0, step.inclination, step.raan, tmp, _descending(step))
         fails.merge(~tmp.ok, tmp)
         if step.form == "hohmann":
             share = (np.full(batch.size, step.split) if step.split is not None
@@ -916,9 +945,19 @@ def _three_burn_plane_change(step: Transfer, index, batch: Batch, ctx: Context, 
     fails.add(~el.closed, lambda i: (
         (f"a three-burn plane change starts from a closed orbit; this one is open "
          f"(eccentricity {el.ecc[i]:.6f})"), "capture first, then turn the plane"))
+    normal = None
+    if ctx.drift is None and step.raan is None:
+        # the turn stands opposite the first point (-r0, flying the other way in the same
+        # plane), and the plane it turns to passes through both: on a tie (from an
+        # equatorial orbit) the first point, where the step is placed, is the new plane's
+        # ascending node, or its descending node when placed so; the far point the other
+        tmp = Failures(batch.size)
+        normal = normal_for(-r0, -v0, step.inclination, None, tmp, not _descending(step))
+        fails.merge(~tmp.ok, tmp)
     rows = []
-    for burn, first in ((raise_, sweep), (turn, None), (lower, None)):
-        batch, row = _burn_rows(burn, index, burn.name, batch, ctx, fails, None, first)
+    for burn, first, given in ((raise_, sweep, None), (turn, None, normal),
+                               (lower, None, None)):
+        batch, row = _burn_rows(burn, index, burn.name, batch, ctx, fails, given, first)
         rows.append(row)
     return batch, rows
 

@@ -26,8 +26,8 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from .evaluate import Batch, Context, apply, context_for, start_batch
-from .state import dot, elements_from_state, frame, norm
 from .legs import in_phase, is_leg
+from .state import dot, elements_from_state, frame, norm
 from .steps import Allow, Burn, Coast, Drop, Entry, Expect, Program, Transfer
 
 WORK_LIMIT = 500_000  # steps priced (one step on one partial order) per block

@@ -47,6 +47,23 @@ from .state import (
 )
 
 RADIUS_TOL = 1e-9  # relative: a target this close to the current radius is "here"
+APSIS_SPEED_TOL = 1e-9  # share of the speed: a radial speed this small is flight at an apsis
+
+
+def outward(vr0, speed):
+    """Which way along the radius the craft is moving, as -1.0 (inward) or 1.0.
+
+    A radial speed within ``APSIS_SPEED_TOL`` of the speed is flight at an apsis (a point
+    within the place tolerance of one, or anywhere on a circular orbit) and counts as
+    outward: a burn whose new orbit has no apsis here then leaves the craft just past
+    that orbit's periapsis, on its way out.  The two sides cost the same; the sign of a
+    rounding error must never pick one, or the same step turns the apse line one way
+    when it is priced alone and the other way in a batch.
+
+    >>> outward(np.array([-1e-13, 1e-13, -0.5, 0.0]), np.array([7.5, 7.5, 7.5, 7.5]))
+    array([ 1.,  1., -1.,  1.])
+    """
+    return np.where(vr0 < -APSIS_SPEED_TOL * speed, -1.0, 1.0)
 
 
 class Failures:
@@ -109,6 +126,7 @@ def in_plane_speeds(rmag, vr0, vt0, vt_in_plane, mu, shape: Shape, body_radius: 
     """
     if shape.periapsis is None and shape.apoapsis is None:
         return vr0, vt0
+    side = outward(vr0, np.hypot(vr0, vt0))
     alt = lambda x: x - body_radius
     tol = RADIUS_TOL * rmag
     if shape.periapsis is not None and shape.apoapsis is not None:
@@ -126,14 +144,17 @@ def in_plane_speeds(rmag, vr0, vt0, vt_in_plane, mu, shape: Shape, body_radius: 
         vt = np.sqrt(mu * p) / rmag
         # vis-viva less the transverse part, factored so it is exactly 0 at an apsis
         vr2 = 2.0 * mu / rmag**2 * (rmag - lo) * (hi - rmag) / (lo + hi)
-        sign = np.where(vr0 < 0, -1.0, 1.0)
-        return sign * np.sqrt(np.maximum(vr2, 0.0)), vt
+        return side * np.sqrt(np.maximum(vr2, 0.0)), vt
     which = "apoapsis" if shape.apoapsis is not None else "periapsis"
     R = np.asarray(getattr(shape, which), dtype=float) * np.ones_like(rmag)
     _refuse_out_of_reach(failures, rmag, R, which, alt, transfer_hint=False)
     if shape.tangential:
         return _tangential_speeds(rmag, vr0, vt_in_plane, mu, R, which, alt, failures)
-    return nearest_apsis_speeds(rmag, vr0, vt_in_plane, mu, R, which == "periapsis")
+    # the curve of velocities is symmetric in the radial speed: solved on the outward
+    # side (where both sides are as near, at vr0 = 0, the grid may land on either), turned
+    # to the craft's
+    vr, vt = nearest_apsis_speeds(rmag, np.abs(vr0), vt_in_plane, mu, R, which == "periapsis")
+    return side * np.abs(vr), vt
 
 
 def _refuse_out_of_reach(failures, rmag, R, which, alt, transfer_hint):
@@ -291,11 +312,18 @@ def crossings(r, v, target):
     return np.where(same, 0.0, first), np.where(same, 0.0, second)
 
 
-def normal_for(r, v, inclination, raan, failures: Failures):
+def normal_for(r, v, inclination, raan, failures: Failures, descending=False):
     """The orbit normal after a plane goal, containing the current position.
 
     ``inclination`` and/or ``raan`` are arrays (rad) or None.  With inclination alone the
-    rotation about the radius vector is the smaller of the two that reach it.  With
+    rotation about the radius vector is the smaller of the two that reach it.  Where the
+    two are the same size (to ``EQUATORIAL_RAD``) the craft is put heading north in the
+    new plane, or south where ``descending`` (a bool or one per element: the burn was
+    placed `at descending node`).  That happens from an equatorial orbit, where every
+    point is a node (north: the ascending node of the new plane), and at the highest or
+    lowest latitude of an inclined orbit.  The sign of a rounding error must never pick
+    the plane: the same step would reach another plane when priced in another batch.
+    With
     ``raan`` (alone or with an inclination) the plane is fixed and must pass through the
     position; the error names the two places where it does.
     """
@@ -314,8 +342,10 @@ def normal_for(r, v, inclination, raan, failures: Failures):
         inc = np.arccos(np.clip(target[:, 2], -1.0, 1.0))
         off = dot(target, rhat)
         # an error d in the normal moves the node by d / sin(i): near the equator the
-        # position must be closer to the plane for the node to be met as well
-        tol = np.maximum(PLANE_TOL * np.minimum(1.0, np.sin(inc)), 1e-12)
+        # position must be closer to the plane for the node to be met as well; never
+        # closer than 1e-10 rad (0.7 mm at the Earth's radius), far above the rounding of a
+        # state coasted to a node, or an equatorial plane is met or missed by rounding
+        tol = np.maximum(PLANE_TOL * np.minimum(1.0, np.sin(inc)), 1e-10)
         miss = np.abs(off) > tol
         what = "" if inclination is not None else " (the inclination kept)"
         failures.add(miss, lambda i: (
@@ -337,7 +367,7 @@ def normal_for(r, v, inclination, raan, failures: Failures):
     zlen = norm(zp)
     lat = np.degrees(np.arcsin(np.clip(rz, -1.0, 1.0)))
     slack = si2 - rz**2
-    bad = slack < -1e-15
+    bad = slack < -1e-12  # (rounding at the vertex, where the goal is the latitude itself)
     failures.add(bad, lambda i: (
         (f"inclination {np.degrees(np.arccos(ci[i])):.4f} deg cannot be reached at "
          f"latitude {lat[i]:.4f} deg: a plane through this point has an inclination "
@@ -349,7 +379,11 @@ def normal_for(r, v, inclination, raan, failures: Failures):
     w = cross(rhat, u)
     a = ci / safe
     b = np.sqrt(np.maximum(slack, 0.0)) / safe
-    b = np.where(dot(h0, w) < 0, -b, b)
+    # b > 0 heads north (the new velocity, along h' x r, has z part b |z_perp|)
+    side = dot(h0, w)
+    tie = np.abs(side) <= np.sin(EQUATORIAL_RAD)  # equatorial, or at a vertex
+    south = np.broadcast_to(np.asarray(descending, dtype=bool), tie.shape)
+    b = np.where(np.where(tie, south, side < 0), -b, b)
     target = a[:, None] * u + b[:, None] * w
     return np.where(pole[:, None], h0, unit(target))
 

@@ -157,7 +157,8 @@ def frame(r: np.ndarray, v: np.ndarray, mu: float | np.ndarray) -> Frame:
 def periapsis_radius(r: np.ndarray, v: np.ndarray, mu: float) -> tuple[np.ndarray, np.ndarray]:
     """The periapsis radius of the conic through (r, v), and whether it is closed:
     p / (1 + e) from the angular momentum and the energy alone (the cheap part of
-    ``elements_from_state``).
+    ``elements_from_state``).  Closed means bound (negative energy): a radial orbit has
+    e = 1 and a periapsis at the centre, and still falls back, whichever way it moves.
 
     >>> r, v = np.array([[7000.0, 0, 0]]), np.array([[0, 8.0, 0]])
     >>> el = elements_from_state(r, v, 398600.4418)
@@ -168,7 +169,7 @@ def periapsis_radius(r: np.ndarray, v: np.ndarray, mu: float) -> tuple[np.ndarra
     h2 = dot(h, h)
     energy = 0.5 * dot(v, v) - mu / norm(r)
     ecc = np.sqrt(np.maximum(1.0 + 2.0 * energy * h2 / (mu * mu), 0.0))
-    return h2 / mu / (1.0 + ecc), ecc < 1.0
+    return h2 / mu / (1.0 + ecc), (ecc < 1.0) | (energy < 0.0)
 
 
 def elements_from_state(r: np.ndarray, v: np.ndarray, mu: float) -> Elements:

@@ -440,6 +440,18 @@ CASES = [
                                          "entry at 120 km"),
         10, col(s, "periapsis"), "periapsis to -7000 km", ("lies past the centre",),
         "down to an altitude above -6378.137 km"),
+    # a plane turned by more than 90 deg with an apoapsis goal: the nearest velocity is
+    # radial (rising to 1500 km and falling back through the centre), refused whichever
+    # way along the radius it points (it was passed as an open orbit when outward)
+    Bad("radial-orbit-falls-back", plan("burn b at periapsis: apoapsis to 1500 km, "
+                                        "inclination to 150 deg"),
+        10, 1, "burn b", ("b:", "under the surface", "-6378.137 km"), "name both apsides"),
+    # a 70 deg turn: the cheapest burn to the apoapsis alone slows into a falling orbit,
+    # where naming both apsides (the periapsis kept here) flies
+    Bad("one-apsis-with-a-large-turn-falls", plan("burn b at periapsis: apoapsis to 1500 km, "
+                                                  "inclination to 100 deg"),
+        10, 1, "burn b", ("b:", "under the surface"),
+        "name both apsides (`periapsis to ..., apoapsis to ...`) to keep this point an apsis"),
     Bad("under-the-surface-before-the-last-burn",
         plan("burn down: periapsis to -30 km", "burn trim: along 1 m/s", "entry at 120 km"),
         10, 1, "burn down", ("down:", "under the surface", "-30.000 km"), "raise the periapsis"),

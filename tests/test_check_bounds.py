@@ -25,7 +25,7 @@ from apsidal.compiler.rules.bounds import (
     plane_angle,
 )
 from apsidal.lang.errors import PlanError
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
 MU = 398600.4418  # km3/s2, Earth (IERS Conventions 2010, Table 1.1)
@@ -72,6 +72,12 @@ def exhaustive(program, block):
 
 @settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(small_blocks())
+# a turn from the equator that fell either way by rounding (tests/test_rounding_ties.py)
+@example(HEAD + "burn tilt0 at node: inclination to 0 deg\n"
+         "burn tilt1 at node: inclination to 1 deg\n"
+         "burn up2 at periapsis: apoapsis to 2000 km\n"
+         "burn up3 at periapsis: apoapsis to 4675 km\n"
+         "burn up4 at periapsis: apoapsis to 2300 km\n")
 def test_branch_and_bound_finds_the_exhaustive_optimum(text):
     program = load_text(text, "b.aps")
     if not run(program).ok:

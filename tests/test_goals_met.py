@@ -507,3 +507,22 @@ def test_the_split_found_in_closed_form_is_the_cheapest_the_evaluator_prices(sta
         res = run(program.with_steps([dc_replace(t, split=share)]), strict=True)
         shares.append(cost(res))
     assert base <= min(shares) * (1 + 1e-12)
+
+
+def test_both_apsides_named_keep_the_point_through_a_large_turn():
+    """Apsides 400 x 1500 km and a 70 deg turn of the plane from a 400 km circle at its
+    node: naming both apsides keeps the burn point the periapsis, and the delta-v is the
+    cosine rule between the circular speed and vis-viva's periapsis speed (common
+    practice); naming the apoapsis alone is refused (tests/test_bad_inputs.py)."""
+    text = plan("start circular 400 km inclination 30 deg",
+                "burn b at periapsis: periapsis to 400 km, apoapsis to 1500 km, "
+                "inclination to 100 deg")
+    result = fly(text)
+    r, ra = RE + 400.0, RE + 1500.0
+    vc = math.sqrt(MU / r)
+    vp = math.sqrt(MU * (2.0 / r - 2.0 / (r + ra)))
+    want = math.sqrt(vc**2 + vp**2 - 2.0 * vc * vp * math.cos(math.radians(70.0)))
+    assert dv_of(burn_rows(result)[0]) == pytest.approx(want, rel=1e-9)
+    end = final(result)
+    assert math.degrees(end["i"]) == pytest.approx(100.0, abs=1e-9)
+    assert end["rp"] == pytest.approx(r, rel=1e-9) and end["ra"] == pytest.approx(ra, rel=1e-9)
