@@ -16,7 +16,7 @@ import sys
 
 import numpy as np
 
-from .cliutil import EXIT_OK, UsageError, screen_width
+from .cliutil import EXIT_FINDINGS, EXIT_OK, UsageError, screen_width
 
 RANGE_OPTIONS = ("--vary", "--disperse", "--tolerance")  # their unit may come apart
 _NUM = r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?"
@@ -276,14 +276,18 @@ def cmd_sweep(args) -> int:
                             admitted=admitted)
         if study.minimise:
             priced, best = sweep.minimise(model, X, study.minimise, tol, held, refused)
+            at = np.array([[best.value]])
+            there = sweep.price(model, at)
+            # the plan at the best value is a plan like any other: short of its load or
+            # missing its own expectations, it is said and the exit is 1, as `run` gives
+            sound = bool(there.feasible[0] and there.totals["expectations_met"][0])
             if args.format == "csv":  # the grid that bracketed it, then the best
-                at = np.array([[best.value]])
-                sweep_csv_of(model, X, priced, (at, sweep.price(model, at)), sys.stdout)
-                return EXIT_OK
+                sweep_csv_of(model, X, priced, (at, there), sys.stdout)
+                return EXIT_OK if sound else EXIT_FINDINGS
             report = sweep_report(model, X, priced, plan, points)
-            report["best"] = best_dict(model, best, study.minimise)
+            report["best"] = best_dict(model, best, study.minimise, there)
             emit(report, args.format, sweep_table, None)
-            return EXIT_OK
+            return EXIT_OK if sound else EXIT_FINDINGS
         else:
             bar = Progress(X.shape[0])
             try:
@@ -482,13 +486,17 @@ def sweep_csv_of(model, X, priced, best: tuple | None = None, out=None,
     return buf.getvalue() if out is None else None
 
 
-def best_dict(model, best, objective: str) -> dict:
+def best_dict(model, best, objective: str, there) -> dict:
+    """The optimum found, and whether the plan at that value fits its load and meets its
+    own expectations (``there``: that plan priced)."""
     from .sweep import OBJECTIVES, finite_or_none
 
     return {"name": model.knobs[0].target, "unit": model.units[0], "value": best.value,
             "tolerance": best.tolerance, "objective": objective,
             OBJECTIVES[objective]: finite_or_none(best.objective),
             "at_end_of_range": best.at_end, "evaluations": best.evaluations,
+            "feasible": bool(there.feasible[0]),
+            "expectations_met": bool(there.totals["expectations_met"][0]),
             "plan_text": model.text_with([best.value])}
 
 
@@ -664,8 +672,15 @@ def sweep_table(report: dict, width: int = 100) -> str:
                           f"{best['objective']} {sig(best[key], 7)} "
                           f"{key.rsplit('_', 1)[-1] if not key.endswith('m_s') else 'm/s'}"
                           + ("; at the end of the range: widen it" if best["at_end_of_range"]
-                             else ""), width),
-                "", "the plan with that value:", "", best["plan_text"].rstrip("\n")]
+                             else ""), width)]
+        if not best["feasible"]:
+            out.append(_wrap("the plan with that value does NOT fit its load (`apsidal run` "
+                             "it for the shortfall)", width))
+        elif not best["expectations_met"]:
+            out.append(_wrap("the plan with that value does NOT meet its own expectations "
+                             "(`apsidal run` it for which): the optimum of the total is not "
+                             "a plan that works", width))
+        out += ["", "the plan with that value:", "", best["plan_text"].rstrip("\n")]
     out += ["", _wrap(report["caution"], width)]
     return "\n".join(out) + "\n"
 

@@ -382,8 +382,10 @@ def test_real_sweep_output_draws_with_its_best_value(tmp_path):
     # value and total, the value the sweep found starred at its objective
     code, out, err = cli("sweep", str(RELAY), "--vary", "raise.apoapsis=30000..42000 km",
                          "--minimise", "propellant", "--format", "json")
-    assert code == 0, err
     data = json.loads(out)
+    # the least propellant is at the top of the range, where the sample's own `expect`
+    # (a circular orbit) fails: sweep says so and exits 1; the curve draws all the same
+    assert not data["best"]["expectations_met"] and code == 1, err
     root = sweep_picture(tmp_path, data)
     ids = svgread.by_id(root)
     x0, xs = svgread.axis(root, "x")

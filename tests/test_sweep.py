@@ -356,7 +356,6 @@ def test_json_carries_every_variant_and_meets_its_schema(plan_file, capsys):
 def test_minimise_reports_the_value_and_the_plan_text_with_it(plan_file, capsys):
     code = main(["sweep", str(plan_file), "--vary", "geo.inclination=0..28.5 deg",
                  "--minimise", "propellant", "--points", "7", "--format", "json"])
-    assert code == 0
     doc = strict_json(capsys.readouterr().out)
     schema = json.loads((ROOT / "docs" / "schema" / "sweep.schema.json").read_text())
     Draft202012Validator(schema).validate(doc)
@@ -365,6 +364,41 @@ def test_minimise_reports_the_value_and_the_plan_text_with_it(plan_file, capsys)
     again = separate_run(best["plan_text"])
     assert again["propellant_kg"] == pytest.approx(best["propellant_kg"], rel=1e-12)
     assert f"inclination to {best['value']!r} deg" in best["plan_text"]
+    # the plan with the best value fits its load or not as its run says, and the exit
+    # code follows (this craft's tank is too small for the whole plan)
+    assert best["feasible"] == again["feasible"]
+    assert code == (0 if best["feasible"] and best["expectations_met"] else 1)
+
+
+MISSES = """\
+plan "minimise against an expectation"
+around earth
+craft c { dry 500 kg propellant 3000 kg engine main isp 320 s thrust 40 kN }
+start circular 400 km inclination 30 deg
+transfer t: circular 2000 km via apoapsis 5000 km
+expect high apoapsis 2000 km within 1 km
+"""
+
+
+def test_a_best_value_that_misses_the_plans_expectations_says_so_and_exits_1(tmp_path,
+                                                                             capsys):
+    """The least propellant lies at the top of the range, where the plan's own `expect`
+    fails: the optimum is offered as a plan, so it is held to `run`'s rules."""
+    path = tmp_path / "misses.aps"
+    path.write_text(MISSES)
+    code = main(["sweep", str(path), "--vary", "t.circular=1500..2500 km", "--minimise",
+                 "propellant", "--format", "json"])
+    best = strict_json(capsys.readouterr().out)["best"]
+    assert code == 1 and best["feasible"] and not best["expectations_met"]
+    assert main(["run", str(tmp_path / "misses.aps")]) == 0  # the plan as written is fine
+    capsys.readouterr()
+    assert main(["sweep", str(path), "--vary", "t.circular=1500..2500 km", "--minimise",
+                 "propellant"]) == 1
+    assert "does NOT meet its own expectations" in capsys.readouterr().out
+    # where the best value meets them, exit 0
+    assert main(["sweep", str(path), "--vary", "t.via=3000..40000 km", "--minimise",
+                 "propellant", "--format", "json"]) == 0
+    assert strict_json(capsys.readouterr().out)["best"]["expectations_met"]
 
 
 def test_csv_is_strict_with_one_row_per_variant(plan_file, capsys):
@@ -498,8 +532,10 @@ def test_a_trade_in_the_plan_is_read_by_sweep_and_ignored_by_run(tmp_path, capsy
     doc = strict_json(capsys.readouterr().out)
     assert doc["samples"] == 400 and doc["seed"] == 9
     assert [d["name"] for d in doc["dispersions"]] == ["start.periapsis", "main.isp"]
-    assert main(["sweep", str(traded), "--trade", "split", "--format", "json"]) == 0
-    assert strict_json(capsys.readouterr().out)["best"]["objective"] == "propellant"
+    code = main(["sweep", str(traded), "--trade", "split", "--format", "json"])
+    best = strict_json(capsys.readouterr().out)["best"]
+    assert best["objective"] == "propellant"
+    assert code == (0 if best["feasible"] and best["expectations_met"] else 1)
 
 
 # (every mistake a trade statement can hold, located: tests/test_trade_statement_errors.py)
