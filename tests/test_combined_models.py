@@ -285,35 +285,14 @@ def test_variants_of_generated_plans_under_every_model_are_separate_runs(data):
     separate run of its text, or is refused as that run is."""
     from hypothesis import assume
     from plangen import plan_texts
-    from test_sweep import _knobs_of
+    from test_sweep import assert_nearby_variants_are_runs
 
     text = with_models(data.draw(plan_texts(tidy=True)), data.draw(st.sampled_from(MODELS)))
     try:
         program = load_text(text)
     except PlanError:
         assume(False)
-    knobs = _knobs_of(program.plan, program)
-    target, q = data.draw(st.sampled_from(knobs))
-    base = q.value
-    step = abs(base) * 0.02 if base else 0.5
-    values = sorted(data.draw(st.lists(st.floats(base - step, base + step), min_size=2,
-                                       max_size=3)))
-    try:
-        knob = sweep.locate(program.plan, program, target)
-        model = sweep.Model(text, "<plan>", [knob], [q.unit], [(values[0], values[-1])])
-    except (sweep.UsageError, sweep.PlanError):
-        assume(False)
-    priced = sweep.price(model, np.array(values)[:, None])
-    for i, x in enumerate(values):
-        result = run(load_text(model.text_with([x])))
-        if not result.ok:
-            assert not priced.flown[i]
-            continue
-        assert priced.flown[i], (target, x, priced.reason(i))
-        f = result.final
-        assert priced.totals["dv_m_s"][i] == pytest.approx(f.dv[0] * 1000, rel=1e-9, abs=1e-9)
-        assert priced.totals["elapsed_s"][i] == pytest.approx(f.t[0], rel=1e-9, abs=1e-6)
-        assert priced.totals["final_mass_kg"][i] == pytest.approx(f.mass[0], rel=1e-9)
+    assert_nearby_variants_are_runs(data, text, program, max_size=3)
 
 
 @pytest.mark.parametrize("objective", ["propellant", "dv"])

@@ -37,6 +37,7 @@ from apsidal.lang.errors import PlanError
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from test_check import MU, RE, plan, reprice
+from test_check_bounds import HEAD as BOUNDS_HEAD
 
 # found by tests/test_check.py::test_reported_orderings_never_cost_more_and_reach_the_same_orbit
 MERGE_AFTER_THE_EQUATOR = plan("""start orbit periapsis 300 km apoapsis 1312 km inclination 5 deg
@@ -47,14 +48,7 @@ burn b3 at periapsis: apoapsis to 2000 km
 """)
 
 # found by tests/test_check_bounds.py::test_branch_and_bound_finds_the_exhaustive_optimum
-FIVE_BURNS = """plan "bounds"
-around earth
-craft probe {
-    dry 500 kg
-    propellant 20 t
-    engine main isp 320 s thrust 400 kN
-}
-start circular 400 km inclination 30 deg
+FIVE_BURNS = BOUNDS_HEAD + """\
 burn tilt0 at node: inclination to 0 deg
 burn tilt1 at node: inclination to 1 deg
 burn up2 at periapsis: apoapsis to 2000 km

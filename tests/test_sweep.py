@@ -591,24 +591,29 @@ def _knobs_of(plan, program) -> list[tuple[str, object]]:
 def test_variants_of_generated_plans_are_separate_runs(data):
     """Any quantity of a generated plan (tests/plangen.py), moved a little either way:
     each variant equals a separate run of its text, or is refused as that run is."""
-    from hypothesis import assume
     from plangen import plan_texts
 
     text = data.draw(plan_texts(tidy=True))
-    program = load_text(text)
+    assert_nearby_variants_are_runs(data, text, load_text(text), max_size=4)
+
+
+def assert_nearby_variants_are_runs(data, text: str, program, max_size: int) -> None:
+    """Draw a quantity of ``program`` and values a little either side of it: each variant
+    equals a separate run of its text, or is refused as that run is."""
+    from hypothesis import assume
+
     knobs = _knobs_of(program.plan, program)
     target, q = data.draw(st.sampled_from(knobs))
     base = q.value
     step = abs(base) * 0.02 if base else 0.5
     values = sorted(data.draw(st.lists(st.floats(base - step, base + step), min_size=2,
-                                       max_size=4)))
+                                       max_size=max_size)))
     try:
         knob = sweep.locate(program.plan, program, target)  # a statistical line is refused
         model = sweep.Model(text, "<plan>", [knob], [q.unit], [(values[0], values[-1])])
     except (sweep.UsageError, sweep.PlanError):
         assume(False)  # the range reaches past what lowering accepts, or is not affine
-    X = np.array(values)[:, None]
-    priced = sweep.price(model, X)
+    priced = sweep.price(model, np.array(values)[:, None])
     for i, x in enumerate(values):
         result = run(load_text(model.text_with([x])))
         if not result.ok:

@@ -8,30 +8,13 @@ import json
 
 import pytest
 from apsidal.compiler.cli import main
-
-PLAN = """\
-plan "Two stores out of ratio"
-around earth
-craft duo {
-    dry 900 kg
-    fuel FUEL kg
-    oxidiser OX kg
-    residual 2 %
-    engine main isp 318 s thrust 450 N mixture 1.65
-    engine rcs isp 225 s thrust 22 N
-}
-reserve 20 m/s
-start orbit periapsis 250 km apoapsis 35786 km inclination 12 deg
-burn lift at apoapsis: periapsis to 20000 km, inclination to 4 deg
-burn circ at apoapsis: circular, inclination to 0 deg
-burn trim: along 30 m/s using rcs
-allow keeping 60 m/s using rcs
-"""
+from test_sweep import PLAN_C as PLAN  # the plan the sweep property test trades
 
 
 def priced(tmp_path, capsys, fuel: float, ox: float) -> tuple[int, dict]:
     path = tmp_path / "duo.aps"
-    path.write_text(PLAN.replace("FUEL", repr(fuel)).replace("OX", repr(ox)))
+    path.write_text(PLAN.replace("fuel 700 kg", f"fuel {fuel!r} kg")
+                    .replace("oxidiser 1100 kg", f"oxidiser {ox!r} kg"))
     code = main(["run", str(path), "--format", "json"])
     return code, json.loads(capsys.readouterr().out)
 
